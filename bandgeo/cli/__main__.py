@@ -1,0 +1,5 @@
+import sys
+
+from bandgeo.cli import main
+
+sys.exit(main())

@@ -1,0 +1,63 @@
+"""Option types and helpers shared by every subcommand, so that all of them accept the same input."""
+from __future__ import annotations
+
+import os
+from pathlib import Path
+
+import click
+import numpy as np
+
+
+class VectorType(click.ParamType):
+    """Three comma-separated numbers, e.g. ``--up -0.3,0.1,0.95`` (negative components welcome)."""
+
+    name = "X,Y,Z"
+
+    def convert(self, value, param, ctx):
+        if isinstance(value, np.ndarray):
+            return value
+        parts = [p for p in str(value).replace(";", ",").replace(" ", ",").split(",") if p != ""]
+        try:
+            vec = np.array([float(p) for p in parts], dtype=float)
+        except ValueError:
+            self.fail(f"expected three numbers like -0.3,0.1,0.95 but got {value!r}", param, ctx)
+        if vec.shape != (3,) or not np.all(np.isfinite(vec)):
+            self.fail(f"expected three finite numbers like -0.3,0.1,0.95 but got {value!r}", param, ctx)
+        if np.linalg.norm(vec) == 0:
+            self.fail(f"the vector {value!r} has zero length; give a direction", param, ctx)
+        return vec
+
+
+VECTOR = VectorType()
+
+UNITS = click.Choice(["um", "mm", "cm", "m", "in"], case_sensitive=False)
+
+
+def existing_path(ctx, param, value):
+    """Callback: a path that must exist (file or folder); spaces and any case of extension are fine."""
+    if value is None:
+        return None
+    path = Path(os.path.expanduser(value))
+    if not path.exists():
+        raise click.BadParameter(f"{value!r} does not exist; check the path (quote it if it has spaces)",
+                                 ctx=ctx, param=param)
+    return path
+
+
+def out_dir_option(required=True):
+    return click.option("--out", "out", type=click.Path(file_okay=False, path_type=Path), required=required,
+                        help="Folder for the outputs (created if missing).")
+
+
+def seed_option():
+    from ..constants import DEFAULT_SEED
+
+    return click.option("--seed", type=int, default=DEFAULT_SEED, show_default=True,
+                        help="Random seed: the same inputs and seed give the same outputs.")
+
+
+def echo(ctx, message: str) -> None:
+    """Print informational output unless ``--quiet``."""
+    root = ctx.find_root()
+    if not (root.obj or {}).get("quiet"):
+        click.echo(message)

@@ -1,0 +1,35 @@
+"""User-facing errors: each carries one line that says what is wrong and what to do.
+
+Stage functions raise these at their public entry points. The CLI prints the message as a single line
+and exits with status 2; it never shows a traceback unless ``--debug`` is given.
+"""
+
+
+class BandgeoError(Exception):
+    """Base class for errors caused by the user's input or parameters (exit status 2)."""
+
+    exit_status = 2
+
+    def __init__(self, message: str):
+        # Keep the message to one line: the CLI prints it verbatim.
+        super().__init__(" ".join(str(message).split()))
+
+
+class InputError(BandgeoError):
+    """An input file (scan, sheet, CSV, review file) is missing, corrupt or unusable."""
+
+
+class ParameterError(BandgeoError):
+    """A parameter value is out of range or of the wrong form."""
+
+
+class SeriesError(BandgeoError):
+    """A series is too short, or otherwise unfit, for a periodicity test."""
+
+
+class ReviewError(BandgeoError):
+    """A review file or review edit is malformed."""
+
+
+class BandgeoWarning(UserWarning):
+    """A soft problem that does not stop the work; recorded in results as a warning."""

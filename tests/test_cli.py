@@ -1,0 +1,54 @@
+"""The command line: version, help, one-line errors, and the vector syntax people actually type."""
+import subprocess
+import sys
+
+import numpy as np
+import pytest
+
+from bandgeo import __version__
+from bandgeo.cli import main
+from bandgeo.cli._common import VECTOR
+
+
+def run(*args):
+    proc = subprocess.run([sys.executable, "-m", "bandgeo.cli", *args], capture_output=True, text=True)
+    return proc.returncode, proc.stdout, proc.stderr
+
+
+def test_version():
+    code, out, err = run("--version")
+    assert code == 0
+    assert out.strip() == f"bandgeo {__version__}"
+
+
+def test_help_lists_commands():
+    code, out, _ = run("--help")
+    assert code == 0
+    assert "Usage" in out and "--quiet" in out
+
+
+def test_unknown_command_is_one_line_exit_2():
+    code, out, err = run("no-such-command")
+    assert code == 2
+    assert err.count("\n") == 1 and "Traceback" not in err
+    assert err.startswith("bandgeo: error:")
+
+
+@pytest.mark.parametrize("text, expected", [
+    ("-0.3,0.1,0.95", [-0.3, 0.1, 0.95]),
+    ("0,0,1", [0, 0, 1]),
+    ("1e-3,-2,3", [1e-3, -2, 3]),
+])
+def test_vector_parsing(text, expected):
+    np.testing.assert_allclose(VECTOR.convert(text, None, None), expected)
+
+
+@pytest.mark.parametrize("text", ["1,2", "a,b,c", "0,0,0", "nan,0,1"])
+def test_vector_rejects(text):
+    import click
+    with pytest.raises(click.exceptions.BadParameter):
+        VECTOR.convert(text, None, None)
+
+
+def test_main_returns_status():
+    assert main(["--version"]) == 0
