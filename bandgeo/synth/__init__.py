@@ -8,4 +8,17 @@
 from .params import SynthParams
 from .laminae import LaminaRecord, simulate_laminae
 
-__all__ = ["SynthParams", "LaminaRecord", "simulate_laminae"]
+
+def __getattr__(name):
+    # simulate/write_specimen pull in scipy.spatial; import them on first use only.
+    if name in ("simulate", "SynthSpecimen"):
+        from . import specimen
+        return getattr(specimen, name)
+    if name in ("write_specimen", "truth_path"):
+        from . import writer
+        return getattr(writer, name)
+    raise AttributeError(f"module 'bandgeo.synth' has no attribute {name!r}")
+
+
+__all__ = ["SynthParams", "LaminaRecord", "simulate_laminae", "simulate", "SynthSpecimen",
+           "write_specimen", "truth_path"]

@@ -1,0 +1,193 @@
+"""A full synthetic specimen: lamina record, mesh in the file's frame and units, colours, and truth."""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.spatial.transform import Rotation
+
+from .. import __version__, constants
+from ..progress import report
+from .geometry import ColumnMesh, build_column, tangent_at
+from .laminae import LaminaRecord, simulate_laminae
+from .params import SynthParams
+
+#: Carbonate tan of a light lamina, RGB.
+BASE_RGB = np.array([200.0, 182.0, 152.0])
+
+
+@dataclass
+class SynthSpecimen:
+    """A forward-model specimen as it would come out of a scanner, with its truth.
+
+    Attributes
+    ----------
+    vertices : (n, 3) float64
+        Vertex positions in the file frame and file units (``params.units``).
+    faces : (m, 3) int64
+        Triangles, counter-clockwise seen from outside.
+    colors : (n, 3) uint8
+        Per-vertex RGB colour.
+    truth : dict
+        Everything the generator knows (schema ``bandgeo.constants.TRUTH_SCHEMA``); written by
+        :func:`bandgeo.synth.write_specimen` as ``<stem>.truth.json``.
+    record : LaminaRecord
+        The lamina record the mesh was built from.
+    file_from_specimen : (4, 4) float
+        Maps specimen-frame millimetres to file coordinates (rotation, translation and scale).
+    """
+
+    vertices: np.ndarray
+    faces: np.ndarray
+    colors: np.ndarray
+    truth: dict
+    record: LaminaRecord
+    file_from_specimen: np.ndarray
+
+    @property
+    def n_vertices(self) -> int:
+        return int(self.vertices.shape[0])
+
+    @property
+    def n_faces(self) -> int:
+        return int(self.faces.shape[0])
+
+
+def _streams(seed: int) -> dict:
+    """Independent generators for each part of the geometry, so that one part never shifts another."""
+    names = ("geometry", "color", "noise", "pose")
+    children = np.random.SeedSequence(seed).spawn(len(names))
+    return {name: np.random.default_rng(child) for name, child in zip(names, children)}
+
+
+def _colors(mesh: ColumnMesh, record: LaminaRecord, gen: np.random.Generator) -> np.ndarray:
+    """Per-vertex colour: light lamina body darkening to an organic film below each boundary."""
+    p = record.params
+    q = mesh.lamina_coord_mm
+    n = q.size
+    h = record.boundary_heights_mm
+    th = record.thickness_mm
+    if p.color_banding:
+        k = np.searchsorted(h, q, side="right") - 1
+        inside = (k >= 0) & (k < th.size)
+        kc = np.clip(k, 0, th.size - 1)
+        frac = np.where(inside, (q - h[kc]) / th[kc], np.mod(q / p.mean_thickness_mm, 1.0))
+        film = np.clip((frac - 0.55) / 0.4, 0.0, 1.0)
+        film = film * film * (3.0 - 2.0 * film)  # smoothstep
+        tone = np.where(inside, 1.0 + 0.1 * np.clip(th[kc] / p.mean_thickness_mm - 1.0, -1.0, 1.0), 1.0)
+        light = (1.0 - 0.38 * film) * tone
+    else:
+        light = np.full(n, 0.92)
+    jitter = gen.integers(-5, 6, size=n, dtype=np.int16)
+    rgb = light[:, None] * BASE_RGB[None, :] + jitter[:, None]
+    return np.clip(np.rint(rgb), 0, 255).astype(np.uint8)
+
+
+def _pose(p: SynthParams, gen: np.random.Generator, length_mm: float):
+    """Rotation (3,3) and translation (3,) mm taking the specimen frame to the file frame."""
+    if p.pose == "identity":
+        return np.eye(3), np.zeros(3)
+    q = gen.standard_normal(4)
+    rot = Rotation.from_quat(q / np.linalg.norm(q)).as_matrix()
+    shift = gen.uniform(-1.0, 1.0, 3) * (length_mm + 10.0 * p.radius_mm)
+    return rot, shift
+
+
+def simulate(params: SynthParams, progress=None) -> SynthSpecimen:
+    """Simulate a specimen: lamina record, mesh, colours, scanner noise, pose and units.
+
+    Parameters
+    ----------
+    params : SynthParams
+        Model parameters; ``params.seed`` fixes every random draw (same seed, same specimen).
+    progress : callable or None
+        ``progress(description, done, total)``.
+
+    Returns
+    -------
+    SynthSpecimen
+    """
+    if not isinstance(params, SynthParams):
+        from ..errors import ParameterError
+        raise ParameterError(f"expected SynthParams but got {type(params).__name__}")
+    report(progress, "simulating laminae", 0, 4)
+    record = simulate_laminae(params)
+    gens = _streams(params.seed)
+    report(progress, "building the column mesh", 1, 4)
+    mesh = build_column(record, gens["geometry"])
+    report(progress, "colour, noise and pose", 2, 4)
+    colors = _colors(mesh, record, gens["color"])
+    verts = mesh.vertices_mm
+    if params.scanner_noise_mm > 0:
+        verts = verts + gens["noise"].normal(0.0, params.scanner_noise_mm, verts.shape)
+    rot, shift = _pose(params, gens["pose"], mesh.info["column_length_mm"])
+    mm_per_unit = constants.UNIT_TO_MM[params.units]
+    file_verts = (verts @ rot.T + shift) / mm_per_unit
+    file_from_spec = np.eye(4)
+    file_from_spec[:3, :3] = rot / mm_per_unit
+    file_from_spec[:3, 3] = shift / mm_per_unit
+    truth = _truth(params, record, mesh, rot, shift, mm_per_unit, file_from_spec, file_verts.shape[0])
+    report(progress, "specimen ready", 4, 4)
+    return SynthSpecimen(file_verts, mesh.faces, colors, truth, record, file_from_spec)
+
+
+def _truth(p, record, mesh, rot, shift, mm_per_unit, file_from_spec, n_vertices) -> dict:
+    h = record.boundary_heights_mm
+    centres, normals = tangent_at(record, h)
+    to_file = lambda x: (x @ rot.T + shift) / mm_per_unit  # noqa: E731
+    dirs = record.growth_directions()
+    mean_dir = (dirs * record.thickness_mm[:, None]).sum(axis=0)
+    mean_dir /= np.linalg.norm(mean_dir)
+    az_u = np.radians(p.sway_azimuth_deg)
+    sway_dir = np.array([np.sin(az_u), np.cos(az_u), 0.0])
+    years = float(p.years)
+    return {
+        "schema": constants.TRUTH_SCHEMA,
+        "generator": f"bandgeo.synth {__version__}",
+        "seed": int(p.seed),
+        "params": p.to_dict(),
+        "units": p.units,
+        "mm_per_unit": mm_per_unit,
+        "frames": {
+            "note": "specimen frame: mm, x east, y north, z paleo-up, origin on the axis at the base; "
+                    "file frame: the mesh file's coordinates and units",
+            "file_from_specimen": file_from_spec,
+            "specimen_from_file": np.linalg.inv(file_from_spec),
+            "paleo_up_file": rot @ np.array([0.0, 0.0, 1.0]),
+            "north_file": rot @ np.array([0.0, 1.0, 0.0]),
+            "east_file": rot @ np.array([1.0, 0.0, 0.0]),
+            "growth_direction_file": rot @ mean_dir,
+            "growth_direction_specimen": mean_dir,
+            "sway_plane_direction_file": rot @ sway_dir,
+            "sway_plane_azimuth_deg": float(p.sway_azimuth_deg % 360.0),
+            "base_centre_file": to_file(np.zeros(3)),
+        },
+        "laminae": {
+            "n_recorded": record.n_laminae,
+            "n_nominal": int(p.n_nominal),
+            "n_missing": record.missing_laminae,
+            "years": years,
+            "days_per_year": float(p.days_per_year),
+            "laminae_per_year_nominal": p.laminae_per_year_nominal,
+            "recorded_laminae_per_year": record.recorded_laminae_per_year,
+            "mean_thickness_mm_expected": float(p.mean_thickness_mm),
+            "mean_thickness_mm_recorded": float(record.thickness_mm.mean()),
+            "thickness_mm": record.thickness_mm,
+            "day_index": record.day_index,
+            "inclination_deg": record.inclination_deg,
+            "azimuth_deg": record.azimuth_deg,
+            "sway_deg": record.sway_deg,
+            "hiatus_after": np.flatnonzero(record.hiatus_after),
+            "hiatuses": record.hiatus_positions(),
+        },
+        "boundaries": {
+            "note": "boundary i: arc length along the centreline where it meets the axis at the wall; "
+                    "centre and unit normal (pointing up the column) of its plane on the wall, file frame",
+            "heights_mm": h,
+            "centres_file": to_file(centres),
+            "normals_file": normals @ rot.T,
+        },
+        "mesh": dict(mesh.info, n_vertices=int(n_vertices), n_faces=int(mesh.faces.shape[0]),
+                     sampling=p.sampling, base=p.base, top=p.top,
+                     closed=bool(p.base == "cut" and p.top != "open" and p.holes == 0)),
+    }
