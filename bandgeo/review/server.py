@@ -1,0 +1,386 @@
+"""The local review web server: loopback only, a token on every request, fixed files only.
+
+``serve`` starts a standard-library ``ThreadingHTTPServer`` in a background thread and returns it;
+``run`` serves until Ctrl-C. After each save the analysis downstream of the segmentation is re-run in
+a worker thread (``bandgeo.pipeline.rerun`` unless another callable is given) and the page polls
+``/api/status``; a failed re-run keeps the last good result and shows the error line.
+"""
+from __future__ import annotations
+
+import hmac
+import json
+import secrets
+import signal
+import socket
+import sys
+import threading
+import traceback
+import urllib.parse
+from http import HTTPStatus
+from http.server import BaseHTTPRequestHandler, ThreadingHTTPServer
+from importlib import resources
+from pathlib import Path
+
+from ..errors import BandgeoError, ParameterError, ReviewError
+from .data import FolderData
+from .edits import ReviewSession, utc_now
+from .pagestate import page_state, result_summary
+from .store import read_review, save_review
+
+LOOPBACK = ("127.0.0.1", "::1", "localhost")
+MAX_BODY = 16 * 1024
+COOKIE = "bandgeo_review"
+STATIC = {"/": ("index.html", "text/html; charset=utf-8"),
+          "/static/review.js": ("review.js", "text/javascript; charset=utf-8"),
+          "/static/review.css": ("review.css", "text/css; charset=utf-8")}
+CSP = ("default-src 'none'; script-src 'self'; style-src 'self'; img-src 'self' data: blob:; "
+       "connect-src 'self'; base-uri 'none'; form-action 'none'; frame-ancestors 'none'")
+
+
+def _default_rerun(folder):
+    from ..pipeline import rerun
+
+    return rerun(folder)
+
+
+class ReviewApp:
+    """State shared by the request threads: folder data, the edit session and the re-run worker."""
+
+    def __init__(self, folder, token, rerun=None, segmentation=None):
+        self.folder = Path(folder)
+        self.token = token
+        self.rerun = rerun or _default_rerun
+        self.data = FolderData(self.folder, segmentation=segmentation)
+        review = read_review(self.folder) or {}
+        base = [(b.id, b.height_mm) for b in self.data.segmentation.boundaries]
+        self.session = ReviewSession(base, self.data.span, review.get("edits", []))
+        self.saved_utc = review.get("updated_utc")
+        self._lock = threading.Lock()
+        self._worker: threading.Thread | None = None
+        self._pending = False
+        self.last_result = result_summary(self.data.result())
+        self.status = {"state": "idle", "error": None, "started_utc": None, "finished_utc": None,
+                       "runs": 0}
+
+    def state(self) -> dict:
+        with self._lock:
+            status = dict(self.status)
+            summary = self.last_result
+        return page_state(self, status, summary)
+
+    def save(self) -> dict:
+        edits = self.session.edits
+        state = self.session.state
+        review = {"specimen_id": self.data.specimen_id, "scan_sha256": self.data.scan_sha256,
+                  "edits": edits,
+                  "notes": "\n".join(n["text"] for n in state.notes),
+                  "stretches": [[m["s0_mm"], m["s1_mm"], m["kind"], m["note"]]
+                                for m in sorted(state.marks.values(), key=lambda m: m["s0_mm"])]}
+        written = save_review(self.folder, review)
+        self.session.mark_saved(edits)
+        self.saved_utc = written["updated_utc"]
+        self.schedule_rerun()
+        return written
+
+    def schedule_rerun(self) -> None:
+        """Start the re-run worker, or ask the running one to go again when it finishes."""
+        with self._lock:
+            if self._worker is not None and self._worker.is_alive():
+                self._pending = True
+                return
+            self._worker = threading.Thread(target=self._work, name="bandgeo-review-rerun", daemon=True)
+            self.status.update(state="running", started_utc=utc_now(), error=None)
+            self._worker.start()
+
+    def _work(self) -> None:
+        while True:
+            try:
+                state = self.rerun(self.folder)
+                summary = result_summary(getattr(state, "result", None), getattr(state, "band_table", None))
+                with self._lock:
+                    self.last_result = summary or self.last_result
+                    self.status.update(state="done", error=None)
+            except Exception as exc:  # keep the last good result and show the error line
+                line = str(exc) if isinstance(exc, BandgeoError) else f"{type(exc).__name__}: {exc}"
+                with self._lock:
+                    self.status.update(state="failed", error=" ".join(line.split())[:500])
+                if not isinstance(exc, BandgeoError):
+                    traceback.print_exc(file=sys.stderr)
+            with self._lock:
+                self.status.update(finished_utc=utc_now(), runs=self.status["runs"] + 1)
+                if not self._pending:
+                    self._worker = None
+                    return
+                self._pending = False
+                self.status.update(state="running", started_utc=utc_now())
+
+    def wait(self, timeout=None) -> None:
+        """Block until the re-run worker (if any) is done."""
+        worker = self._worker
+        if worker is not None:
+            worker.join(timeout)
+
+
+class Handler(BaseHTTPRequestHandler):
+    """One request: check host and token, then a fixed route. Never builds a path from the URL."""
+
+    server_version = "bandgeo-review"
+    sys_version = ""
+    timeout = 30  # seconds a client may take to send its request
+    app: ReviewApp = None  # set per server
+
+    def log_message(self, fmt, *args):  # quiet: the CLI prints the URL and errors only
+        pass
+
+    # -- helpers -----------------------------------------------------------------------------------
+    def _send(self, status, body: bytes, ctype="application/json; charset=utf-8", extra=None):
+        self.send_response(status)
+        self.send_header("Content-Type", ctype)
+        self.send_header("Content-Length", str(len(body)))
+        self.send_header("Cache-Control", "no-store")
+        self.send_header("X-Content-Type-Options", "nosniff")
+        self.send_header("Referrer-Policy", "no-referrer")
+        self.send_header("Content-Security-Policy", CSP)
+        for key, value in (extra or {}).items():
+            self.send_header(key, value)
+        self.end_headers()
+        if self.command != "HEAD":
+            self.wfile.write(body)
+
+    def _json(self, status, obj, extra=None):
+        self._send(status, json.dumps(obj, allow_nan=False).encode("utf-8"), extra=extra)
+
+    def _error(self, status, message):
+        self._json(status, {"error": message})
+
+    def _authorised(self, query) -> bool:
+        token = self.app.token
+        offered = [self.headers.get("X-Review-Token", ""), *query.get("token", [])]
+        cookie = self.headers.get("Cookie", "")
+        for part in cookie.split(";"):
+            name, _, value = part.strip().partition("=")
+            if name == COOKIE:
+                offered.append(value)
+        return any(hmac.compare_digest(str(o).encode(), token.encode()) for o in offered if o)
+
+    def _host_ok(self) -> bool:
+        host = (self.headers.get("Host") or "").strip().lower()
+        port = self.server.server_address[1]
+        return host in {f"127.0.0.1:{port}", f"localhost:{port}", f"[::1]:{port}"}
+
+    def _gate(self):
+        """Parse the URL and check host and token; return (path, query) or None after an error."""
+        raw = self.path
+        parsed = urllib.parse.urlsplit(raw)
+        query = urllib.parse.parse_qs(parsed.query)
+        if not self._host_ok():
+            self._error(HTTPStatus.FORBIDDEN, "wrong Host header; open the address the command printed")
+            return None
+        if not self._authorised(query):
+            self._error(HTTPStatus.FORBIDDEN, "missing or wrong token; open the address the command printed")
+            return None
+        return parsed.path, query
+
+    def _body(self):
+        if "Transfer-Encoding" in self.headers:
+            self._error(HTTPStatus.LENGTH_REQUIRED, "send the body with a Content-Length, not chunked")
+            return None
+        length = self.headers.get("Content-Length")
+        if length is None:
+            length = "0"
+        try:
+            n = int(length)
+            if n < 0:
+                raise ValueError
+        except ValueError:
+            self._error(HTTPStatus.BAD_REQUEST, f"bad Content-Length {length!r}")
+            return None
+        if n > MAX_BODY:
+            self.close_connection = True
+            self._error(HTTPStatus.REQUEST_ENTITY_TOO_LARGE,
+                        f"request body of {n} bytes is over the {MAX_BODY}-byte limit; send one edit at a time")
+            return None
+        data = self.rfile.read(n) if n else b""
+        if not data:
+            return {}
+        try:
+            body = json.loads(data.decode("utf-8"))
+        except (UnicodeDecodeError, json.JSONDecodeError) as exc:
+            self._error(HTTPStatus.BAD_REQUEST, f"the request body is not valid JSON ({exc}); send a JSON object")
+            return None
+        if not isinstance(body, dict):
+            self._error(HTTPStatus.BAD_REQUEST, "expected a JSON object as the request body")
+            return None
+        return body
+
+    # -- methods -----------------------------------------------------------------------------------
+    def do_GET(self):
+        gate = self._gate()
+        if gate is None:
+            return
+        path, query = gate
+        try:
+            if path in STATIC:
+                name, ctype = STATIC[path]
+                body = resources.files("bandgeo.review").joinpath("static", name).read_bytes()
+                extra = {}
+                if path == "/":
+                    extra["Set-Cookie"] = f"{COOKIE}={self.app.token}; Path=/; HttpOnly; SameSite=Strict"
+                self._send(HTTPStatus.OK, body, ctype, extra)
+            elif path == "/api/state":
+                self._json(HTTPStatus.OK, self.app.state())
+            elif path == "/api/status":
+                self._json(HTTPStatus.OK, self.app.state()["rerun"])
+            elif path == "/api/mesh":
+                self._json(HTTPStatus.OK, self.app.data.mesh_payload())
+            elif path == "/api/surface":
+                self._json(HTTPStatus.OK, self.app.data.surface_payload())
+            else:
+                self._error(HTTPStatus.NOT_FOUND, "no such page")
+        except BandgeoError as exc:
+            self._error(HTTPStatus.INTERNAL_SERVER_ERROR, str(exc))
+
+    do_HEAD = do_GET
+
+    def do_POST(self):
+        gate = self._gate()
+        if gate is None:
+            return
+        path, _ = gate
+        if path not in ("/api/edit", "/api/undo", "/api/redo", "/api/save"):
+            self._error(HTTPStatus.NOT_FOUND, "no such action")
+            return
+        body = self._body()
+        if body is None:
+            return
+        app = self.app
+        try:
+            if path == "/api/edit":
+                edit = body.get("edit")
+                done = app.session.push(edit)
+                self._json(HTTPStatus.OK, {"edit": done, "state": app.state()})
+            elif path in ("/api/undo", "/api/redo"):
+                changed = app.session.undo() if path == "/api/undo" else app.session.redo()
+                self._json(HTTPStatus.OK, {"changed": changed, "state": app.state()})
+            else:
+                written = app.save()
+                self._json(HTTPStatus.OK, {"saved_utc": written["updated_utc"],
+                                           "n_edits": len(written["edits"]), "state": app.state()})
+        except ReviewError as exc:
+            self._error(HTTPStatus.BAD_REQUEST, str(exc))
+        except BandgeoError as exc:
+            self._error(HTTPStatus.INTERNAL_SERVER_ERROR, str(exc))
+
+    def _refuse(self):
+        self._error(HTTPStatus.METHOD_NOT_ALLOWED, "only GET and POST are used here")
+
+    do_PUT = do_DELETE = do_PATCH = do_OPTIONS = _refuse
+
+
+class ReviewServer(ThreadingHTTPServer):
+    """The HTTP server plus the app and the page address (``url``, with its token)."""
+
+    daemon_threads = True
+    allow_reuse_address = False
+    request_queue_size = 16
+
+    def __init__(self, address, app: ReviewApp):
+        handler = type("BoundHandler", (Handler,), {"app": app})
+        super().__init__(address, handler)
+        self.app = app
+        host, port = self.server_address[:2]
+        shown = f"[{host}]" if ":" in host else host
+        self.url = f"http://{shown}:{port}/?token={app.token}"
+        self.thread: threading.Thread | None = None
+
+    def stop(self, wait_rerun: float = 30.0) -> None:
+        """Stop serving, close the socket, and let a running re-run finish (up to ``wait_rerun`` s)."""
+        self.shutdown()
+        self.server_close()
+        self.app.wait(wait_rerun)
+        if self.thread is not None:
+            self.thread.join(5)
+
+
+class ReviewServer6(ReviewServer):
+    address_family = socket.AF_INET6
+
+
+def serve(folder, host="127.0.0.1", port=0, open_browser=True, token=None, *, rerun=None,
+          segmentation=None) -> ReviewServer:
+    """Serve the review page of an analysed folder from a background thread.
+
+    Parameters
+    ----------
+    folder : path
+        The analysed specimen folder (``bandgeo analyze`` output).
+    host : str
+        Loopback only: "127.0.0.1" (default), "::1" or "localhost".
+    port : int
+        0 picks a free port.
+    open_browser : bool
+        Open the page in the default browser.
+    token : str, optional
+        The access token (default: a fresh random one).
+    rerun : callable, optional
+        ``rerun(folder) -> AnalysisState`` called after each save (default ``bandgeo.pipeline.rerun``).
+    segmentation : Segmentation, optional
+        Use this instead of loading ``segmentation.json``.
+
+    Returns
+    -------
+    ReviewServer
+        Running; ``.url`` is the page address with its token, ``.stop()`` shuts it down.
+    """
+    if host not in LOOPBACK:
+        raise ParameterError(f"the review page binds the loopback address only; expected one of "
+                             f"{', '.join(LOOPBACK)} but got {host!r}")
+    if not isinstance(port, int) or not 0 <= port <= 65535:
+        raise ParameterError(f"expected a port between 0 and 65535 but got {port!r}")
+    folder = Path(folder)
+    if not folder.is_dir():
+        raise ReviewError(f"{folder} is not a folder; give the folder written by 'bandgeo analyze'")
+    token = token or secrets.token_urlsafe(24)
+    app = ReviewApp(folder, token, rerun=rerun, segmentation=segmentation)
+    address = "127.0.0.1" if host == "localhost" else host
+    cls = ReviewServer6 if address == "::1" else ReviewServer
+    try:
+        server = cls((address, port), app)
+    except OSError as exc:
+        raise ParameterError(f"cannot listen on {address}:{port} ({exc.strerror}); pick another --port "
+                             f"or leave it out for a free one") from None
+    server.thread = threading.Thread(target=server.serve_forever, kwargs={"poll_interval": 0.2},
+                                     name="bandgeo-review-http", daemon=True)
+    server.thread.start()
+    if open_browser:
+        import webbrowser
+
+        threading.Thread(target=webbrowser.open, args=(server.url,), daemon=True).start()
+    return server
+
+
+def run(folder, host="127.0.0.1", port=0, open_browser=True, token=None, echo=print, **kwargs) -> int:
+    """Serve until Ctrl-C (or SIGTERM), then stop cleanly; returns 0."""
+    server = serve(folder, host=host, port=port, open_browser=open_browser, token=token, **kwargs)
+    echo(f"Review page for {server.app.data.specimen_id}: {server.url}")
+    echo("Press Ctrl-C to stop.")
+    stop = threading.Event()
+
+    def _term(signum, frame):
+        stop.set()
+
+    previous = None
+    if threading.current_thread() is threading.main_thread():
+        previous = signal.signal(signal.SIGTERM, _term)
+    try:
+        while not stop.wait(0.5):
+            pass
+    except KeyboardInterrupt:
+        pass
+    finally:
+        if previous is not None:
+            signal.signal(signal.SIGTERM, previous)
+        server.stop()
+    unsaved = " (unsaved edits were discarded)" if server.app.session.dirty else ""
+    echo(f"Review server stopped{unsaved}; saved edits are in {server.app.folder / 'review.json'}.")
+    return 0

@@ -1,0 +1,108 @@
+"""Small stand-ins for a segmentation and an analysed folder, used by the review tests.
+
+They follow the fields documented in DEVELOPERS.md (Boundary, Centreline, Segmentation) so that the
+review code is tested without the segmenter; the browser test uses the real pipeline when present.
+"""
+from __future__ import annotations
+
+import dataclasses
+import json
+from pathlib import Path
+
+import numpy as np
+
+from bandgeo.atomic import write_json
+
+
+@dataclasses.dataclass
+class FakeBoundary:
+    id: int
+    height_mm: float
+    center_mm: np.ndarray
+    normal: np.ndarray
+    rms_mm: float = 0.01
+    coverage: float = 1.0
+    confidence: float = 0.8
+    origin: str = "auto"
+
+    @classmethod
+    def from_height(cls, height_mm, axis, id, origin="review"):
+        point, tangent = axis.at(height_mm)
+        return cls(int(id), float(height_mm), point, tangent, float("nan"), 0.0, 1.0, origin)
+
+
+@dataclasses.dataclass
+class FakeCentreline:
+    heights_mm: np.ndarray
+    points_mm: np.ndarray
+    tangents: np.ndarray
+
+    def at(self, s):
+        p = np.array([np.interp(s, self.heights_mm, self.points_mm[:, j]) for j in range(3)])
+        t = np.array([np.interp(s, self.heights_mm, self.tangents[:, j]) for j in range(3)])
+        return p, t / np.linalg.norm(t)
+
+
+@dataclasses.dataclass
+class FakeSegmentation:
+    boundaries: list
+    axis: FakeCentreline
+    vertex_band: np.ndarray
+    resolution: dict = dataclasses.field(default_factory=dict)
+    warnings: list = dataclasses.field(default_factory=list)
+    params: dict = dataclasses.field(default_factory=dict)
+
+    def with_boundaries(self, boundaries, specimen):
+        boundaries = sorted(boundaries, key=lambda b: b.height_mm)
+        z = np.asarray(specimen.vertices_mm)[:, 2]
+        heights = np.array([b.height_mm for b in boundaries])
+        band = np.searchsorted(heights, z).astype(np.int32) - 1
+        band[(z < heights[0]) | (z >= heights[-1])] = -1 if len(heights) else -1
+        return dataclasses.replace(self, boundaries=list(boundaries), vertex_band=band)
+
+
+@dataclasses.dataclass
+class FakeSpecimen:
+    vertices_mm: np.ndarray
+    faces: np.ndarray
+
+
+def cylinder(radius=10.0, height=20.0, n_az=120, n_z=160, grooves=(), depth=0.15, width=0.12):
+    """A grooved cylinder about the z axis (mm): vertices (n,3), faces (m,3), colours (n,3)."""
+    az = np.linspace(0, 2 * np.pi, n_az, endpoint=False)
+    z = np.linspace(0, height, n_z)
+    A, Z = np.meshgrid(az, z)
+    r = radius - depth * sum(np.exp(-0.5 * ((Z - g) / width) ** 2) for g in grooves) if len(grooves) else \
+        np.full_like(Z, radius)
+    v = np.stack([r * np.sin(A), r * np.cos(A), Z], axis=-1).reshape(-1, 3)
+    i = np.arange(n_z - 1)[:, None] * n_az
+    j = np.arange(n_az)[None, :]
+    a, b = i + j, i + (j + 1) % n_az
+    c, d = a + n_az, b + n_az
+    faces = np.concatenate([np.stack([a, b, d], -1).reshape(-1, 3), np.stack([a, d, c], -1).reshape(-1, 3)])
+    shade = (200 - 120 * (r.reshape(-1) < radius - depth / 2)).astype(np.uint8)
+    colors = np.repeat(shade[:, None], 3, axis=1)
+    return v, faces.astype(np.int64), colors
+
+
+def make_folder(folder, n_bounds=12, spacing=1.5, specimen_id="KRB-12"):
+    """Write a fixture analysed folder (specimen.npz, result.json) and return (folder, segmentation, specimen)."""
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    heights = 1.0 + spacing * np.arange(n_bounds)
+    v, f, col = cylinder(grooves=heights, height=heights[-1] + 1.0)
+    hz = np.linspace(0, heights[-1] + 1.0, 50)
+    axis = FakeCentreline(hz, np.stack([0 * hz, 0 * hz, hz], 1), np.tile([0.0, 0.0, 1.0], (hz.size, 1)))
+    bounds = [FakeBoundary(int(k), float(h), np.array([0, 0, h]), np.array([0, 0, 1.0]),
+                           confidence=0.5 + 0.04 * k) for k, h in enumerate(heights)]
+    specimen = FakeSpecimen(v, f)
+    seg = FakeSegmentation(bounds, axis, np.zeros(len(v), np.int32)).with_boundaries(bounds, specimen)
+    meta = np.frombuffer(json.dumps({"specimen_id": specimen_id, "scan_sha256": "0" * 64}).encode(), np.uint8)
+    np.savez(folder / "specimen.npz", vertices_mm=v.astype(np.float32), faces=f.astype(np.int32),
+             colors=col, vertex_band=seg.vertex_band, meta_json=meta)
+    write_json(folder / "result.json", {
+        "schema": "bandgeo.result/1",
+        "days_per_year": {"estimate": 401.5, "ci95": [388.0, 415.0], "significant": True,
+                          "method": "fixture"},
+        "bands": {"count": n_bounds - 1, "mean_thickness_mm": spacing}})
+    return folder, seg, specimen
