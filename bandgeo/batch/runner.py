@@ -31,15 +31,16 @@ def default_analyze() -> Callable:
 
 
 def job_key(scan_sha256: str, sheet_sha256: Optional[str], sheet_fields: dict, params: dict,
-            seed: int, analyzer: str) -> str:
+            seed: int) -> str:
     """Hash of everything that determines a specimen's result (hex SHA-256).
 
     The key covers the scan's bytes, the sheet's bytes, the manifest's sheet fields, every analysis
-    parameter, the seed and the analysing function's name. A specimen whose folder holds a
-    result.json written under the same key is skipped on a re-run.
+    parameter and the seed. A specimen whose folder holds a result.json written under the same key
+    is skipped on a re-run. (The analysing function and bandgeo's version are recorded beside it in
+    ``batch_job.json`` but are not part of the key.)
     """
     payload = {"scan_sha256": scan_sha256, "sheet_sha256": sheet_sha256, "sheet": sheet_fields,
-               "params": params, "seed": int(seed), "analyzer": analyzer}
+               "params": params, "seed": int(seed)}
     text = json.dumps(payload, sort_keys=True, default=str)
     return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
@@ -132,7 +133,7 @@ def _make_tasks(jobs: Sequence[SpecimenJob], out_dir: Path, params: dict, seed: 
                       "sheet_path": kwargs["sheet"], "folder": os.fspath(out_dir / job.specimen_id),
                       "scan_sha256": scan_sha, "sheet": fields, "params": params, "seed": int(seed),
                       "analyzer": analyzer, "threads": threads, "kwargs": kwargs,
-                      "job_key": job_key(scan_sha, sheet_sha, fields, params, seed, analyzer)})
+                      "job_key": job_key(scan_sha, sheet_sha, fields, params, seed)})
     return tasks
 
 

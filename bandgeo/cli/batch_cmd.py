@@ -1,0 +1,49 @@
+"""``bandgeo batch``: analyse many specimens (local processes or a Dask cluster) and compile them."""
+from __future__ import annotations
+
+import click
+
+from ._common import echo, existing_path, out_dir_option, seed_option
+
+
+@click.command("batch")
+@click.argument("specimens", callback=existing_path, metavar="SPECIMENS")
+@out_dir_option()
+@click.option("--workers", type=click.IntRange(min=1), default=None,
+              help="Specimens analysed at once (default: one per CPU core locally; no limit on a cluster).")
+@click.option("--scheduler", metavar="ADDRESS", default=None,
+              help="Dask scheduler address (e.g. tcp://10.0.0.5:8786); the cluster runs the specimens. "
+                   "The --out folder must be on a file system every worker sees.")
+@seed_option()
+@click.option("--no-report", is_flag=True, help="Skip each specimen's HTML/PDF report (faster).")
+@click.option("--no-compile", is_flag=True, help="Do not write the compilation across specimens.")
+@click.pass_context
+def batch(ctx, specimens, out, workers, scheduler, seed, no_report, no_compile):
+    """Analyse every specimen in SPECIMENS and compile the results.
+
+    SPECIMENS is a folder of scans (.ply .obj .stl .off .glb, any case; a <name>.sheet.toml beside a scan
+    is its sheet) or a CSV with a 'scan' column and optional sheet columns (specimen_id, units, up,
+    north, strike_deg, dip_deg, age_ma, age_err_ma, horizon, locality).
+
+    Re-running with the same inputs, parameters and seed skips the specimens already analysed; a
+    failed specimen is listed with its error and the rest go on.
+    """
+    from ..batch import compile_results, read_manifest, run_batch
+    from ..progress import bar
+
+    jobs = read_manifest(specimens)
+    params = {"report": False} if no_report else {}
+    echo(ctx, f"{len(jobs)} specimens from {specimens} -> {out}")
+    with bar("batch") as cb:
+        summary = run_batch(jobs, out, workers=workers, scheduler=scheduler, params=params, seed=seed,
+                            progress=cb)
+    echo(ctx, summary.table())
+    echo(ctx, f"summary: {out / 'batch_summary.json'} and {out / 'batch_summary.csv'}")
+    if not no_compile and (summary.n_done + summary.n_skipped) > 0:
+        comp = compile_results(out)
+        if comp.flagged:
+            echo(ctx, f"disagree with their horizon (p < 0.01): {', '.join(comp.flagged)}")
+        echo(ctx, f"compilation: {comp.files['csv']}, {comp.files['html']}, {comp.files.get('svg')}, "
+                  f"{comp.files.get('pdf')}")
+    if summary.n_failed:
+        echo(ctx, f"{summary.n_failed} specimen(s) failed; see the errors above (the others are complete)")
