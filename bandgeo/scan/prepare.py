@@ -1,0 +1,240 @@
+"""Turn a raw ``Scan`` into an oriented ``Specimen``: clean, scale to mm, orient, correct bedding, place origin."""
+from __future__ import annotations
+
+import numpy as np
+
+from ..constants import UNIT_TO_MM
+from ..errors import InputError, ParameterError
+from ..progress import report
+from .clean import clean_mesh
+from .orient import bedding_rotation, estimate_up, frame_rows, unit
+from .types import Scan, ScaleReference, Specimen, SpecimenSheet
+
+#: Faces needed for a mesh to be worth orienting at all.
+MIN_FACES = 20
+#: Plausible overall size of a hand specimen, mm (USERS.md: columns 1-10 cm wide, 5-50 cm tall).
+PLAUSIBLE_MM = (5.0, 2000.0)
+TYPICAL_MM = (20.0, 1000.0)
+
+
+def _h(matrix3=None, translation=None, scale=None) -> np.ndarray:
+    out = np.eye(4)
+    if matrix3 is not None:
+        out[:3, :3] = matrix3
+    if scale is not None:
+        out[:3, :3] *= scale
+    if translation is not None:
+        out[:3, 3] = translation
+    return out
+
+
+def _as_scale(scale, where: str):
+    if scale is None or isinstance(scale, ScaleReference):
+        return scale
+    if isinstance(scale, (tuple, list)) and len(scale) == 3:
+        ref = ScaleReference(p1=np.asarray(scale[0], float), p2=np.asarray(scale[1], float), length=float(scale[2]))
+        if ref.p1.shape != (3,) or ref.p2.shape != (3,) or not ref.length > 0 or ref.file_distance() == 0:
+            raise ParameterError(f"{where} must be (point1, point2, length) with two distinct 3-D points and a "
+                                 f"positive length but got {scale!r}")
+        return ref
+    try:
+        factor = float(scale)
+    except (TypeError, ValueError):
+        factor = float("nan")
+    if not (np.isfinite(factor) and factor > 0):
+        raise ParameterError(f"{where} must be a positive factor or (point1, point2, length) but got {scale!r}")
+    return factor
+
+
+def _guess_units(largest_file: float):
+    """The unit that makes the specimen a plausible size, preferring mm, then cm, m, um, in."""
+    for name in ("mm", "cm", "m", "um", "in"):
+        size = largest_file * UNIT_TO_MM[name]
+        if TYPICAL_MM[0] <= size <= TYPICAL_MM[1]:
+            return name
+    return "mm"
+
+
+def _fmt_mm(value_mm: float) -> str:
+    if value_mm >= 1000:
+        return f"{value_mm / 1000:.3g} m"
+    if value_mm >= 10:
+        return f"{value_mm / 10:.3g} cm"
+    return f"{value_mm:.3g} mm"
+
+
+def prepare(scan: Scan, *, units=None, up=None, north=None, strike_dip=None, sheet=None, scale=None,
+            progress=None) -> Specimen:
+    """Clean, scale, orient and bedding-correct a scan into the specimen frame.
+
+    Parameters
+    ----------
+    scan : Scan
+        As returned by :func:`bandgeo.scan.load_scan`.
+    units : {'um', 'mm', 'cm', 'm', 'in'} or None
+        Unit of the scan's coordinates (of the reference length when ``scale`` is a reference). Else the
+        sheet's, else a ``units`` comment in the file, else guessed from the size (with a warning).
+    up, north : (3,) array-like or None
+        Way-up (the field vertical marked on the specimen) and north mark, scan frame. ``up`` falls back
+        to the sheet, then to an estimate from the shape (long axis, domed top) with a confidence.
+    strike_dip : (float, float) or None
+        Bedding strike and dip, degrees, right-hand rule; needs the field up and north.
+    sheet : SpecimenSheet, path or None
+        Specimen sheet; explicit arguments win over it.
+    scale : float, ScaleReference, (p1, p2, length) or None
+        Factor taking file coordinates to ``units``, or a known length between two scan points.
+    progress : callable or None
+        ``progress(description, done, total)``.
+
+    Returns
+    -------
+    Specimen
+    """
+    if not isinstance(scan, Scan):
+        raise ParameterError(f"expected a Scan from bandgeo.scan.load_scan but got {type(scan).__name__}")
+    if sheet is not None and not isinstance(sheet, SpecimenSheet):
+        from .sheet import read_sheet
+        sheet = read_sheet(sheet)
+    warnings: list = []
+    clean = clean_mesh(scan.vertices, scan.faces, progress=progress)
+    v, faces = clean.vertices, clean.faces
+    if len(faces) < MIN_FACES:
+        raise InputError(f"'{scan.path}': only {len(faces)} usable faces (a specimen scan needs at least "
+                         f"{MIN_FACES}); export the full mesh, not a fragment")
+    spread = np.sqrt(np.maximum(np.linalg.eigvalsh(np.cov((v - v.mean(axis=0)).T)), 0.0))
+    if spread[0] <= 1e-4 * spread[2]:
+        raise InputError(f"'{scan.path}': the mesh is flat (thickness {spread[0] / spread[2]:.1e} of its width); "
+                         "a specimen scan must be 3-D, export the whole column rather than one face")
+    if clean.counts["pieces_removed"]:
+        fr = clean.stats["piece_area_fractions"]
+        warnings.append(f"kept the largest of {clean.stats['pieces']} pieces ({100 * fr[0]:.1f}% of the area); "
+                        f"removed {clean.counts['pieces_removed']} smaller pieces "
+                        f"({clean.counts['faces_in_removed_pieces']} faces)")
+        if len(fr) > 1 and fr[1] > 0.2 * fr[0]:
+            warnings.append(f"the second piece holds {100 * fr[1]:.1f}% of the area: the scan may hold more "
+                            "than one specimen or a broken one; check it")
+    if clean.stats["non_orientable_faces"]:
+        warnings.append(f"{clean.stats['non_orientable_faces']} faces could not be wound consistently "
+                        "(non-orientable patch); normals there may point inward")
+    report(progress, "orienting", 0, 1)
+    # ---- way-up and north (scan frame)
+    estimate = estimate_up(v, faces, clean.boundary_edges)
+    if up is not None:
+        field_up, up_source, up_conf = unit(up, "up"), "cli", 1.0
+    elif sheet is not None and sheet.up is not None:
+        field_up, up_source, up_conf = unit(sheet.up, "sheet up"), "sheet", 1.0
+    else:
+        field_up, up_source, up_conf = estimate.up, "estimated", estimate.confidence
+        warnings.extend(estimate.warnings)
+    if up_source != "estimated" and estimate.confidence > 0.7 and np.dot(field_up, estimate.up) < 0:
+        angle = np.degrees(np.arccos(np.clip(np.dot(field_up, estimate.up), -1, 1)))
+        warnings.append(f"the given up vector is {angle:.0f} deg from the growth direction estimated from the "
+                        "shape (domed top); check that it does not point to the base")
+    if north is None and sheet is not None and sheet.north is not None:
+        north = sheet.north
+    rows, north_known = frame_rows(field_up, north)
+    # ---- bedding
+    if strike_dip is None and sheet is not None and sheet.strike_deg is not None:
+        strike_dip = (sheet.strike_deg, sheet.dip_deg)
+    r_bed = np.eye(3)
+    if strike_dip is not None:
+        try:
+            strike, dip = (float(x) for x in strike_dip)
+        except (TypeError, ValueError):
+            raise ParameterError(f"strike/dip must be two numbers like 40,25 but got {strike_dip!r}")
+        if not north_known or up_source == "estimated":
+            raise ParameterError("bedding correction needs the specimen's field vertical and north; give --up and "
+                                 "--north (or up and north in the sheet), or drop the strike/dip")
+        r_bed = bedding_rotation(strike, dip)
+    rot = r_bed @ rows
+    # ---- units and scale
+    if units is not None:
+        units_name, units_source = str(units).strip().lower(), "cli"
+        if units_name not in UNIT_TO_MM:
+            raise ParameterError(f"units must be one of {', '.join(UNIT_TO_MM)} but got {units!r}")
+    elif sheet is not None and sheet.units is not None:
+        units_name, units_source = sheet.units, "sheet"
+    else:
+        units_name, units_source = None, None
+    scale_ref = _as_scale(scale, "scale") if scale is not None else \
+        (sheet.scale if sheet is not None and sheet.scale is not None else None)
+    factor, scale_note = 1.0, None
+    if isinstance(scale_ref, ScaleReference):
+        factor = scale_ref.length / scale_ref.file_distance()
+        scale_note = f"reference length {scale_ref.length:g} {units_name or 'mm'} over {scale_ref.file_distance():g} file units"
+    elif scale_ref is not None:
+        factor = float(scale_ref)
+        scale_note = f"scale factor {factor:g}"
+    p = v @ rot.T
+    extent_file = np.ptp(p, axis=0)
+    largest_file = float(extent_file.max())
+    if units_name is None:
+        hint = getattr(scan, "units_hint", None)
+        if scale_ref is not None:
+            units_name, units_source = "mm", "assumed"
+        elif hint in UNIT_TO_MM:
+            units_name, units_source = hint, "file"
+        else:
+            units_name, units_source = _guess_units(largest_file), "guessed"
+            warnings.append(f"units not given; guessed '{units_name}' from the size ({largest_file:.4g} file units "
+                            f"across); pass --units or set units in the specimen sheet")
+    k = UNIT_TO_MM[units_name] * factor
+    largest_mm = largest_file * k
+    if not PLAUSIBLE_MM[0] <= largest_mm <= PLAUSIBLE_MM[1]:
+        better = _guess_units(largest_file * factor)
+        hint_txt = f"; if the file is in {better}, pass --units {better}" if better != units_name else ""
+        warnings.append(f"the specimen would be {_fmt_mm(largest_mm)} across in '{units_name}', implausible for a "
+                        f"hand specimen (columns are about 1-10 cm wide and 5-50 cm tall){hint_txt}")
+    # ---- origin on the axis at the base
+    pm = p * k
+    zmin, zmax = float(pm[:, 2].min()), float(pm[:, 2].max())
+    base = pm[:, 2] <= zmin + 0.03 * (zmax - zmin)
+    origin = np.array([pm[base, 0].mean(), pm[base, 1].mean(), zmin])
+    vertices_mm = pm - origin
+    m_scale = _h(scale=k)
+    m_orient = _h(rows)
+    m_bed = _h(r_bed)
+    m_origin = _h(translation=-origin)
+    transforms = [
+        {"step": "scale", "matrix": m_scale.tolist(),
+         "note": f"{units_name} to mm (x{k:g}; units from {units_source}" + (f"; {scale_note}" if scale_note else "") + ")"},
+        {"step": "orient", "matrix": m_orient.tolist(),
+         "note": f"up from {up_source} to +z; " + ("north to +y" if north_known else "y an arbitrary horizontal")},
+        {"step": "bedding", "matrix": m_bed.tolist(),
+         "note": (f"strike {strike_dip[0]:g} dip {strike_dip[1]:g} (right-hand rule) rotated back to horizontal"
+                  if strike_dip is not None else "no bedding correction (none given)")},
+        {"step": "origin", "matrix": m_origin.tolist(), "note": "origin on the axis at the base"},
+    ]
+    scan_to_specimen = m_origin @ m_bed @ m_orient @ m_scale
+    paleo_up_scan = rot.T @ np.array([0.0, 0.0, 1.0])
+    summary = {
+        "scan_vertices": int(len(scan.vertices)), "scan_faces": int(len(scan.faces)),
+        "vertices": int(len(v)), "faces": int(len(faces)),
+        "pieces": clean.stats["pieces"], "piece_area_fractions": clean.stats["piece_area_fractions"],
+        "holes": clean.stats["holes"], "boundary_edges": clean.stats["boundary_edges"],
+        "non_manifold_edges": clean.stats["non_manifold_edges"],
+        "inconsistent_edges": clean.stats["inconsistent_edges"],
+        "median_edge_units": clean.stats["median_edge"], "median_edge_mm": clean.stats["median_edge"] * k,
+        "extent_units": (extent_file * factor).tolist(), "extent_mm": (extent_file * k).tolist(),
+        "height_mm": float(zmax - zmin), "width_mm": float(max(extent_file[0], extent_file[1]) * k),
+        "units_source": units_source, "scale": scale_note,
+        "field_up_scan": field_up.tolist(), "paleo_up_scan": paleo_up_scan.tolist(),
+        "estimated_up_scan": estimate.up.tolist(), "estimated_up_confidence": estimate.confidence,
+        "estimated_up_ci95_deg": estimate.ci95_deg,
+        "estimated_up_method": estimate.method, "estimated_up_cues": estimate.cues,
+        "bedding": None if strike_dip is None else {"strike_deg": float(strike_dip[0]), "dip_deg": float(strike_dip[1])},
+    }
+    report(progress, "orienting", 1, 1)
+    return Specimen(
+        vertices_mm=vertices_mm, faces=faces,
+        colors=None if scan.colors is None else scan.colors[clean.scan_index],
+        scan_to_specimen=scan_to_specimen, units=units_name, mm_per_unit=float(k), up_source=up_source,
+        up_confidence=float(up_conf), north_known=bool(north_known), cleaning=dict(clean.counts),
+        transforms=transforms, warnings=warnings, sheet=sheet,
+        specimen_id=(sheet.specimen_id if sheet is not None and sheet.specimen_id else _stem(scan.path)),
+        scan_path=scan.path, scan_sha256=scan.sha256, scan_vertex_index=clean.scan_index, summary=summary)
+
+
+def _stem(path: str) -> str:
+    from pathlib import Path
+    return Path(path).stem

@@ -1,0 +1,290 @@
+"""Read a mesh file (PLY, OBJ, STL, OFF, glTF/GLB) into a ``Scan``, refusing broken files with one clear line.
+
+The bytes are read once (hashed with SHA-256) and parsed by trimesh without processing, which is the
+fastest loader measured here (see /work/shared/PERF-NOTES.md); all cleanup happens later, vectorized,
+in :mod:`bandgeo.scan.clean`. The PLY and STL headers are checked here against the file size, because
+the parsers do not always notice a truncated file or wrong counts.
+"""
+from __future__ import annotations
+
+import hashlib
+import io
+import os
+import re
+from pathlib import Path
+
+import numpy as np
+
+from ..errors import InputError
+from .types import Scan
+
+#: Extensions read, lower case, with the trimesh file type used for each.
+EXTENSIONS = {".ply": "ply", ".obj": "obj", ".stl": "stl", ".off": "off", ".glb": "glb", ".gltf": "gltf"}
+
+_PLY_SIZES = {"char": 1, "int8": 1, "uchar": 1, "uint8": 1, "short": 2, "int16": 2, "ushort": 2,
+              "uint16": 2, "int": 4, "int32": 4, "uint": 4, "uint32": 4, "float": 4, "float32": 4,
+              "double": 8, "float64": 8}
+_PLY_NP = {"char": "i1", "int8": "i1", "uchar": "u1", "uint8": "u1", "short": "i2", "int16": "i2",
+           "ushort": "u2", "uint16": "u2", "int": "i4", "int32": "i4", "uint": "u4", "uint32": "u4",
+           "float": "f4", "float32": "f4", "double": "f8", "float64": "f8"}
+
+
+def _fail(name: str, message: str) -> InputError:
+    return InputError(f"'{name}': {message}")
+
+
+def _check_path(path) -> Path:
+    path = Path(os.path.expanduser(os.fspath(path)))
+    name = str(path)
+    if not path.exists():
+        raise _fail(name, "no such file; check the path (quote it if it contains spaces)")
+    if path.is_dir():
+        raise _fail(name, "is a folder, not a mesh file; give the scan file itself (.ply, .obj, .stl, .off, .glb)")
+    ext = path.suffix.lower()
+    if ext not in EXTENSIONS:
+        known = ", ".join(sorted(EXTENSIONS))
+        raise _fail(name, f"unknown extension {path.suffix!r}; export the scan as one of {known}")
+    return path
+
+
+# ----------------------------------------------------------------------------------------------- PLY
+def _parse_ply_header(data: bytes, name: str):
+    """Return (format, header_length, elements) with elements = [(name, count, [(kind, types...)])]."""
+    if not data.startswith(b"ply"):
+        raise _fail(name, "does not start with 'ply', so it is not a PLY file (a text or other file renamed "
+                          ".ply?); re-export the scan as PLY")
+    match = re.search(rb"end_header[ \t]*\r?\n", data[:1 << 20])
+    if match is None:
+        raise _fail(name, "PLY header has no 'end_header' line; the file is truncated or not a PLY file, "
+                          "re-export it")
+    header = data[:match.start()].decode("ascii", errors="replace").splitlines()
+    fmt, elements = None, []
+    for lineno, line in enumerate(header, start=1):
+        words = line.split()
+        if not words or words[0] in ("comment", "obj_info", "ply"):
+            continue
+        try:
+            if words[0] == "format":
+                fmt = words[1]
+            elif words[0] == "element":
+                elements.append((words[1], int(words[2]), []))
+            elif words[0] == "property":
+                if words[1] == "list":
+                    elements[-1][2].append(("list", words[2], words[3]))
+                else:
+                    elements[-1][2].append(("scalar", words[1]))
+        except (IndexError, ValueError):
+            raise _fail(name, f"PLY header line {lineno} ({line.strip()!r}) is malformed; re-export the scan")
+    if fmt not in ("ascii", "binary_little_endian", "binary_big_endian"):
+        raise _fail(name, f"PLY format {fmt!r} is not ascii, binary_little_endian or binary_big_endian; "
+                          "re-export the scan")
+    for el_name, count, props in elements:
+        if count < 0:
+            raise _fail(name, f"PLY header gives a negative count for element '{el_name}'; re-export the scan")
+        for prop in props:
+            types = prop[1:] if prop[0] == "list" else prop[1:2]
+            for t in types:
+                if t not in _PLY_SIZES:
+                    raise _fail(name, f"PLY property type {t!r} is unknown; re-export the scan")
+    return fmt, match.end(), elements
+
+
+def _check_ply(data: bytes, name: str) -> str:
+    fmt, start, elements = _parse_ply_header(data, name)
+    counts = {el: count for el, count, _ in elements}
+    if counts.get("vertex", 0) == 0:
+        raise _fail(name, "PLY file declares no vertices; the scan is empty, re-export it")
+    if counts.get("face", 0) == 0:
+        raise _fail(name, f"holds points only ({counts['vertex']} vertices, no faces); mesh the point cloud "
+                          "first (for example by Poisson reconstruction) and export the faces")
+    body = len(data) - start
+    if fmt == "ascii":
+        lines = data[start:].split(b"\n") if body < (64 << 20) else None
+        if lines is not None:
+            n_lines = sum(1 for line in lines if line.strip())
+            expected = sum(counts.values())
+            if n_lines != expected:
+                raise _fail(name, f"PLY header declares {expected} data lines "
+                                  f"({', '.join(f'{c} {e}' for e, c in counts.items())}) but the file holds "
+                                  f"{n_lines}; the header counts are wrong or the file is truncated, re-export it")
+        return "ply-ascii"
+    order = "<" if fmt == "binary_little_endian" else ">"
+    offset = start
+    for el_name, count, props in elements:
+        fixed = sum(_PLY_SIZES[p[1]] for p in props if p[0] == "scalar")
+        lists = [p for p in props if p[0] == "list"]
+        if not lists:
+            offset += count * fixed
+            continue
+        if len(lists) == 1 and props[0][0] == "list" and count > 0 and offset + _PLY_SIZES[lists[0][1]] <= len(data):
+            # peek at the first polygon's vertex count: garbage here means the counts before are wrong
+            first = int(np.frombuffer(data, dtype=order + _PLY_NP[lists[0][1]], count=1, offset=offset)[0])
+            if el_name == "face" and not 3 <= first <= 64:
+                raise _fail(name, f"the first face claims {first} vertices; the PLY header counts do not match "
+                                  "the data (wrong vertex count?), re-export the scan")
+            if el_name == "face" and first == 3:
+                per = fixed + _PLY_SIZES[lists[0][1]] + 3 * _PLY_SIZES[lists[0][2]]
+                offset += count * per
+                continue
+        # polygons of unknown size: at least a triangle each
+        offset += count * (fixed + sum(_PLY_SIZES[p[1]] + 3 * _PLY_SIZES[p[2]] for p in lists))
+    if offset > len(data):
+        raise _fail(name, f"binary PLY ends early: the header promises at least {offset - start} bytes of data "
+                          f"but only {body} follow; the file is truncated (copy or export it again)")
+    return "ply-binary-le" if order == "<" else "ply-binary-be"
+
+
+# ------------------------------------------------------------------------------------------ STL / OFF
+def _check_stl(data: bytes, name: str) -> str:
+    if len(data) >= 84:
+        n = int(np.frombuffer(data, dtype="<u4", count=1, offset=80)[0])
+        if len(data) == 84 + 50 * n:
+            if n == 0:
+                raise _fail(name, "binary STL holds no triangles; re-export the scan")
+            return "stl-binary"
+    head = data[:512].lstrip().lower()
+    if head.startswith(b"solid") and b"facet" in data[:4096].lower():
+        return "stl-ascii"
+    if len(data) >= 84:
+        n = int(np.frombuffer(data, dtype="<u4", count=1, offset=80)[0])
+        raise _fail(name, f"binary STL header promises {n} triangles ({84 + 50 * n} bytes) but the file has "
+                          f"{len(data)} bytes; it is truncated or not an STL file, export it again")
+    raise _fail(name, "is neither an ASCII nor a binary STL file; export the scan again")
+
+
+def _check_off(data: bytes, name: str) -> str:
+    text = data.decode("latin-1")
+    tokens_lines = [line.split("#", 1)[0].split() for line in text.splitlines()]
+    tokens_lines = [t for t in tokens_lines if t]
+    if not tokens_lines or not tokens_lines[0][0].upper().endswith("OFF"):
+        raise _fail(name, "does not start with 'OFF', so it is not an OFF file; re-export the scan")
+    first = tokens_lines[0][1:]
+    rest = tokens_lines[1:]
+    if len(first) < 2:
+        if not rest:
+            raise _fail(name, "OFF file has no counts line; re-export the scan")
+        first, rest = rest[0], rest[1:]
+    try:
+        nv, nf = int(first[0]), int(first[1])
+    except (ValueError, IndexError):
+        raise _fail(name, f"OFF counts line {' '.join(first)!r} is not 'vertices faces edges'; re-export the scan")
+    if nf == 0:
+        raise _fail(name, f"holds points only ({nv} vertices, no faces); mesh the points and export the faces")
+    if len(rest) != nv + nf:
+        raise _fail(name, f"OFF header declares {nv} vertices and {nf} faces but the file holds {len(rest)} "
+                          "data lines; the counts are wrong or the file is truncated, re-export it")
+    return "off"
+
+
+# --------------------------------------------------------------------------------------------- public
+def load_scan(path) -> Scan:
+    """Read a scan file into a :class:`Scan` (file coordinates and units, colours kept).
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        A ``.ply`` (ASCII or binary, either byte order), ``.obj``, ``.stl`` (ASCII or binary), ``.off``,
+        ``.glb`` or ``.gltf`` file; the extension may be upper case.
+
+    Returns
+    -------
+    Scan
+        ``vertices (n, 3) float64``, ``faces (m, 3) int64``, ``colors (n, 3) uint8 | None``, the path,
+        the SHA-256 of the bytes and the format read.
+
+    Raises
+    ------
+    bandgeo.errors.InputError
+        Missing, empty, truncated or malformed files; point clouds; face indices out of range.
+    """
+    path = _check_path(path)
+    name = str(path)
+    try:
+        data = path.read_bytes()
+    except OSError as exc:
+        raise _fail(name, f"cannot be read ({exc.strerror}); check its permissions")
+    if len(data) == 0:
+        raise _fail(name, "is empty (0 bytes); copy or export the scan again")
+    digest = hashlib.sha256(data).hexdigest()
+    ext = path.suffix.lower()
+    file_type = EXTENSIONS[ext]
+    if file_type == "ply":
+        fmt = _check_ply(data, name)
+    elif file_type == "stl":
+        fmt = _check_stl(data, name)
+    elif file_type == "off":
+        fmt = _check_off(data, name)
+    else:
+        fmt = file_type
+    mesh = _parse(data, path, file_type, name)
+    vertices = np.ascontiguousarray(mesh.vertices, dtype=np.float64)
+    faces = np.ascontiguousarray(mesh.faces, dtype=np.int64).reshape(-1, 3)
+    if len(vertices) == 0:
+        raise _fail(name, "holds no vertices; is it really a mesh? Re-export the scan")
+    if len(faces) == 0:
+        raise _fail(name, f"holds points only ({len(vertices)} vertices, no faces); mesh the point cloud first "
+                          "and export the faces")
+    if faces.min() < 0 or faces.max() >= len(vertices):
+        bad = int(np.count_nonzero((faces < 0) | (faces >= len(vertices))))
+        raise _fail(name, f"{bad} face indices point outside the {len(vertices)} vertices (valid 0.."
+                          f"{len(vertices) - 1}); the file is corrupt or its counts are wrong, re-export it")
+    return Scan(vertices=vertices, faces=faces, colors=_colors(mesh, len(vertices)), path=str(path),
+                sha256=digest, file_format=fmt, units_hint=units_hint(data, fmt))
+
+
+_UNITS_RE = re.compile(r"\bunits?\s*(?:[:=]|in)?\s*(um|mm|cm|m|in)\b", re.IGNORECASE)
+
+
+def units_hint(data: bytes, fmt: str):
+    """A length unit named in the file's comments (``comment units mm``, ``# units: cm``), or None."""
+    if fmt.startswith("ply"):
+        end = data.find(b"end_header")
+        lines = data[:end].decode("latin-1").splitlines()
+        text = "\n".join(line for line in lines if line.startswith(("comment", "obj_info")))
+    elif fmt in ("obj", "off", "stl-ascii"):
+        lines = data[:8192].decode("latin-1").splitlines()
+        text = "\n".join(line for line in lines if line.lstrip().startswith(("#", "solid")))
+    elif fmt == "stl-binary":
+        text = data[:80].decode("latin-1")
+    else:
+        return None
+    match = _UNITS_RE.search(text)
+    return match.group(1).lower() if match else None
+
+
+def _parse(data: bytes, path: Path, file_type: str, name: str):
+    import trimesh
+
+    try:
+        if file_type in ("obj", "gltf"):  # may refer to side files (materials, buffers) by relative path
+            loaded = trimesh.load(str(path), file_type=file_type, process=False, force="mesh")
+        else:
+            loaded = trimesh.load(io.BytesIO(data), file_type=file_type, process=False, force="mesh")
+    except Exception as exc:  # the parsers raise many kinds; give the user one line
+        detail = " ".join(str(exc).split())[:160] or type(exc).__name__
+        raise _fail(name, f"could not be read as {file_type.upper()} ({detail}); the file is corrupt or not "
+                          f"a {file_type.upper()} file, export the scan again")
+    if not hasattr(loaded, "faces"):
+        n = len(getattr(loaded, "vertices", []))
+        raise _fail(name, f"holds points only ({n} vertices, no faces); mesh the point cloud first and export "
+                          "the faces")
+    return loaded
+
+
+def _colors(mesh, n: int):
+    """Per-vertex RGB uint8 when the file had vertex colours (or a texture that can be sampled)."""
+    visual = getattr(mesh, "visual", None)
+    kind = getattr(visual, "kind", None)
+    try:
+        if kind == "vertex":
+            colors = np.asarray(visual.vertex_colors)
+        elif kind == "texture" and getattr(visual, "uv", None) is not None \
+                and getattr(getattr(visual, "material", None), "image", None) is not None:
+            colors = np.asarray(visual.to_color().vertex_colors)
+        else:
+            return None
+    except Exception:  # a texture that cannot be sampled: no colours rather than no scan
+        return None
+    if colors.ndim != 2 or len(colors) != n or colors.shape[1] < 3:
+        return None
+    return np.ascontiguousarray(colors[:, :3], dtype=np.uint8)

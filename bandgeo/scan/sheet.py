@@ -1,0 +1,140 @@
+"""Read a specimen sheet (TOML): id, units or scale, way-up, north, bedding, age and locality.
+
+The format is described in docs/specimen-sheet.md. Unknown fields are refused (they are usually typos
+that would otherwise be silently ignored).
+"""
+from __future__ import annotations
+
+import os
+import re
+from pathlib import Path
+
+import numpy as np
+
+from ..constants import UNIT_TO_MM
+from ..errors import InputError
+from .types import ScaleReference, SpecimenSheet
+
+try:
+    import tomllib
+except ModuleNotFoundError:  # Python 3.10
+    import tomli as tomllib
+
+_TEXT = ("specimen_id", "locality", "horizon", "formation", "collector", "notes")
+_NUMBERS = ("strike_deg", "dip_deg", "age_ma", "age_err_ma")
+_FIELDS = _TEXT + _NUMBERS + ("units", "scale", "up", "north")
+
+
+def _line_of(text: str, key: str) -> str:
+    for lineno, line in enumerate(text.splitlines(), start=1):
+        if re.match(rf"\s*{re.escape(key)}\s*=", line) or re.match(rf"\s*\[\s*{re.escape(key)}\s*\]", line):
+            return f"line {lineno}"
+    return "the sheet"
+
+
+def _vector(value, where: str, name: str, label: str) -> np.ndarray:
+    try:
+        vec = np.asarray(value, dtype=float).reshape(-1)
+    except (TypeError, ValueError):
+        vec = np.zeros(0)
+    if vec.shape != (3,) or not np.all(np.isfinite(vec)) or np.linalg.norm(vec) == 0:
+        raise InputError(f"'{label}' {where}: {name} must be three numbers like [0.0, 0.0, 1.0] "
+                         f"(a non-zero direction in the scan frame) but got {value!r}")
+    return vec
+
+
+def read_sheet(path) -> SpecimenSheet:
+    """Read a specimen sheet.
+
+    Parameters
+    ----------
+    path : str or os.PathLike
+        A TOML file (see docs/specimen-sheet.md).
+
+    Returns
+    -------
+    SpecimenSheet
+
+    Raises
+    ------
+    bandgeo.errors.InputError
+        Missing file, TOML syntax error (with its line), unknown field, or a field of the wrong kind.
+    """
+    path = Path(os.path.expanduser(os.fspath(path)))
+    label = str(path)
+    if not path.is_file():
+        what = "is a folder" if path.is_dir() else "does not exist"
+        raise InputError(f"specimen sheet '{label}' {what}; give the path of a .toml sheet")
+    text = path.read_bytes().decode("utf-8", errors="replace")
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise InputError(f"specimen sheet '{label}' is not valid TOML ({exc}); fix that line "
+                         "(strings need quotes, lists need brackets)")
+    unknown = [k for k in data if k not in _FIELDS]
+    if unknown:
+        raise InputError(f"'{label}' {_line_of(text, unknown[0])}: unknown field {unknown[0]!r}; "
+                         f"known fields are {', '.join(_FIELDS)}")
+    sheet = SpecimenSheet(path=str(path))
+    for key in _TEXT:
+        if key in data:
+            value = data[key]
+            if isinstance(value, (dict, list)):
+                raise InputError(f"'{label}' {_line_of(text, key)}: {key} must be text but got {value!r}")
+            setattr(sheet, key, str(value))
+    for key in _NUMBERS:
+        if key in data:
+            value = data[key]
+            if isinstance(value, bool) or not isinstance(value, (int, float)) or not np.isfinite(value):
+                raise InputError(f"'{label}' {_line_of(text, key)}: {key} must be a number but got {value!r}")
+            setattr(sheet, key, float(value))
+    if (sheet.strike_deg is None) != (sheet.dip_deg is None):
+        key = "dip_deg" if sheet.dip_deg is None else "strike_deg"
+        raise InputError(f"'{label}': strike_deg and dip_deg go together but {key} is missing; give both "
+                         "(right-hand rule) or neither")
+    if sheet.dip_deg is not None and not 0 <= sheet.dip_deg <= 90:
+        raise InputError(f"'{label}' {_line_of(text, 'dip_deg')}: dip_deg must be 0..90 (right-hand rule) but got "
+                         f"{sheet.dip_deg:g}")
+    if sheet.age_err_ma is not None and sheet.age_err_ma < 0:
+        raise InputError(f"'{label}' {_line_of(text, 'age_err_ma')}: age_err_ma must be >= 0 but got "
+                         f"{sheet.age_err_ma:g}")
+    if "units" in data:
+        units = str(data["units"]).strip().lower()
+        if units not in UNIT_TO_MM:
+            raise InputError(f"'{label}' {_line_of(text, 'units')}: units must be one of "
+                             f"{', '.join(UNIT_TO_MM)} but got {data['units']!r}")
+        sheet.units = units
+    for key in ("up", "north"):
+        if key in data:
+            setattr(sheet, key, _vector(data[key], _line_of(text, key), key, label))
+    if "scale" in data:
+        sheet.scale = _scale(data["scale"], _line_of(text, "scale"), label)
+    return sheet
+
+
+def _scale(value, where: str, label: str):
+    if isinstance(value, bool):
+        value = None
+    if isinstance(value, (int, float)):
+        if not (np.isfinite(value) and value > 0):
+            raise InputError(f"'{label}' {where}: scale must be a positive number but got {value!r}")
+        return float(value)
+    if isinstance(value, dict):
+        extra = [k for k in value if k not in ("points", "length")]
+        points = value.get("points")
+        length = value.get("length")
+        if not extra and points is not None and length is not None:
+            try:
+                pts = np.asarray(points, dtype=float)
+            except (TypeError, ValueError):
+                pts = np.zeros(0)
+            if pts.shape == (2, 3) and np.all(np.isfinite(pts)) and isinstance(length, (int, float)) \
+                    and not isinstance(length, bool) and length > 0:
+                ref = ScaleReference(p1=pts[0], p2=pts[1], length=float(length))
+                if ref.file_distance() == 0:
+                    raise InputError(f"'{label}' {where}: the two scale points are the same point; pick the "
+                                     "two ends of the scale bar")
+                return ref
+    raise InputError(f"'{label}' {where}: scale must be a positive number, or "
+                     "{ points = [[x1, y1, z1], [x2, y2, z2]], length = L } with L > 0, but got "
+                     f"{value!r}")
