@@ -225,10 +225,15 @@ def _f(x):
 
 
 def _smooth_mean(sums, count, sigma=0.8):
-    """Normalised convolution: the local mean where data are, NaN far from any data."""
-    num = gaussian_filter(sums, sigma, mode=("nearest", "wrap"))
-    den = gaussian_filter(count.astype(float), sigma, mode=("nearest", "wrap"))
-    return np.where(den > 0.05, num / np.maximum(den, 1e-12), np.nan)
+    """Normalised convolution: the local mean where data are; gaps filled from a wider neighbourhood
+    (up to about four cells away), NaN further from any data."""
+    out = np.full(sums.shape, np.nan)
+    for width in (sigma, 2.5 * sigma, 5.0 * sigma):
+        num = gaussian_filter(sums, width, mode=("nearest", "wrap"))
+        den = gaussian_filter(count.astype(float), width, mode=("nearest", "wrap"))
+        fill = np.isnan(out) & (den > 0.05)
+        out[fill] = num[fill] / den[fill]
+    return out
 
 
 def _relief(radius_sum, count):

@@ -227,6 +227,8 @@ class Handler(BaseHTTPRequestHandler):
                 if path == "/":
                     extra["Set-Cookie"] = f"{COOKIE}={self.app.token}; Path=/; HttpOnly; SameSite=Strict"
                 self._send(HTTPStatus.OK, body, ctype, extra)
+            elif path == "/favicon.ico":
+                self._send(HTTPStatus.NO_CONTENT, b"", "image/x-icon")
             elif path == "/api/state":
                 self._json(HTTPStatus.OK, self.app.state())
             elif path == "/api/status":
