@@ -22,15 +22,17 @@ Z95 = 1.959963984540054
 OUTLIER_ALPHA = 0.01
 
 OUTLIER_RULE = (
-    "A specimen is flagged as disagreeing with its horizon when (1) the inverse-variance weighted mean "
-    "of the other significant specimens of the same horizon lies outside the specimen's own 95% "
-    "interval, and (2) a two-sided z-test of the difference, z = (x - m) / sqrt(s^2 + se^2), gives "
-    f"p < {OUTLIER_ALPHA:g}. Here x is the specimen's days per year, s its standard error (the half-width "
-    "of its 95% interval on the side facing m, divided by 1.96), m the others' weighted mean with weights "
-    "1/s_j^2 and se = 1/sqrt(sum of weights) its standard error. Each horizon with two or more "
-    "significant specimens also gets Cochran's Q homogeneity test (chi-square with n-1 degrees of "
-    "freedom). Specimens with no significant annual cycle take no part and are listed as "
-    "'no annual cycle'.")
+    "Within each horizon, every significant specimen is compared with the others: x is its days per "
+    "year, s its standard error (the half-width of its 95% interval on the side facing m, divided by "
+    "1.96), m the inverse-variance weighted mean of the other specimens still in the horizon (weights "
+    "1/s_j^2) and se = 1/sqrt(sum of weights) the standard error of m; z = (x - m) / sqrt(s^2 + se^2) "
+    "with a two-sided normal p. The specimen with the largest |z| is flagged as disagreeing with its "
+    f"horizon when p < {OUTLIER_ALPHA:g} and m lies outside its 95% interval; it is then left out of "
+    "the others' mean and the test is repeated on the rest (so that one outlier cannot make its "
+    "neighbours look discordant), while at least three specimens remain. Pairs are not flagged "
+    "individually; every horizon with two or more significant specimens gets Cochran's Q homogeneity "
+    "test (chi-square with n-1 degrees of freedom). Specimens with no significant annual cycle take no "
+    "part and are listed as 'no annual cycle'.")
 
 COLUMNS = ["specimen_id", "horizon", "locality", "age_ma", "age_err_ma", "status", "significant",
            "days_per_year", "days_per_year_ci95_low", "days_per_year_ci95_high", "p_value", "method",
@@ -111,20 +113,31 @@ def horizon_tests(values: list[tuple[float, float, float]]) -> tuple[list[dict],
         return [], summary
     mean, se = weighted_mean(x, sym)
     summary.update(weighted_mean_days_per_year=mean, se=se)
+    out: list = [{"z": None, "p": None, "others_mean": None, "outlier": False} for _ in range(n)]
     if n < 2:
-        return [{"z": None, "p": None, "others_mean": None, "outlier": False}], summary
+        return out, summary
     q = float(np.sum((x - mean) ** 2 / sym ** 2))
     summary.update(cochran_q=q, dof=n - 1, p_value=float(stats.chi2.sf(q, n - 1)))
-    out = []
-    for i in range(n):
-        others = np.arange(n) != i
-        m, se_m = weighted_mean(x[others], sym[others])
-        side = (x[i] - low[i]) if m < x[i] else (high[i] - x[i])  # the half facing the others' mean
-        s = max(side / Z95, 1e-12)
-        z = (x[i] - m) / math.sqrt(s ** 2 + se_m ** 2)
-        p = float(2.0 * stats.norm.sf(abs(z)))
-        outside = not (low[i] <= m <= high[i])
-        out.append({"z": float(z), "p": p, "others_mean": m, "outlier": bool(outside and p < OUTLIER_ALPHA)})
+    active = np.ones(n, bool)
+    while True:
+        tests = {}
+        for i in np.flatnonzero(active):
+            others = active.copy()
+            others[i] = False
+            m, se_m = weighted_mean(x[others], sym[others])
+            side = (x[i] - low[i]) if m < x[i] else (high[i] - x[i])  # the half facing the others' mean
+            z = (x[i] - m) / math.sqrt(max(side / Z95, 1e-12) ** 2 + se_m ** 2)
+            tests[i] = {"z": float(z), "p": float(2.0 * stats.norm.sf(abs(z))), "others_mean": m,
+                        "outlier": False, "outside": not (low[i] <= m <= high[i])}
+        for i, t in tests.items():
+            out[i] = {k: v for k, v in t.items() if k != "outside"}
+        if active.sum() < 3:
+            break
+        worst = max(tests, key=lambda i: abs(tests[i]["z"]))
+        if not (tests[worst]["p"] < OUTLIER_ALPHA and tests[worst]["outside"]):
+            break
+        out[worst]["outlier"] = True
+        active[worst] = False
     return out, summary
 
 
