@@ -1,0 +1,52 @@
+"""The per-specimen report: self-contained HTML, vector PDF, CSV tables and a band-labelled PLY mesh.
+
+Public API::
+
+    write_report(state, folder=None, formats=("html", "pdf", "csv", "ply"), progress=None)
+        -> dict[str, Path]
+
+Modules: ``build`` (orchestration), ``model`` (formatting of result.json), ``figures`` and
+``comparison`` (2-D figures), ``render3d`` (headless mesh views), ``unroll`` (azimuth × height),
+``spectra`` (reading the saved spectra), ``references`` (published reference points), ``html``,
+``pdf``, ``exports`` (CSV, PLY) and ``palette`` (colour-blind-safe colours). Matplotlib and jinja2
+are imported only when a report is built.
+"""
+from __future__ import annotations
+
+from pathlib import Path
+
+__all__ = ["write_report"]
+
+
+def write_report(state, folder=None, formats=("html", "pdf", "csv", "ply"), progress=None) -> dict[str, Path]:
+    """Write the report of one analysed specimen into its folder, every file atomically.
+
+    Parameters
+    ----------
+    state : bandgeo.pipeline.AnalysisState
+        ``folder``, ``result`` (result.json content), ``specimen``, ``segmentation``, ``band_table``,
+        ``series``, ``periodicity``.
+    folder : path, optional
+        Where to write; defaults to ``state.folder``.
+    formats : sequence of {"html", "pdf", "csv", "ply"}
+        ``html`` -> report.html, ``pdf`` -> report.pdf, ``csv`` -> bands.csv and spectra.csv,
+        ``ply`` -> labelled_mesh.ply (per-vertex ``band`` property and one colour per band).
+    progress : callable, optional
+        ``progress(description, done, total)``.
+
+    Returns
+    -------
+    dict of str to Path
+        Output file name -> path written.
+
+    Raises
+    ------
+    bandgeo.errors.InputError
+        The state lacks the result or, for the mesh, the specimen or segmentation.
+    bandgeo.errors.ParameterError
+        An unknown format or no folder.
+    """
+    from .build import build_report
+
+    paths, _ = build_report(state, folder, formats, progress)
+    return paths

@@ -1,0 +1,253 @@
+"""Two-dimensional report figures: unrolled surface, series with the annual fit, periodograms,
+evolutive spectra and cycle-by-cycle counts. Every axis carries its unit; colours are colour-blind safe.
+
+Each function takes plain arrays (or the normalised dicts of :mod:`bandgeo.report.spectra`) and returns a
+``matplotlib.figure.Figure`` built without pyplot, so nothing needs a display.
+"""
+from __future__ import annotations
+
+import numpy as np
+from matplotlib import patheffects
+from matplotlib.figure import Figure
+from matplotlib.ticker import MaxNLocator
+
+from .palette import IMAGE_CMAP, LINE
+from .unroll import boundary_trace
+
+_OUTLINE = [patheffects.withStroke(linewidth=2.2, foreground="black")]
+
+
+def _message_figure(text: str, figsize=(8.0, 1.6)) -> Figure:
+    fig = Figure(figsize=figsize)
+    fig.text(0.5, 0.5, text, ha="center", va="center", fontsize=11, wrap=True)
+    return fig
+
+
+def _relief_panel(ax, fig, image, s_edges, az_edges, label=True):
+    finite = image[np.isfinite(image)]
+    lim = float(np.percentile(np.abs(finite), 98)) if finite.size else 1.0
+    lim = lim if lim > 0 else 1.0
+    mesh = ax.pcolormesh(az_edges, s_edges, np.ma.masked_invalid(image), cmap=IMAGE_CMAP,
+                         vmin=-lim, vmax=lim, shading="flat", rasterized=True)
+    cb = fig.colorbar(mesh, ax=ax, shrink=0.85, pad=0.01, location="bottom", aspect=30)
+    cb.set_label("relief (radius minus its smooth trend), mm", fontsize=8)
+    ax.set_xlim(0, 360)
+    ax.set_ylim(s_edges[0], s_edges[-1])
+    ax.set_xticks(np.arange(0, 361, 90))
+    ax.set_xlabel("azimuth, degrees clockwise from north", fontsize=8)
+    if label:
+        ax.set_ylabel("height along the axis, mm")
+
+
+def _draw_boundaries(ax, boundaries, axis, radius_mm):
+    az = np.linspace(0.0, 360.0, 91)
+    for b in boundaries:
+        h = boundary_trace(b, axis, radius_mm, az)
+        review = getattr(b, "origin", "auto") == "review"
+        ax.plot(az, h, color="white", lw=0.9, ls="--" if review else "-", path_effects=_OUTLINE,
+                alpha=0.6 + 0.4 * float(np.clip(getattr(b, "confidence", 1.0), 0, 1)))
+
+
+def unrolled_figure(s_mm, azimuth_deg, radius_mm, boundaries, axis, flagged=(), smooth_mm=None,
+                    max_drawn=60, zoom_bands=30):
+    """Relief of the side surface (azimuth × height along the axis) with the detected boundaries.
+
+    The left panel shows the whole column with at most ``max_drawn`` boundaries (every k-th when
+    there are more, as its title says); the right panel zooms on ``zoom_bands`` bands in the middle
+    of the record and draws every boundary there.
+
+    Parameters
+    ----------
+    s_mm, azimuth_deg, radius_mm : (n,) float
+        From :func:`bandgeo.report.unroll.unroll_vertices`.
+    boundaries : list of Boundary
+        Drawn as the curve where each boundary plane meets the mean cylinder; dashed when added or
+        moved in review, fainter when less confident.
+    flagged : list of (s0_mm, s1_mm, reason)
+        Stretches the segmentation flagged, marked at the right margin.
+    """
+    from .unroll import relief_image
+
+    radius = float(np.median(radius_mm))
+    fig = Figure(figsize=(8.0, 7.8), layout="constrained")
+    ax, zx = fig.subplots(1, 2, gridspec_kw={"width_ratios": [1.6, 1.0]})
+    image, se, ae = relief_image(s_mm, azimuth_deg, radius_mm, smooth_mm=smooth_mm)
+    _relief_panel(ax, fig, image, se, ae)
+    step = max(1, int(np.ceil(len(boundaries) / max_drawn)))
+    _draw_boundaries(ax, boundaries[::step], axis, radius)
+    for s0, s1, reason in flagged:
+        ax.axhspan(float(s0), float(s1), xmin=0.97, xmax=1.0, color=LINE["fit"], alpha=0.9)
+        ax.text(354, (float(s0) + float(s1)) / 2, str(reason), ha="right", va="center", fontsize=7,
+                color="white", path_effects=_OUTLINE)
+    drawn = "all" if step == 1 else f"every {step}th of {len(boundaries)}"
+    ax.set_title(f"whole column: {drawn} boundaries drawn\n(solid: automatic, dashed: reviewed; "
+                 "orange margin: flagged)", fontsize=8)
+    if len(boundaries) >= 2:
+        heights = np.array([b.height_mm for b in boundaries], float)
+        mid = len(boundaries) // 2
+        lo_i, hi_i = max(0, mid - zoom_bands // 2), min(len(boundaries) - 1, mid + zoom_bands // 2)
+        z0, z1 = heights[lo_i], heights[hi_i]
+        pad = 0.5 * (z1 - z0) / max(hi_i - lo_i, 1)
+        z0, z1 = z0 - pad, z1 + pad
+        keep = (s_mm >= z0) & (s_mm <= z1)
+        if keep.sum() > 100 and z1 > z0:
+            n_s = int(np.clip(4 * (hi_i - lo_i + 1), 40, 400))
+            zimg, zse, zae = relief_image(s_mm[keep], azimuth_deg[keep], radius_mm[keep], n_s=n_s,
+                                          smooth_mm=smooth_mm)
+            _relief_panel(zx, fig, zimg, zse, zae, label=False)
+            _draw_boundaries(zx, boundaries[lo_i:hi_i + 1], axis, radius)
+            zx.set_title(f"zoom: boundaries {boundaries[lo_i].id}-{boundaries[hi_i].id}, all drawn\n"
+                         f"({z0:.1f}-{z1:.1f} mm along the axis)", fontsize=8)
+            ax.axhspan(z0, z1, xmin=0.0, xmax=0.03, color=LINE["search"], alpha=0.9)
+            return fig
+    zx.set_axis_off()
+    return fig
+
+
+def sinusoid_fit(x, y, period):
+    """Least-squares fit ``a + b x + c cos(2 pi x / P) + d sin(2 pi x / P)``.
+
+    Returns
+    -------
+    fitted : (N,) float
+        Fitted values at ``x`` (NaN where ``y`` is NaN).
+    amplitude : float
+        ``sqrt(c² + d²)`` in the units of ``y``.
+    """
+    x, y = np.asarray(x, float), np.asarray(y, float)
+    ok = np.isfinite(y) & np.isfinite(x)
+    w = 2 * np.pi * x / period
+    design = np.column_stack([np.ones_like(x), x - x.mean(), np.cos(w), np.sin(w)])
+    coef, *_ = np.linalg.lstsq(design[ok], y[ok], rcond=None)
+    fitted = design @ coef
+    fitted[~ok] = np.nan
+    return fitted, float(np.hypot(coef[2], coef[3]))
+
+
+def series_figure(series, period_bands=None):
+    """Thickness and tilt against band number, with the annual fit when one was found.
+
+    ``period_bands`` is the estimated annual period in bands; ``None`` (no significant cycle) draws
+    the data alone.
+    """
+    panels = [("thickness_mm", "band thickness, mm")]
+    for attr, label in (("inclination_deg", "inclination of growth direction, degrees"),
+                        ("sway_deg", "tilt in the sway plane, degrees")):
+        if getattr(series, attr, None) is not None:
+            panels.append((attr, label))
+    x = np.asarray(series.band_number, float)
+    hiatus = np.asarray(getattr(series, "hiatus_flags", None) if getattr(series, "hiatus_flags", None)
+                        is not None else np.zeros(len(x), bool), bool)
+    fig = Figure(figsize=(8.0, 2.3 * len(panels) + 0.6), layout="constrained")
+    axes = fig.subplots(len(panels), 1, sharex=True, squeeze=False)[:, 0]
+    for ax, (attr, label) in zip(axes, panels):
+        y = np.asarray(getattr(series, attr), float)
+        ax.plot(x, y, color=LINE["data"], lw=0.7, label="measured")
+        if hiatus.any():
+            ax.plot(x[hiatus], y[hiatus], "v", color=LINE["hiatus"], ms=4, label="possible hiatus")
+        if period_bands and np.isfinite(period_bands) and np.isfinite(y).sum() > 8:
+            fitted, amp = sinusoid_fit(x, y, period_bands)
+            ax.plot(x, fitted, color=LINE["fit"], lw=1.4,
+                    label=f"annual fit, period {period_bands:.1f} bands, amplitude {amp:.3g}")
+        ax.set_ylabel(label, fontsize=8)
+        ax.legend(fontsize=7, loc="best", framealpha=0.85)
+        ax.grid(alpha=0.25)
+    axes[-1].set_xlabel("band number (counted from the base)")
+    axes[0].set_title("annual fit drawn at the estimated period" if period_bands else
+                      "no significant annual cycle: no fit drawn", fontsize=9)
+    return fig
+
+
+def periodogram_figure(spectra, searched=None, estimate_frequency=None):
+    """One panel per spectrum: power, red-noise background and its 95 % / 99 % levels.
+
+    Parameters
+    ----------
+    spectra : dict
+        From :func:`bandgeo.report.spectra.normalise_spectra`.
+    searched : (2,) float or None
+        Searched annual band in bands per cycle ``[shortest, longest]``; shaded and labelled.
+    estimate_frequency : float or None
+        Frequency of the accepted annual peak, cycles per band; marked when given.
+    """
+    if not spectra:
+        return _message_figure("No spectra were saved with this result.")
+    fig = Figure(figsize=(8.0, 2.8 * len(spectra) + 0.4), layout="constrained")
+    axes = fig.subplots(len(spectra), 1, squeeze=False)[:, 0]
+    for ax, (name, spec) in zip(axes, spectra.items()):
+        f, p = spec["frequency"], spec["power"]
+        pos = f > 0
+        if searched is not None and all(np.isfinite(searched)) and min(searched) > 0:
+            f_lo, f_hi = 1.0 / max(searched), 1.0 / min(searched)
+            ax.axvspan(f_lo, f_hi, color=LINE["search"], alpha=0.18, lw=0,
+                       label=f"searched band: {min(searched):.0f}-{max(searched):.0f} bands per cycle")
+        ax.plot(f[pos], p[pos], color=LINE["data"], lw=0.8, label="power")
+        for key, style, text in (("background", ":", "red-noise background"),
+                                 ("level95", "--", "95 % red-noise level"),
+                                 ("level99", "-.", "99 % red-noise level")):
+            if spec.get(key) is not None:
+                ax.plot(f[pos], spec[key][pos], ls=style, lw=1.1,
+                        color=LINE[key if key != "background" else "background"], label=text)
+        if estimate_frequency and np.isfinite(estimate_frequency):
+            ax.axvline(estimate_frequency, color=LINE["estimate"], lw=1.0,
+                       label=f"annual peak: {1.0 / estimate_frequency:.1f} bands per cycle")
+        if np.all(p[pos] > 0):
+            ax.set_yscale("log")
+        ax.set_xscale("log")
+        ax.set_xlim(float(np.min(f[pos])), float(np.max(f)))
+        method = f" ({spec['method']})" if spec.get("method") else ""
+        ax.set_title(f"{name} series{method}", fontsize=9)
+        ax.set_ylabel(f"power, {spec['power_unit']}", fontsize=8)
+        ax.set_xlabel("frequency, cycles per band")
+        top = ax.secondary_xaxis("top", functions=(lambda v: 1.0 / np.maximum(v, 1e-9),
+                                                  lambda v: 1.0 / np.maximum(v, 1e-9)))
+        top.set_xlabel("period, bands per cycle", fontsize=8)
+        top.tick_params(labelsize=7)
+        ax.legend(fontsize=7, loc="lower left", framealpha=0.85)
+        ax.grid(alpha=0.25)
+    return fig
+
+
+def evolutive_figure(evolutive, searched=None):
+    """Sliding-window spectra: window centre (band number) × frequency, power as an image."""
+    if not evolutive:
+        return _message_figure("No evolutive spectrum was saved with this result.")
+    fig = Figure(figsize=(8.0, 3.2 * len(evolutive) + 0.4), layout="constrained")
+    axes = fig.subplots(len(evolutive), 1, squeeze=False)[:, 0]
+    for ax, ev in zip(axes, evolutive):
+        power = np.asarray(ev["power"], float)
+        img = ax.pcolormesh(ev["centre"], ev["frequency"], power.T, cmap=IMAGE_CMAP, shading="nearest",
+                            rasterized=True)
+        fig.colorbar(img, ax=ax, pad=0.01).set_label("power, normalised", fontsize=8)
+        if searched is not None and min(searched) > 0:
+            for b in searched:
+                ax.axhline(1.0 / b, color="white", lw=0.9, ls="--", path_effects=_OUTLINE)
+        ax.set_xlabel("window centre, band number")
+        ax.set_ylabel("frequency, cycles per band")
+        ax.set_title(f"Evolutive spectrum of the {ev['name']} series (dashed: searched band)", fontsize=9)
+    return fig
+
+
+def counts_figure(counts, estimate=None, method=""):
+    """Bands counted in each successive annual cycle, with the mean and the accepted estimate."""
+    counts = np.asarray([c for c in counts if c is not None], float)
+    if counts.size == 0:
+        return _message_figure("No cycle-by-cycle counts: no significant annual cycle.")
+    fig = Figure(figsize=(8.0, 3.2), layout="constrained")
+    ax = fig.add_subplot(1, 1, 1)
+    idx = np.arange(1, len(counts) + 1)
+    ax.bar(idx, counts, color=LINE["data"], width=0.8, label="bands in the cycle")
+    ax.axhline(np.mean(counts), color=LINE["background"], ls="--", lw=1,
+               label=f"mean {np.mean(counts):.1f} bands per cycle")
+    if estimate is not None and np.isfinite(estimate):
+        ax.axhline(estimate, color=LINE["estimate"], lw=1.3, label=f"estimate {estimate:.1f}")
+    lo = max(0.0, float(np.min(counts)) * 0.8)
+    ax.set_ylim(lo, float(np.max(counts)) * 1.1)   # axis does not start at zero: stated in the label
+    ax.set_xlabel("annual cycle number, from the base")
+    ax.xaxis.set_major_locator(MaxNLocator(integer=True))
+    ax.set_ylabel(f"bands per cycle (axis from {lo:.0f})", fontsize=8)
+    ax.set_title("Cycle-by-cycle counts (each a minimum: missing days are not counted)"
+                 + (f" - {method}" if method else ""), fontsize=9)
+    ax.legend(fontsize=7, framealpha=0.85, loc="lower right")
+    ax.grid(alpha=0.25, axis="y")
+    return fig

@@ -1,0 +1,39 @@
+"""Self-contained HTML: the template in ``templates/report.html.j2`` with every figure inlined as a
+data URI (SVG for line figures, PNG for the mesh views), no external scripts, styles or fonts."""
+from __future__ import annotations
+
+import base64
+import io
+
+import jinja2
+
+_ENV = None
+
+
+def _env() -> jinja2.Environment:
+    global _ENV
+    if _ENV is None:
+        _ENV = jinja2.Environment(loader=jinja2.PackageLoader("bandgeo.report", "templates"),
+                                  autoescape=jinja2.select_autoescape(["html", "j2"]),
+                                  trim_blocks=True, lstrip_blocks=True, undefined=jinja2.StrictUndefined)
+    return _ENV
+
+
+def figure_data_uri(fig, raster: bool = False, dpi: int = 110) -> str:
+    """Encode a matplotlib figure as a ``data:`` URI (SVG with text as paths, or PNG)."""
+    buf = io.BytesIO()
+    if raster:
+        fig.savefig(buf, format="png", dpi=dpi)
+        mime = "image/png"
+    else:
+        import matplotlib
+
+        with matplotlib.rc_context({"svg.fonttype": "path", "svg.hashsalt": "bandgeo"}):
+            fig.savefig(buf, format="svg")
+        mime = "image/svg+xml"
+    return f"data:{mime};base64,{base64.b64encode(buf.getvalue()).decode('ascii')}"
+
+
+def render_html(context: dict) -> str:
+    """Fill the report template with ``context`` (see :func:`bandgeo.report.build.report_context`)."""
+    return _env().get_template("report.html.j2").render(**context)

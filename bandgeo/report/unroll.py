@@ -1,0 +1,131 @@
+"""Unroll a column's side surface about its centreline: height along the axis × azimuth.
+
+Azimuth is measured clockwise from north (specimen ``y``) looking down the axis, ``atan2(x, y)`` as in
+DEVELOPERS.md; height is arc length along the centreline in millimetres.
+"""
+from __future__ import annotations
+
+import numpy as np
+from scipy.ndimage import gaussian_filter
+from scipy.spatial import cKDTree
+
+
+def _frames(tangents: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """East and north unit vectors perpendicular to each tangent (p, 3)."""
+    t = tangents / np.linalg.norm(tangents, axis=1, keepdims=True)
+    north = np.array([0.0, 1.0, 0.0]) - t[:, 1:2] * t
+    bad = np.linalg.norm(north, axis=1) < 1e-6       # axis along y: fall back on x
+    north[bad] = (np.array([1.0, 0.0, 0.0]) - t[bad, 0:1] * t[bad])
+    north /= np.linalg.norm(north, axis=1, keepdims=True)
+    east = np.cross(north, t)
+    return east, north
+
+
+def axis_at(axis, s: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Point (k, 3) and unit tangent (k, 3) of the centreline at arc lengths ``s`` (k,) mm."""
+    h = np.asarray(axis.heights_mm, float)
+    pts, tan = np.asarray(axis.points_mm, float), np.asarray(axis.tangents, float)
+    s = np.atleast_1d(np.asarray(s, float))
+    p = np.stack([np.interp(s, h, pts[:, j]) for j in range(3)], axis=1)
+    t = np.stack([np.interp(s, h, tan[:, j]) for j in range(3)], axis=1)
+    return p, t / np.linalg.norm(t, axis=1, keepdims=True)
+
+
+def unroll_vertices(vertices_mm: np.ndarray, axis) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Height along the axis, azimuth and distance from the axis of each vertex.
+
+    Parameters
+    ----------
+    vertices_mm : (n, 3) float
+        Vertex positions, specimen frame, mm.
+    axis : Centreline
+        ``heights_mm (p,)``, ``points_mm (p, 3)``, ``tangents (p, 3)``.
+
+    Returns
+    -------
+    s_mm, azimuth_deg, radius_mm : (n,) float
+        Arc length along the axis (mm), azimuth clockwise from north in [0, 360) degrees, radius (mm).
+    """
+    v = np.asarray(vertices_mm, float)
+    pts = np.asarray(axis.points_mm, float)
+    tan = np.asarray(axis.tangents, float)
+    tan = tan / np.linalg.norm(tan, axis=1, keepdims=True)
+    east, north = _frames(tan)
+    _, i = cKDTree(pts).query(v, k=1, workers=2)
+    d = v - pts[i]
+    along = np.einsum("ij,ij->i", d, tan[i])
+    s = np.asarray(axis.heights_mm, float)[i] + along
+    r = d - along[:, None] * tan[i]
+    az = np.degrees(np.arctan2(np.einsum("ij,ij->i", r, east[i]), np.einsum("ij,ij->i", r, north[i])))
+    return s, np.mod(az, 360.0), np.linalg.norm(r, axis=1)
+
+
+def relief_image(s_mm, azimuth_deg, radius_mm, n_az=360, n_s=None, smooth_mm=None):
+    """Relief of the side surface on a regular (height, azimuth) grid.
+
+    Relief is the mean radius in each cell minus a smooth version of it (Gaussian, wrapping in
+    azimuth), so it shows laminae and not the column's taper or ellipticity.
+
+    Returns
+    -------
+    image : (n_s, n_az) float
+        Relief in mm, NaN where no vertex falls.
+    s_edges : (n_s + 1,) float
+        Cell edges along the axis, mm.
+    az_edges : (n_az + 1,) float
+        Cell edges in azimuth, degrees.
+    """
+    s_mm = np.asarray(s_mm, float)
+    lo, hi = float(np.min(s_mm)), float(np.max(s_mm))
+    span = max(hi - lo, 1e-9)
+    if n_s is None:
+        n_s = int(np.clip(np.sqrt(len(s_mm) / 4.0), 50, 900))
+    s_edges = np.linspace(lo, hi, n_s + 1)
+    az_edges = np.linspace(0.0, 360.0, n_az + 1)
+    si = np.clip(((s_mm - lo) / span * n_s).astype(np.int64), 0, n_s - 1)
+    ai = np.clip((np.asarray(azimuth_deg) / 360.0 * n_az).astype(np.int64), 0, n_az - 1)
+    flat = si * n_az + ai
+    count = np.bincount(flat, minlength=n_s * n_az).reshape(n_s, n_az)
+    total = np.bincount(flat, weights=radius_mm, minlength=n_s * n_az).reshape(n_s, n_az)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        mean = total / count
+    filled = np.where(count > 0, mean, 0.0)
+    weight = (count > 0).astype(float)
+    ds = span / n_s
+    if smooth_mm is None:
+        smooth_mm = span / 15.0
+    sig = (max(smooth_mm / ds, 1.0), n_az / 24.0)
+    num = gaussian_filter(filled, sig, mode=("nearest", "wrap"))
+    den = gaussian_filter(weight, sig, mode=("nearest", "wrap"))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        smooth = num / den
+    image = np.where(count > 0, mean - smooth, np.nan)
+    return image, s_edges, az_edges
+
+
+def boundary_trace(boundary, axis, radius_mm: float, azimuth_deg: np.ndarray) -> np.ndarray:
+    """Height (mm along the axis) at which a boundary plane meets a cylinder of ``radius_mm``.
+
+    The plane passes through ``boundary.center_mm`` with normal ``boundary.normal``. At azimuth
+    ``phi`` the cylinder point is ``a + R u(phi) + h t`` (axis point ``a``, tangent ``t``), and the
+    plane condition gives ``h = -(n.(a - c) + R n.u) / (n.t)``: a sinusoid whose amplitude is
+    ``R tan(tilt)``.
+
+    Returns
+    -------
+    (k,) float
+        Height along the axis for each azimuth, mm.
+    """
+    s0 = float(boundary.height_mm)
+    a, t = axis_at(axis, [s0])
+    east, north = _frames(t)
+    phi = np.radians(np.asarray(azimuth_deg, float))
+    u = np.sin(phi)[:, None] * east + np.cos(phi)[:, None] * north
+    n = np.asarray(boundary.normal, float)
+    n = n / np.linalg.norm(n)
+    c = np.asarray(boundary.center_mm, float)
+    nt = float(n @ t[0])
+    if abs(nt) < 1e-3:
+        return np.full(len(phi), np.nan)
+    h = -(float(n @ (a[0] - c)) + radius_mm * (u @ n)) / nt
+    return s0 + h
