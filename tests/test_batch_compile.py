@@ -49,7 +49,7 @@ def test_horizon_tests_against_scipy():
     x = np.array([v[0] for v in values])
     mean = x.mean()  # equal weights
     q = np.sum((x - mean) ** 2) / sigma ** 2
-    # Cochran's Q is chi-square with n-1 dof under homogeneity (Cochran 1954, Biometrics 10:101); scipy.
+    # Cochran's Q is chi-square with n-1 dof under homogeneity (Cochran 1954, Biometrics 10:101-129, pages from memory); scipy.
     assert summary["cochran_q"] == pytest.approx(q)
     assert summary["p_value"] == pytest.approx(stats.chi2.sf(q, 2))
     z = (430.0 - 401.0) / np.sqrt(sigma ** 2 + sigma ** 2 / 2)

@@ -42,7 +42,7 @@ def figure_vs_age(rows: list[dict], refs: list, path: Optional[Path]) -> tuple[O
     horizons = sorted({r["horizon"] or "(no horizon)" for r in est})
     colour = {h: OKABE_ITO[i % len(OKABE_ITO)] for i, h in enumerate(horizons)}
 
-    fig, axes = plt.subplots(2, 1, figsize=(8.0, 7.5), sharex=True, constrained_layout=True)
+    fig, axes = plt.subplots(2, 1, figsize=(8.0, 9.0), sharex=True, constrained_layout=True)
     panels = [("days_per_year", "days_per_year_ci95_low", "days_per_year_ci95_high",
                "solar days per year", "days_per_year", "dpy_ci"),
               ("length_of_day_h", "length_of_day_ci95_low_h", "length_of_day_ci95_high_h",
@@ -83,7 +83,7 @@ def figure_vs_age(rows: list[dict], refs: list, path: Optional[Path]) -> tuple[O
     axes[0].set_title("Days per year and length of day against age (intervals: 95%; age bars as given)",
                       fontsize=10)
     handles, labels = axes[0].get_legend_handles_labels()
-    axes[0].legend(handles, labels, fontsize=7, loc="best", framealpha=0.85)
+    fig.legend(handles, labels, fontsize=7, loc="outside lower center", ncol=2, frameon=False)
     buf = io.StringIO()
     fig.savefig(buf, format="svg")
     svg = buf.getvalue()

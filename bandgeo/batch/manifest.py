@@ -167,8 +167,8 @@ def _read_folder(folder: Path) -> list[SpecimenJob]:
 def _fill_from_sheet(job: SpecimenJob) -> None:
     """Copy age, horizon and locality from the sheet (for grouping in the compilation only).
 
-    The sheet itself is handed to the analysis unchanged; this reads the few fields the compilation
-    groups by, so that a batch folder needs no CSV.
+    The sheet itself is handed to the analysis (``bandgeo.scan.read_sheet`` validates it); this reads
+    the few fields the compilation groups by, so that a batch folder needs no CSV.
     """
     if job.sheet_path is None:
         return
@@ -179,8 +179,10 @@ def _fill_from_sheet(job: SpecimenJob) -> None:
     try:
         with open(job.sheet_path, "rb") as fh:
             data = tomllib.load(fh)
-    except (OSError, ValueError) as exc:
-        raise InputError(f"the sheet {job.sheet_path.name!r} is not valid TOML ({exc}); fix or remove it")
+    except (OSError, ValueError):
+        # Not this module's call: the analysis reads the sheet and fails this one specimen with the
+        # sheet reader's message, while the rest of the batch goes on.
+        return
     flat = dict(data)
     for value in data.values():  # accept one level of tables, e.g. [specimen] or [age]
         if isinstance(value, dict):
