@@ -249,6 +249,8 @@ def build_column(record: LaminaRecord, gen: np.random.Generator) -> ColumnMesh:
         "groove_depth_effective_mm": float(np.median(depth_eff)),
         "groove_halfwidth_effective_mm": float(np.median(half_eff)),
         "holes": hole_info,
+        # Laminae this thin cannot show a separate groove at this ring spacing (a sampling limit).
+        "laminae_thinner_than_two_ring_spacings": int((record.thickness_mm < 2.0 * (s[1] - s[0])).sum()),
     }
     return ColumnMesh(vertices, faces.astype(np.int64, copy=False), coord, info)
 

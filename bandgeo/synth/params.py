@@ -166,7 +166,7 @@ class SynthParams:
                                  f"{self.sway_amplitude_deg + self.mean_tilt_deg:g}; lower the tilt or sway")
         _range(self, "radius_mm", 0.0, 1e5, low_open=True)
         _range(self, "radius_variation", 0.0, 0.5, high_open=True)
-        _range(self, "dome_height_mm", 0.0, self.radius_mm)
+        _range(self, "dome_height_mm", 0.0, 4.0 * self.radius_mm)
         _range(self, "groove_depth_mm", 0.0, 0.25 * self.radius_mm)
         _range(self, "groove_width_fraction", 0.0, 1.0, low_open=True)
         _range(self, "scanner_noise_mm", 0.0, 0.1 * self.radius_mm)
