@@ -144,7 +144,7 @@ class BatchSummary:
         for o in self.outcomes:
             d = o.digest
             if o.status == "failed":
-                dpy, lod = f"error: {o.error}", ""
+                dpy, lod = "-", ""
             elif o.status == "pending":
                 dpy, lod = "not run", ""
             elif d.get("days_per_year") is None:
@@ -154,6 +154,8 @@ class BatchSummary:
                 lod = _fmt(d.get("length_of_day_h"), d.get("lod_low"), d.get("lod_high"), 2)
             secs = "" if o.seconds is None else f"{o.seconds:7.1f}"
             lines.append(f"{o.specimen_id:<16} {o.status:<8} {dpy:<26} {lod:<24} {secs:>7}")
+            if o.status == "failed":
+                lines.append(f"    error: {o.error}")
         c = self.to_dict()["counts"]
         lines.append(f"{c['total']} specimens: {c['done']} analysed, {c['skipped']} already done "
                      f"(skipped), {c['failed']} failed, {c['pending']} not run"
