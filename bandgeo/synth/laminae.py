@@ -35,7 +35,6 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 import numpy as np
-from scipy.signal import lfilter
 
 from .params import SynthParams
 
@@ -147,6 +146,7 @@ def _rng(rng, params: SynthParams):
 
 def _ar1(gen: np.random.Generator, n: int, phi: float, sigma: float) -> np.ndarray:
     """Stationary Gaussian AR(1) series of length n, variance sigma**2, lag-1 correlation phi."""
+    from scipy.signal import lfilter  # scipy.signal takes ~1 s to import; keep `bandgeo --help` fast
     innov = gen.standard_normal(n) * (sigma * np.sqrt(1.0 - phi * phi))
     if sigma == 0.0:
         return np.zeros(n)
