@@ -47,13 +47,15 @@ def periodicity(n_bands, period, significant=True, seed=2):
     power = background * rng.exponential(1.0, len(f))
     if significant:
         power += 60.0 * np.exp(-0.5 * ((f - 1.0 / period) / (0.3 / n_bands)) ** 2)
-    spectra = {"thickness": {"frequency": f, "power": power, "background": background,
-                             "level95": background * 3.0, "level99": background * 4.6,
-                             "method": "multitaper"},
-               "evolutive": {"centre": np.linspace(100, n_bands - 100, 30), "frequency": f[:120],
-                             "power": rng.exponential(1.0, (30, 120))}}
-    table = {"frequency_cycles_per_band": f, "period_bands_per_cycle": 1.0 / f,
-             "thickness_power_normalised": power, "thickness_red_noise_95_normalised": background * 3.0}
+    # The flat layout of bandgeo.spectral.PeriodicityResult.spectra.
+    spectra = {"frequency_cycles_per_band": f, "period_bands": 1.0 / f,
+               "thickness_periodogram_mm2_band": power, "thickness_ar1_background_mm2_band": background,
+               "thickness_level95_mm2_band": background * 3.0, "thickness_level99_mm2_band": background * 4.6,
+               "thickness_multitaper_mm2_band": background * (1 + 0.2 * rng.standard_normal(len(f))) ** 2,
+               "evolutive_centre_band": np.linspace(100, n_bands - 100, 30),
+               "evolutive_frequency_cycles_per_band": f[:120],
+               "evolutive_ratio": rng.exponential(1.0, (30, 120))}
+    table = {k: v for k, v in spectra.items() if np.ndim(v) == 1 and len(v) == len(f)}
     return SimpleNamespace(spectra=spectra, to_spectra_table=lambda: table,
                            to_dict=lambda: {})
 
@@ -71,7 +73,8 @@ def result_dict(n_bands, period, significant=True, age_ma=1100.0):
                        "cycle_count": {"estimate": period - 3.0 if significant else None,
                                        "ci95": [period - 15, period + 9] if significant else None,
                                        "method": "band-pass analytic-signal phase",
-                                       "counts": [period - 10, period + 4, period - 6] if significant else []},
+                                       "per_cycle_counts": [period - 10, period + 4, period - 6]
+                                       if significant else []},
                        "sway": {"estimate": period + 1.0 if significant else None,
                                 "ci95": [period - 20, period + 22] if significant else None,
                                 "method": "sway-plane tilt spectrum"}},
@@ -92,7 +95,7 @@ def result_dict(n_bands, period, significant=True, age_ma=1100.0):
                      "age_ma": age_ma, "age_err_ma": 50.0, "locality": "Tallow Creek, Mirrin Ranges",
                      "horizon": "K3", "formation": "Karrabin Formation"},
         "bands": {"count": n_bands, "mean_thickness_mm": 0.05, "median_thickness_mm": 0.049,
-                  "ci95": [0.048, 0.052], "method": "curvature clustering"},
+                  "mean_thickness_mm_ci95": [0.048, 0.052], "mean_thickness_method": "t-interval"},
         "daily_test": {"verdict": "consistent with daily increments", "spacing_cv": 0.21, "p_value": 0.01,
                        "method": "depth-domain peak sharpness vs random-spacing null"},
         "days_per_year": dpy, "tidal": {"detected": False},

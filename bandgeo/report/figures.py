@@ -181,7 +181,10 @@ def periodogram_figure(spectra, searched=None, estimate_frequency=None):
             f_lo, f_hi = 1.0 / max(searched), 1.0 / min(searched)
             ax.axvspan(f_lo, f_hi, color=LINE["search"], alpha=0.18, lw=0,
                        label=f"searched band: {min(searched):.0f}-{max(searched):.0f} bands per cycle")
-        ax.plot(f[pos], p[pos], color=LINE["data"], lw=0.8, label="power")
+        ax.plot(f[pos], p[pos], color=LINE["data"], lw=0.8, label="periodogram")
+        if spec.get("multitaper") is not None:
+            ax.plot(f[pos], spec["multitaper"][pos], color=LINE["reference"], lw=0.8, alpha=0.8,
+                    label="multitaper estimate")
         for key, style, text in (("background", ":", "red-noise background"),
                                  ("level95", "--", "95 % red-noise level"),
                                  ("level99", "-.", "99 % red-noise level")):
@@ -218,7 +221,7 @@ def evolutive_figure(evolutive, searched=None):
         power = np.asarray(ev["power"], float)
         img = ax.pcolormesh(ev["centre"], ev["frequency"], power.T, cmap=IMAGE_CMAP, shading="nearest",
                             rasterized=True)
-        fig.colorbar(img, ax=ax, pad=0.01).set_label("power, normalised", fontsize=8)
+        fig.colorbar(img, ax=ax, pad=0.01).set_label(ev.get("label", "power"), fontsize=8)
         if searched is not None and min(searched) > 0:
             for b in searched:
                 ax.axhline(1.0 / b, color="white", lw=0.9, ls="--", path_effects=_OUTLINE)

@@ -119,7 +119,7 @@ def dpy_significant(result: Mapping) -> bool:
 def cycle_counts(result: Mapping) -> list[float]:
     """Bands per cycle, cycle by cycle, from the cycle-count method block (empty if absent)."""
     block = ((result.get("days_per_year") or {}).get("methods") or {}).get("cycle_count") or {}
-    for key in ("counts", "per_cycle", "cycle_counts", "bands_per_cycle", "counts_per_cycle"):
+    for key in ("per_cycle_counts", "counts", "per_cycle", "cycle_counts", "bands_per_cycle", "counts_per_cycle"):
         value = block.get(key) if isinstance(block, Mapping) else None
         if isinstance(value, (list, tuple)) and value:
             return [float(v) for v in value if v is not None]
@@ -164,9 +164,10 @@ def key_results(result: Mapping) -> list[dict]:
     for key, label in (("mean_thickness_mm", "mean band thickness"),
                        ("median_thickness_mm", "median band thickness")):
         if bands.get(key) is not None:
-            ci = bands.get("ci95") if key == "mean_thickness_mm" else bands.get("median_ci95")
+            ci = bands.get(f"{key}_ci95") or (bands.get("ci95") if key == "mean_thickness_mm" else None)
+            method = bands.get(key.replace("_mm", "_method")) or bands.get("method") or "—"
             rows.append({"name": label, "value": f"{fmt(bands[key])} mm", "ci95": fmt_ci(ci, "mm"),
-                         "method": str(bands.get("ci95_method") or bands.get("method") or "—")})
+                         "method": str(method)})
     if dpy_significant(result):
         dpy = result["days_per_year"]
         rows.append(dict(estimate_row("days per year (combined)", dpy, DPY_UNIT), highlight=True))

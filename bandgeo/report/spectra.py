@@ -42,6 +42,42 @@ def _one(d: Mapping) -> dict | None:
     return out
 
 
+_UNIT_NAMES = {"mm2_band": "mm²·band", "deg2_band": "degrees²·band", "mm2": "mm²", "deg2": "degrees²"}
+
+
+def _prefixed(spectra: Mapping) -> dict[str, dict]:
+    """The layout of ``bandgeo.spectral``: ``frequency_cycles_per_band`` plus, per series ``NAME``,
+    ``NAME_periodogram_UNIT``, ``NAME_ar1_background_UNIT``, ``NAME_level95_UNIT``, ``NAME_level99_UNIT``
+    (family-wise levels) and optionally ``NAME_multitaper_UNIT``."""
+    import re
+
+    f = spectra.get("frequency_cycles_per_band")
+    if f is None:
+        return {}
+    f = np.asarray(f, dtype=float)
+    out = {}
+    for key in spectra:
+        m = re.fullmatch(r"(?P<name>[a-z0-9]+)_periodogram_(?P<unit>\w+)", str(key))
+        if not m:
+            continue
+        name, unit = m.group("name"), m.group("unit")
+
+        def arr(kind):
+            v = spectra.get(f"{name}_{kind}_{unit}")
+            v = None if v is None else np.asarray(v, dtype=float)
+            return v if v is not None and v.shape == f.shape else None
+
+        power = arr("periodogram")
+        if power is None:
+            continue
+        out[name] = {"frequency": f, "power": power, "background": arr("ar1_background"),
+                     "level95": arr("level95"), "level99": arr("level99"), "multitaper": arr("multitaper"),
+                     "power_unit": _UNIT_NAMES.get(unit, unit.replace("_", " ")),
+                     "method": "periodogram; AR(1) background; family-wise levels",
+                     "series_unit": ""}
+    return out
+
+
 def normalise_spectra(spectra: Any) -> dict[str, dict]:
     """Return ``{series name: {frequency, power, background, level95, level99, power_unit, method}}``.
 
@@ -49,6 +85,9 @@ def normalise_spectra(spectra: Any) -> dict[str, dict]:
     """
     if not isinstance(spectra, Mapping):
         return {}
+    prefixed = _prefixed(spectra)
+    if prefixed:
+        return prefixed
     flat = _one(spectra)
     if flat is not None:
         return {"thickness": flat}
@@ -89,8 +128,13 @@ def normalise_evolutive(spectra: Any) -> list[dict]:
             power = power.T
         if power.shape != (len(centre), len(freq)):
             return
-        found.append({"name": name, "centre": centre, "frequency": freq, "power": power})
+        found.append({"name": name, "centre": centre, "frequency": freq, "power": power,
+                      "label": str(d.get("label", "power, normalised"))})
 
+    if spectra.get("evolutive_ratio") is not None:           # bandgeo.spectral's flat layout
+        take("thickness", {"centre": spectra.get("evolutive_centre_band"),
+                           "frequency": spectra.get("evolutive_frequency_cycles_per_band"),
+                           "power": spectra["evolutive_ratio"], "label": "power / red-noise background"})
     for key in _EVOLUTIVE_KEYS:
         if key in spectra:
             take("thickness", spectra[key])
