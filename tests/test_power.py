@@ -40,10 +40,10 @@ def test_exact_interval_matches_beta_quantiles(k, n):
 
 @pytest.fixture(scope="module")
 def signal_table():
-    # 120 days/yr keeps records short; the searched band reaches about a third of the record, so a
+    # 60 days/yr keeps records short; the searched band reaches about a third of the record, so a
     # one-year record cannot show an annual cycle at all while a long record can.
-    return power_analysis(noise_cv=0.25, annual_amplitude=0.12, years=(1.0, 4.0, 10.0), days_per_year=120.0,
-                          n_trials=30, seed=3, ar1_phi=0.3, n_sim=N_SIM)
+    return power_analysis(noise_cv=0.25, annual_amplitude=0.12, years=(1.0, 4.0, 8.0), days_per_year=60.0,
+                          n_trials=24, seed=3, ar1_phi=0.3, n_sim=N_SIM)
 
 
 def test_detection_increases_with_years(signal_table):
@@ -54,12 +54,12 @@ def test_detection_increases_with_years(signal_table):
     assert p[0] <= p[1] + 0.15 and p[1] <= p[2] + 0.15, p  # monotone within sampling slack
     assert long["median_ci_width_days_per_year"] is not None
     # Intervals among detections should mostly hold the truth (92-98% is the pipeline's target; with
-    # 30 trials only a gross failure is detectable).
+    # 24 trials only a gross failure is detectable).
     assert long["coverage_ci95_high"] >= 0.92
 
 
 def test_false_alarms_at_zero_amplitude_within_nominal_rate():
-    table = power_analysis(noise_cv=0.25, annual_amplitude=0.0, years=(10.0,), days_per_year=120.0,
+    table = power_analysis(noise_cv=0.25, annual_amplitude=0.0, years=(5.0,), days_per_year=60.0,
                            n_trials=60, seed=4, ar1_phi=0.5, n_sim=N_SIM)
     row = table.rows[0]
     # At most the nominal 5%, plus binomial slack: the 99% quantile of Binomial(n, 0.05).
@@ -70,7 +70,7 @@ def test_table_outputs_and_determinism(signal_table, tmp_path):
     files = signal_table.write(tmp_path)
     with open(files["csv"], newline="") as fh:
         rows = list(csv.DictReader(fh))
-    assert [float(r["years"]) for r in rows] == [1.0, 4.0, 10.0]
+    assert [float(r["years"]) for r in rows] == [1.0, 4.0, 8.0]
     assert "median_ci_width_days_per_year" in rows[0] and "p_detect_ci95_low" in rows[0]
     assert files["png"].read_bytes()[:8] == b"\x89PNG\r\n\x1a\n"
     assert files["pdf"].read_bytes().startswith(b"%PDF") and "<svg" in files["svg"].read_text()
@@ -79,7 +79,7 @@ def test_table_outputs_and_determinism(signal_table, tmp_path):
 
 
 def test_workers_do_not_change_the_table():
-    kw = dict(noise_cv=0.2, annual_amplitude=0.3, years=(4.0,), days_per_year=120.0, n_trials=6, seed=9,
+    kw = dict(noise_cv=0.2, annual_amplitude=0.3, years=(4.0,), days_per_year=60.0, n_trials=6, seed=9,
               n_sim=N_SIM)
     assert power_analysis(**kw, workers=1).trials == power_analysis(**kw, workers=2).trials
 
@@ -95,7 +95,7 @@ def test_bad_parameters():
 
 def test_power_command_prints_the_table_with_units(tmp_path):
     proc = subprocess.run([sys.executable, "-m", "bandgeo.cli", "power", "--noise-cv", "0.2", "--amplitude",
-                           "0.3", "--years", "2,6", "--days-per-year", "120", "--trials", "4", "--n-sim",
+                           "0.3", "--years", "2,6", "--days-per-year", "60", "--trials", "4", "--n-sim",
                            str(N_SIM), "--out", str(tmp_path / "power out")],
                           capture_output=True, text=True, timeout=300)
     assert proc.returncode == 0, proc.stderr

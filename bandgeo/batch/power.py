@@ -94,6 +94,11 @@ class PowerTable:
         lines.append("P(detect): share of trials where the test declared a significant annual cycle "
                      f"(at zero amplitude this is the false-alarm rate). Coverage: share of detections "
                      f"whose 95% interval holds the true {p['truth_days_per_year']:g} bands/yr.")
+        short = [r["years"] for r in self.rows if r["bands_mean"] / 3.0 < p["truth_days_per_year"]]
+        if short:
+            lines.append(f"Records of {', '.join(f'{y:g}' for y in short)} yr put the annual period beyond "
+                         "the default searched band (up to a third of the record): no annual cycle can be "
+                         "claimed from them.")
         return "\n".join(lines)
 
     def to_dict(self) -> dict:
