@@ -74,9 +74,17 @@ def apply_review(segmentation, specimen, review):
     for b in state.active():
         if b.auto and not b.moved:
             original = by_id[b.id]
-            boundaries.append(_replace(original, confidence=1.0) if b.accepted else original)
+            if b.accepted:
+                changes = {"confidence": 1.0}
+                if isinstance(getattr(original, "flags", None), list):
+                    changes["flags"] = original.flags + ["accepted in review"]
+                original = _replace(original, **changes)
+            boundaries.append(original)
         else:
-            boundaries.append(Boundary.from_height(b.height_mm, axis, id=b.id, origin="review"))
+            made = Boundary.from_height(b.height_mm, axis, id=b.id, origin="review")
+            if isinstance(getattr(made, "flags", None), list):
+                made.flags.append("moved in review" if b.auto else "added in review")
+            boundaries.append(made)
     edited = segmentation.with_boundaries(boundaries, specimen)
 
     resolution = dict(getattr(edited, "resolution", {}) or {})

@@ -185,9 +185,16 @@ class FolderData:
     def _surface(self) -> dict:
         lo, hi = self.span
         bs = np.sort([b.height_mm for b in self.segmentation.boundaries])
-        spacing = float(np.median(np.diff(bs))) if bs.size > 2 else (hi - lo) / 50
-        rows = int(np.clip(np.ceil((hi - lo) / max(spacing / 6.0, 1e-6)), 400, 4000))
-        cols = 360
+        spacing = (getattr(self.segmentation, "resolution", None) or {}).get("band_spacing_mm")
+        if not (isinstance(spacing, (int, float)) and np.isfinite(spacing) and spacing > 0):
+            spacing = float(np.median(np.diff(bs))) if bs.size > 2 else None
+        cols = 180
+        # as fine as the vertices can fill (about 1.5 a cell), and no finer than 12 rows a band
+        rows = len(self.s) / (1.5 * cols)
+        if spacing:
+            rows = min(rows, (hi - lo) / (spacing / 12.0))
+        rows = int(np.clip(rows, 400, 4000))
+        spacing = spacing or (hi - lo) / 100.0
         s_corr = self.s - self.offset_at(self.s, self.az)
         ri = np.floor((s_corr - lo) / (hi - lo) * rows).astype(np.int64)
         ci = np.clip(np.floor(self.az / 360.0 * cols).astype(np.int64), 0, cols - 1)
@@ -195,7 +202,7 @@ class FolderData:
         flat = ri[ok] * cols + ci[ok]
         count = np.bincount(flat, None, rows * cols).reshape(rows, cols)
         radius = np.bincount(flat, self.r[ok], rows * cols).reshape(rows, cols)
-        layers = {"relief": _relief(radius, count)}
+        layers = {"relief": _relief(radius, count, rows * spacing / (hi - lo))}
         if self.colors is not None:
             lum = self.colors[ok].astype(float) @ np.array([0.2126, 0.7152, 0.0722])
             layers["colour"] = _smooth_mean(np.bincount(flat, lum, rows * cols).reshape(rows, cols), count)
@@ -236,15 +243,18 @@ def _smooth_mean(sums, count, sigma=0.8):
     return out
 
 
-def _relief(radius_sum, count):
-    """Radius minus its slowly varying trend along the height: grooves negative, ridges positive (mm)."""
+def _relief(radius_sum, count, rows_per_band=6.0):
+    """Radius minus its slowly varying trend (over height and azimuth): grooves negative, ridges
+    positive (mm). The trend is a Gaussian average a few bands tall and about 20 degrees wide, so an
+    axis slightly off centre or a swelling column does not swamp the bands."""
     mean = _smooth_mean(radius_sum, count)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", RuntimeWarning)  # rows with no data give NaN, handled below
-        row = np.nanmedian(mean, axis=1)
-    row = np.where(np.isfinite(row), row, np.nanmean(row) if np.isfinite(row).any() else 0.0)
-    trend = gaussian_filter(row, max(mean.shape[0] / 60.0, 2.0), mode="nearest")
-    return mean - trend[:, None]
+    ok = np.isfinite(mean)
+    sigma = (max(3.0 * rows_per_band, mean.shape[0] / 200.0), mean.shape[1] / 18.0)
+    num = gaussian_filter(np.where(ok, mean, 0.0), sigma, mode=("nearest", "wrap"))
+    den = gaussian_filter(ok.astype(float), sigma, mode=("nearest", "wrap"))
+    with np.errstate(invalid="ignore", divide="ignore"):
+        trend = num / den
+    return np.where(ok, mean - trend, np.nan)
 
 
 def _to_uint8(grid):
