@@ -43,12 +43,20 @@ def _index_bits(k: int) -> int:
 
 
 def _sort_with_index(keys: np.ndarray, key_bits: int):
-    """Return (order, sorted_keys) for non-negative int64 ``keys`` using a packed sort when it fits."""
+    """Return (order, sorted_keys) for non-negative int64 ``keys`` using a packed sort when it fits.
+
+    ``keys`` may be overwritten (it is reused as the sort buffer).
+    """
     k = len(keys)
     ib = _index_bits(k)
     if key_bits + ib <= 63:
-        packed = np.sort((keys.astype(np.int64) << ib) | np.arange(k, dtype=np.int64))
-        return packed & ((1 << ib) - 1), packed >> ib
+        packed = keys if keys.dtype == np.int64 else keys.astype(np.int64)
+        packed <<= ib
+        packed |= np.arange(k, dtype=np.int64)
+        packed.sort()
+        order = packed & ((1 << ib) - 1)
+        packed >>= ib
+        return order, packed
     order = np.argsort(keys, kind="stable")
     return order, keys[order]
 
@@ -71,11 +79,13 @@ def first_of_equal_rows(rows: np.ndarray) -> np.ndarray:
     if rows.dtype.kind == "f":
         rows = rows + 0.0  # -0.0 -> 0.0 so that equal numbers hash alike
     bits = rows.view(np.uint64)
-    h = np.zeros(k, dtype=np.uint64)
-    for c in range(rows.shape[1]):
-        h = _mix(h ^ (bits[:, c] + np.uint64((0x9E3779B97F4A7C15 * (c + 1)) & 0xFFFFFFFFFFFFFFFF)))
+    h = bits[:, 0] * _M2
+    for c in range(1, rows.shape[1]):
+        h = (h ^ (h >> np.uint64(29))) + bits[:, c] * _M3
+    h = _mix(h)
     ib = _index_bits(k)
-    order, hs = _sort_with_index((h >> np.uint64(ib + 1)).astype(np.int64), 63 - ib)
+    h >>= np.uint64(ib + 1)
+    order, hs = _sort_with_index(h.view(np.int64), 63 - ib)
     start = np.empty(k, dtype=bool)
     start[0] = True
     np.not_equal(hs[1:], hs[:-1], out=start[1:])
@@ -83,10 +93,11 @@ def first_of_equal_rows(rows: np.ndarray) -> np.ndarray:
     rep_sorted = order[head]
     rep = np.empty(k, dtype=np.int64)
     rep[order] = rep_sorted
-    bad = np.any(rows[order] != rows[rep_sorted], axis=1)
+    later = np.flatnonzero(~start)  # members of a run after its head: candidate duplicates
+    bad = np.any(rows[order[later]] != rows[rep_sorted[later]], axis=1)
     if bad.any():  # hash collisions: settle the few affected runs exactly
         run_id = np.cumsum(start) - 1
-        sub = order[np.isin(run_id, np.unique(run_id[bad]))]
+        sub = order[np.isin(run_id, np.unique(run_id[later[bad]]))]
         _, inv = np.unique(rows[sub], axis=0, return_inverse=True)
         first = np.full(inv.max() + 1, np.iinfo(np.int64).max, dtype=np.int64)
         np.minimum.at(first, inv.ravel(), sub)
@@ -96,7 +107,43 @@ def first_of_equal_rows(rows: np.ndarray) -> np.ndarray:
 
 def _components(n: int, a: np.ndarray, b: np.ndarray) -> np.ndarray:
     graph = coo_matrix((np.ones(len(a), dtype=np.int8), (a, b)), shape=(n, n)).tocsr()
-    return connected_components(graph, directed=False)[1]
+    return connected_components(graph, directed=True, connection="weak")[1]
+
+
+@dataclass
+class _Edges:
+    order: np.ndarray    # (3m,) directed-edge positions (face * 3 + corner), sorted by undirected key
+    starts: np.ndarray   # start of each run of equal keys in ``order``
+    runlen: np.ndarray   # length of each run (1 boundary, 2 manifold, > 2 non-manifold)
+
+
+def _edge_runs(f: np.ndarray, n: int) -> _Edges:
+    e0 = f.ravel()
+    e1 = np.roll(f, -1, axis=1).ravel()
+    key = np.minimum(e0, e1)
+    key *= n
+    key += np.maximum(e0, e1)
+    del e1
+    order, ks = _sort_with_index(key, 2 * _index_bits(n))
+    start = np.empty(len(ks), dtype=bool)
+    start[0] = True
+    np.not_equal(ks[1:], ks[:-1], out=start[1:])
+    del ks
+    starts = np.flatnonzero(start)
+    return _Edges(order, starts, np.diff(np.append(starts, len(start))))
+
+
+def _edge_ends(f: np.ndarray, pos: np.ndarray):
+    face, corner = np.divmod(pos, 3)
+    return f[face, corner], f[face, (corner + 1) % 3]
+
+
+def _run_members(edges: _Edges, runs: np.ndarray):
+    """Positions in ``order`` of every member of the given runs, and of each one's run head."""
+    st, rl = edges.starts[runs], edges.runlen[runs]
+    head = np.repeat(st, rl)
+    offs = np.arange(len(head)) - np.repeat(np.cumsum(rl) - rl, rl)
+    return head, head + offs
 
 
 def clean_mesh(vertices: np.ndarray, faces: np.ndarray, progress=None) -> CleanResult:
@@ -130,76 +177,81 @@ def clean_mesh(vertices: np.ndarray, faces: np.ndarray, progress=None) -> CleanR
                              f"and {int(used_bad.sum())} faces use them; repair or re-export the scan")
     counts["nonfinite_vertices_removed"] = n_bad
     # 1. merge exactly coincident vertices (finite ones only)
-    rep = np.arange(n, dtype=np.int64)
-    idx = np.flatnonzero(finite) if n_bad else rep
-    rep[idx] = idx[first_of_equal_rows(vertices[idx])] if n_bad else first_of_equal_rows(vertices)
-    counts["duplicate_vertices_merged"] = int(np.count_nonzero(rep != np.arange(n)))
-    f = rep[faces]
+    arange_n = np.arange(n, dtype=np.int64)
+    if n_bad:
+        idx = np.flatnonzero(finite)
+        rep = arange_n.copy()
+        rep[idx] = idx[first_of_equal_rows(vertices[idx])]
+    else:
+        rep = first_of_equal_rows(vertices)
+    merged = rep != arange_n
+    n_merged = int(np.count_nonzero(merged))
+    counts["duplicate_vertices_merged"] = n_merged
+    f = rep[faces] if n_merged else np.array(faces, dtype=np.int64, copy=True)
     # 2. degenerate faces: repeated index or zero area
     report(progress, "cleaning: degenerate faces", 1, 6)
     repeated = (f[:, 0] == f[:, 1]) | (f[:, 1] == f[:, 2]) | (f[:, 0] == f[:, 2])
     v0 = vertices[f[:, 0]]
-    cross = np.cross(vertices[f[:, 1]] - v0, vertices[f[:, 2]] - v0)
+    d1 = vertices[f[:, 1]] - v0
+    d2 = vertices[f[:, 2]] - v0
+    cross = np.cross(d1, d2)
+    d1 += d2
+    d1 /= 3.0
+    d1 += v0  # d1 is now the face centroid
+    centroid_f = d1
+    del d2, v0
     area2 = np.sqrt(np.einsum("ij,ij->i", cross, cross))
     span = np.ptp(vertices[finite], axis=0) if n_bad else np.ptp(vertices, axis=0)
-    tol = 1e-13 * float(np.dot(span, span))
-    degenerate = repeated | (area2 <= tol)
+    degenerate = repeated | (area2 <= 1e-13 * float(np.dot(span, span)))
     counts["degenerate_faces_removed"] = int(np.count_nonzero(degenerate))
     if degenerate.any():
         keep = ~degenerate
-        f, cross, area2, v0 = f[keep], cross[keep], area2[keep], v0[keep]
-    # 3. repeated faces (same three vertices, any order)
-    if len(f):
-        frep = first_of_equal_rows(np.sort(f, axis=1))
-        dup = frep != np.arange(len(f))
-        counts["duplicate_faces_removed"] = int(np.count_nonzero(dup))
-        if dup.any():
-            keep = ~dup
-            f, cross, area2, v0 = f[keep], cross[keep], area2[keep], v0[keep]
-    else:
-        counts["duplicate_faces_removed"] = 0
-    m = len(f)
-    if m == 0:
+        f, cross, area2, centroid_f = f[keep], cross[keep], area2[keep], centroid_f[keep]
+    if len(f) == 0:
         raise InputError("no usable faces are left after removing degenerate ones (all have zero area or repeat "
                          "a vertex); the mesh is broken, re-export the scan")
+    # 3. edges (one packed sort), and repeated faces, which always share an edge
+    report(progress, "cleaning: edges", 2, 6)
+    counts["duplicate_faces_removed"] = 0
+    while True:
+        m = len(f)
+        edges = _edge_runs(f, n)
+        fsum = f.sum(axis=1)
+        multi = np.flatnonzero(edges.runlen == 2)
+        fh, fm = edges.order[edges.starts[multi]] // 3, edges.order[edges.starts[multi] + 1] // 3
+        nm = np.flatnonzero(edges.runlen > 2)
+        if len(nm):
+            head, member = _run_members(edges, nm)
+            fh = np.concatenate([fh, edges.order[head] // 3])
+            fm = np.concatenate([fm, edges.order[member] // 3])
+        # two faces sharing an edge have the same three vertices exactly when their index sums agree
+        same = (fh != fm) & (fsum[fh] == fsum[fm])
+        if not same.any():
+            break
+        dup = np.zeros(m, dtype=bool)
+        dup[np.maximum(fh[same], fm[same])] = True
+        counts["duplicate_faces_removed"] += int(np.count_nonzero(dup))
+        keep = ~dup
+        f, cross, area2, centroid_f = f[keep], cross[keep], area2[keep], centroid_f[keep]
+    del fsum, fh, fm, same
     referenced = np.zeros(n, dtype=bool)
     referenced[f.ravel()] = True
-    referenced[rep != np.arange(n)] = True  # merged-away vertices are counted as merged, not unreferenced
-    counts["unreferenced_vertices_removed"] = int(n - np.count_nonzero(referenced) - n_bad)
-    # 4. edges: one packed sort of the 3m directed edges by their undirected key
-    report(progress, "cleaning: edges", 2, 6)
-    e0 = f.ravel()
-    e1 = f[:, [1, 2, 0]].ravel()
-    lo = np.minimum(e0, e1)
-    hi = np.maximum(e0, e1)
-    forward = e0 < e1
-    key = lo * n + hi
-    order, ks = _sort_with_index(key, 2 * _index_bits(n))
-    del key
-    ne = len(ks)
-    start = np.empty(ne, dtype=bool)
-    start[0] = True
-    np.not_equal(ks[1:], ks[:-1], out=start[1:])
-    starts = np.flatnonzero(start)
-    runlen = np.diff(np.append(starts, ne))
+    counts["unreferenced_vertices_removed"] = int(n - np.count_nonzero(referenced | merged) - n_bad)
+    order, starts, runlen = edges.order, edges.starts, edges.runlen
     pair_pos = starts[runlen == 2]
     ea, eb = order[pair_pos], order[pair_pos + 1]
     fa, fb = ea // 3, eb // 3
-    same_dir = forward[ea] == forward[eb]  # a shared edge walked the same way: winding disagrees
+    a0, a1 = _edge_ends(f, ea)
+    b0, _ = _edge_ends(f, eb)
+    same_dir = a0 == b0  # the shared edge is walked the same way by both faces: their windings disagree
+    del a0, a1, b0, ea, eb, pair_pos
     nm_runs = np.flatnonzero(runlen > 2)
     stats["non_manifold_edges"] = int(len(nm_runs))
-    boundary_pos = order[starts[runlen == 1]]
-    # 5. pieces
+    # 4. pieces (faces joined through edges)
     report(progress, "cleaning: pieces", 3, 6)
     if len(nm_runs):
-        members = np.repeat(starts[nm_runs], runlen[nm_runs])
-        within = np.concatenate([np.arange(s, s + r) for s, r in zip(starts[nm_runs], runlen[nm_runs])]) \
-            if len(nm_runs) < 200000 else None
-        if within is None:  # very many non-manifold edges: build the positions vectorized
-            offs = np.arange(len(members)) - np.repeat(np.cumsum(runlen[nm_runs]) - runlen[nm_runs], runlen[nm_runs])
-            within = members + offs
-        la, lb = order[members] // 3, order[within] // 3
-        piece = _components(m, np.concatenate([fa, la]), np.concatenate([fb, lb]))
+        head, member = _run_members(edges, nm_runs)
+        piece = _components(m, np.concatenate([fa, order[head] // 3]), np.concatenate([fb, order[member] // 3]))
     else:
         piece = _components(m, fa, fb)
     area = 0.5 * area2
@@ -209,13 +261,16 @@ def clean_mesh(vertices: np.ndarray, faces: np.ndarray, progress=None) -> CleanR
     stats["pieces"] = int(n_pieces)
     ranked = np.sort(piece_area)[::-1]
     stats["piece_area_fractions"] = [float(a / piece_area.sum()) for a in ranked[:5]]
-    keep_face = piece == best
+    keep_face = piece == best if n_pieces > 1 else np.ones(m, dtype=bool)
     counts["pieces_removed"] = int(n_pieces - 1)
     counts["faces_in_removed_pieces"] = int(m - np.count_nonzero(keep_face))
-    # 6. winding: consistent and outward, per edge-connected patch of the kept piece
+    # 5. winding: consistent and outward, per edge-connected patch of the kept piece
     report(progress, "cleaning: winding", 4, 6)
-    in_piece = keep_face[fa] & keep_face[fb]
-    pa, pb, pd = fa[in_piece], fb[in_piece], same_dir[in_piece]
+    if n_pieces > 1:
+        in_piece = keep_face[fa]
+        pa, pb, pd = fa[in_piece], fb[in_piece], same_dir[in_piece]
+    else:
+        pa, pb, pd = fa, fb, same_dir
     stats["inconsistent_edges"] = int(np.count_nonzero(pd))
     if pd.any():
         # double cover: node f (as is) and f + m (flipped); an agreeing edge joins like sheets
@@ -227,35 +282,40 @@ def clean_mesh(vertices: np.ndarray, faces: np.ndarray, progress=None) -> CleanR
         patch = np.minimum(l0, l1)
         flip = l0 != patch
     else:
-        patch = _components(m, pa, pb)
-        flip = np.zeros(m, dtype=bool)
+        patch = piece if not len(nm_runs) else _components(m, pa, pb)
+        flip = None
         stats["non_orientable_faces"] = 0
-    sign = np.where(flip, -1.0, 1.0)
-    centroid_f = v0 + (vertices[f[:, 1]] + vertices[f[:, 2]] - 2 * v0) / 3.0
-    w = area * keep_face
+    del fa, fb, same_dir, pa, pb, pd
+    w = area * keep_face if n_pieces > 1 else area
     center = (centroid_f * w[:, None]).sum(axis=0) / w.sum()
-    vol = sign * np.einsum("ij,ij->i", centroid_f - center, cross) * keep_face
-    patch_vol = np.bincount(patch, weights=vol, minlength=patch.max() + 1)
-    flip = flip ^ (patch_vol[patch] < 0)
+    centroid_f -= center
+    vol = np.einsum("ij,ij->i", centroid_f, cross)
+    del centroid_f, cross
+    if flip is not None:
+        vol[flip] *= -1.0
+    if n_pieces > 1:
+        vol *= keep_face
+    patch_vol = np.bincount(patch, weights=vol, minlength=int(patch.max()) + 1)
+    outward_flip = patch_vol[patch] < 0
+    flip = outward_flip if flip is None else flip ^ outward_flip
     flip &= keep_face
     counts["faces_flipped"] = int(np.count_nonzero(flip))
-    f = f.copy()
-    f[flip] = f[flip][:, [0, 2, 1]]
-    stats["enclosed_volume_sign"] = 1 if patch_vol.sum() != 0 else 0
-    # 7. compact the kept piece
+    if counts["faces_flipped"]:
+        f[flip] = f[flip][:, [0, 2, 1]]
+    # 6. compact the kept piece
     report(progress, "cleaning: compacting", 5, 6)
-    f_keep = f[keep_face]
+    f_keep = f[keep_face] if n_pieces > 1 else f
     used = np.zeros(n, dtype=bool)
     used[f_keep.ravel()] = True
-    counts["vertices_in_removed_pieces"] = int(np.count_nonzero(referenced & ~used & (rep == np.arange(n))))
+    counts["vertices_in_removed_pieces"] = int(np.count_nonzero(referenced & ~used))
     new_index = np.cumsum(used) - 1
     scan_index = np.flatnonzero(used).astype(np.int64)
     faces_out = new_index[f_keep]
     # boundary loops of the kept piece (holes)
-    bface = boundary_pos // 3
-    bmask = keep_face[bface]
-    bpos = boundary_pos[bmask]
-    bedges = np.stack([new_index[e0[bpos]], new_index[e1[bpos]]], axis=1)
+    bpos = order[starts[runlen == 1]]
+    bpos = bpos[keep_face[bpos // 3]]
+    b0, b1 = _edge_ends(f, bpos)
+    bedges = np.stack([new_index[b0], new_index[b1]], axis=1)
     stats["boundary_edges"] = int(len(bedges))
     if len(bedges):
         nodes, inv = np.unique(bedges.ravel(), return_inverse=True)
@@ -263,12 +323,11 @@ def clean_mesh(vertices: np.ndarray, faces: np.ndarray, progress=None) -> CleanR
         stats["holes"] = int(_components(len(nodes), inv[:, 0], inv[:, 1]).max() + 1)
     else:
         stats["holes"] = 0
-    # median edge length over undirected edges of the kept piece
-    uniq = order[starts]
+    # median edge length over (up to a million) undirected edges of the kept piece
+    uniq = order[starts[:: max(1, len(starts) // 1_000_000)]]
     uniq = uniq[keep_face[uniq // 3]]
-    if len(uniq) > 2_000_000:
-        uniq = uniq[:: len(uniq) // 1_000_000]
-    stats["median_edge"] = float(np.median(np.linalg.norm(vertices[e0[uniq]] - vertices[e1[uniq]], axis=1)))
+    u0, u1 = _edge_ends(f, uniq)
+    stats["median_edge"] = float(np.median(np.linalg.norm(vertices[u0] - vertices[u1], axis=1)))
     report(progress, "cleaning: done", 6, 6)
     return CleanResult(vertices=vertices[scan_index], faces=faces_out, scan_index=scan_index, counts=counts,
                        stats=stats, boundary_edges=bedges)

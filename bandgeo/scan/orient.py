@@ -197,7 +197,7 @@ def estimate_up(vertices: np.ndarray, faces: np.ndarray, boundary_edges=None, ma
             _, cap_evals, _ = _weighted_axis(centroid[cap], area[cap])
             rel_rms = float(np.sqrt(max(cap_evals[2], 0.0)) / r_mid)
             planarity = float(np.clip(np.log10(0.03 / max(rel_rms, 1e-12)), 0.0, 1.0))
-            flat = min(float(area[cap].sum() / (np.pi * r_mid ** 2)), 1.0) * planarity
+            flat = min(float(step * area[cap].sum() / (np.pi * r_mid ** 2)), 1.0) * planarity
         rim = 0.0
         if boundary_edges is not None and len(boundary_edges):
             p = vertices[boundary_edges[:, 0]]

@@ -257,9 +257,13 @@ def _parse(data: bytes, path: Path, file_type: str, name: str):
 
     try:
         if file_type in ("obj", "gltf"):  # may refer to side files (materials, buffers) by relative path
-            loaded = trimesh.load(str(path), file_type=file_type, process=False, force="mesh")
+            loaded = trimesh.load(str(path), file_type=file_type, process=False)
         else:
-            loaded = trimesh.load(io.BytesIO(data), file_type=file_type, process=False, force="mesh")
+            loaded = trimesh.load(io.BytesIO(data), file_type=file_type, process=False)
+        if isinstance(loaded, trimesh.Scene):  # glTF/GLB and multi-object OBJ: one mesh, transforms applied
+            meshes = [g for g in loaded.dump() if hasattr(g, "faces")]
+            loaded = meshes[0] if len(meshes) == 1 else (trimesh.util.concatenate(meshes) if meshes else
+                                                         trimesh.PointCloud(np.zeros((0, 3))))
     except Exception as exc:  # the parsers raise many kinds; give the user one line
         detail = " ".join(str(exc).split())[:160] or type(exc).__name__
         raise _fail(name, f"could not be read as {file_type.upper()} ({detail}); the file is corrupt or not "
