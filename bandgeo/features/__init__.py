@@ -23,8 +23,15 @@ from .curvature import (FACE_BLOCK, adjacency, boundary_vertices, luminance_from
                         shape_index_curvedness)
 from .spacing import estimate_spacing_from_profile, relief_profiles
 
-#: Default curvature scales as fractions of the band spacing (the groove is ~1/3 of a band wide).
-SCALE_FRACTIONS = (0.0, 0.15, 0.3)
+#: Default curvature scales (Gaussian spread along the axis): for each, a fraction of the band spacing
+#: and a multiple of the sampling interval, the larger of the two is used. The groove of a boundary is
+#: narrow (a few tenths of a band, but never resolved finer than the sampling), so the fine scales sit
+#: at the groove's half-width and the coarse one gives the context of the whole band. The one-ring
+#: scale (0) is always computed too.
+SCALE_RULES = ((0.08, 0.5), (0.15, 0.75), (0.3, 1.5))
+
+#: Index (in the default scales, one-ring first) of the scale that best separates grooves.
+GROOVE_SCALE_INDEX = 2
 
 #: Most diffusion steps spent on the coarsest scale; beyond it the scale is reached only approximately.
 MAX_STEPS = 400
@@ -82,12 +89,19 @@ class CurvatureFeatures:
     def n_vertices(self) -> int:
         return int(self.mean.shape[0])
 
+    @property
+    def groove_scale_index(self) -> int:
+        """Index of the scale that resolves the boundary grooves best (the default scales' second)."""
+        return int(self.info.get("groove_scale_index", min(GROOVE_SCALE_INDEX, len(self.scales_mm) - 1)))
+
     def matrix(self, luminance: bool = False) -> np.ndarray:
-        """The (n, p) clustering matrix: mean curvature and shape index at every scale (+ luminance).
+        """The (n, p) clustering matrix: mean curvature and shape index at every scale above one ring
+        (the one-ring values are dominated by scanner noise), plus the luminance if asked.
 
         Columns are float32 and not standardised; the segmenter scales them robustly.
         """
-        cols = [self.mean, self.shape_index]
+        use = np.flatnonzero(self.scales_mm > 0) if np.any(self.scales_mm > 0) else np.arange(len(self.scales_mm))
+        cols = [self.mean[:, use], self.shape_index[:, use]]
         if luminance and self.luminance is not None:
             cols.append(self.luminance[:, None])
         return np.hstack(cols).astype(np.float32)
@@ -217,7 +231,7 @@ def compute_features(specimen, band_spacing_mm: Optional[float] = None, scales_m
     else:
         spacing, method = float(8.0 * samp), "fallback: 8 x sampling interval (no periodic relief found)"
     if scales_mm is None:
-        scales = [0.0] + [max(fr * spacing, samp) for fr in SCALE_FRACTIONS[1:]]
+        scales = [0.0] + [max(fr * spacing, m * samp) for fr, m in SCALE_RULES]
     else:
         scales = [float(s) for s in np.atleast_1d(scales_mm)]
         if any((not np.isfinite(s)) or s < 0 for s in scales):
@@ -267,6 +281,11 @@ def compute_features(specimen, band_spacing_mm: Optional[float] = None, scales_m
     si_, cv = shape_index_curvedness(k1, k2)
     noise = noise_estimate(v, f, cache["normals"], cache["valid"], adj)
     info = dict(info)
+    if scales_mm is None:
+        info["groove_scale_index"] = GROOVE_SCALE_INDEX
+    else:
+        pos = np.flatnonzero(scales > 0)
+        info["groove_scale_index"] = int(pos[0]) if len(pos) else 0
     info.update({"diffusion_steps": steps_used, "step_spread_along_mm": float(np.sqrt(step_var)),
                  "spacing_estimate_mm": None if not np.isfinite(est_spacing) else float(est_spacing)})
     report(progress, "curvature: done", 4, 4)

@@ -1,0 +1,201 @@
+"""Growth axis: a smooth centreline through circle-fit centres of thin slabs of the side wall.
+
+The column may lean and sway, so the axis is a curve. Each slab cut across the current axis is fitted
+with a circle (Kasa 1976, "A circle fitting procedure and its error analysis", IEEE Trans. Instrum.
+Meas. 25:8-14), which stays centred where a hole or a missing arc would drag a plain centroid aside.
+The centres are smoothed along the axis; the tangent is the derivative of the smoothed curve.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.ndimage import gaussian_filter1d
+
+
+@dataclass
+class Centreline:
+    """A smooth curve through the column, parametrised by arc length.
+
+    Attributes
+    ----------
+    heights_mm : (p,) float
+        Increasing arc lengths of the samples, mm (0 at the lowest point of the mesh).
+    points_mm : (p, 3) float
+        Centreline points in the specimen frame, mm.
+    tangents : (p, 3) float
+        Unit tangents pointing up the column.
+    """
+
+    heights_mm: np.ndarray
+    points_mm: np.ndarray
+    tangents: np.ndarray
+
+    def at(self, s):
+        """Point(s) and unit tangent(s) at arc length ``s`` (scalar or (q,) array), mm.
+
+        Beyond the ends the curve continues straight along the end tangents.
+        """
+        s_arr = np.atleast_1d(np.asarray(s, dtype=float))
+        h, p, t = self.heights_mm, self.points_mm, self.tangents
+        pts = np.column_stack([np.interp(s_arr, h, p[:, j]) for j in range(3)])
+        tan = np.column_stack([np.interp(s_arr, h, t[:, j]) for j in range(3)])
+        lo, hi = s_arr < h[0], s_arr > h[-1]
+        pts[lo] = p[0] + (s_arr[lo] - h[0])[:, None] * t[0]
+        pts[hi] = p[-1] + (s_arr[hi] - h[-1])[:, None] * t[-1]
+        tan /= np.linalg.norm(tan, axis=1, keepdims=True)
+        if np.ndim(s) == 0:
+            return pts[0], tan[0]
+        return pts, tan
+
+    def project(self, vertices: np.ndarray, iterations: int = 4):
+        """Arc length of the normal plane through each vertex, and the radial offset vector.
+
+        Parameters
+        ----------
+        vertices : (n, 3) float, mm
+
+        Returns
+        -------
+        s : (n,) float, mm
+        radial : (n, 3) float, mm
+            ``v - c(s)``, perpendicular to the tangent at ``s``.
+        """
+        h, p = self.heights_mm, self.points_mm
+        chord = p[-1] - p[0]
+        if np.linalg.norm(chord) < 1e-12:
+            chord = self.tangents[0]
+        chord = chord / np.linalg.norm(chord)
+        u_pts = (p - p[0]) @ chord
+        order = np.argsort(u_pts)
+        s = np.interp((vertices - p[0]) @ chord, u_pts[order], h[order])
+        for _ in range(iterations):
+            c, t = self.at(s)
+            s = s + np.einsum("ij,ij->i", vertices - c, t)
+        c, t = self.at(s)
+        radial = vertices - c
+        radial -= np.einsum("ij,ij->i", radial, t)[:, None] * t
+        return s, radial
+
+    def frame(self, s):
+        """Orthonormal (e1, e2) perpendicular to the tangents at ``s`` (twist-free from +x)."""
+        _, t = self.at(np.atleast_1d(s))
+        ref = np.where(np.abs(t[:, [0]]) < 0.9, np.array([[1.0, 0.0, 0.0]]), np.array([[0.0, 1.0, 0.0]]))
+        e1 = ref - np.einsum("ij,ij->i", ref, t)[:, None] * t
+        e1 /= np.linalg.norm(e1, axis=1, keepdims=True)
+        return e1, np.cross(t, e1)
+
+    def to_dict(self) -> dict:
+        return {"heights_mm": self.heights_mm, "points_mm": self.points_mm, "tangents": self.tangents}
+
+    @classmethod
+    def from_dict(cls, d: dict) -> "Centreline":
+        h = np.asarray(d["heights_mm"], float)
+        p = np.asarray(d["points_mm"], float).reshape(-1, 3)
+        t = np.asarray(d["tangents"], float).reshape(-1, 3)
+        if len(h) < 2 or len(p) != len(h) or len(t) != len(h) or np.any(np.diff(h) <= 0):
+            raise ValueError("centreline needs >= 2 samples with increasing heights")
+        return cls(h, p, t / np.linalg.norm(t, axis=1, keepdims=True))
+
+
+def circle_centres(u: np.ndarray, x: np.ndarray, y: np.ndarray, n_bins: int, min_count: int = 12):
+    """Kasa circle fit in each bin of integer label ``u`` (0..n_bins-1), vectorised.
+
+    Returns
+    -------
+    cx, cy, radius : (n_bins,) float, NaN where a bin has too few points.
+    """
+    def s(w):
+        return np.bincount(u, w, minlength=n_bins)
+
+    n = np.bincount(u, minlength=n_bins).astype(float)
+    # centre the coordinates per bin for conditioning
+    mx, my = s(x) / np.maximum(n, 1), s(y) / np.maximum(n, 1)
+    xc, yc = x - mx[u], y - my[u]
+    z = xc * xc + yc * yc
+    sxx, syy, sxy = s(xc * xc), s(yc * yc), s(xc * yc)
+    sxz, syz = s(xc * z), s(yc * z)
+    # normal equations of x^2 + y^2 = 2 a x + 2 b y + c with centred data (sum x = sum y = 0)
+    A = np.stack([np.stack([2 * sxx, 2 * sxy], -1), np.stack([2 * sxy, 2 * syy], -1)], -2)
+    rhs = np.stack([sxz, syz], -1)
+    det = A[:, 0, 0] * A[:, 1, 1] - A[:, 0, 1] * A[:, 1, 0]
+    ok = (n >= min_count) & (np.abs(det) > 1e-12 * np.maximum(sxx * syy, 1e-300))
+    a = np.full(n_bins, np.nan)
+    b = np.full(n_bins, np.nan)
+    a[ok] = (rhs[ok, 0] * A[ok, 1, 1] - rhs[ok, 1] * A[ok, 0, 1]) / det[ok]
+    b[ok] = (A[ok, 0, 0] * rhs[ok, 1] - A[ok, 1, 0] * rhs[ok, 0]) / det[ok]
+    c = s(z) / np.maximum(n, 1)
+    radius = np.sqrt(np.maximum(a * a + b * b + c, 0.0))
+    return mx + a, my + b, radius
+
+
+def _straight(vertices: np.ndarray, axis: np.ndarray) -> Centreline:
+    c = vertices.mean(axis=0)
+    u = (vertices - c) @ axis
+    p0, p1 = c + u.min() * axis, c + u.max() * axis
+    length = max(float(u.max() - u.min()), 1e-9)
+    return Centreline(np.array([0.0, length]), np.stack([p0, p1]), np.stack([axis, axis]))
+
+
+def fit_centreline(vertices: np.ndarray, wall: np.ndarray, axis0: np.ndarray, slab_mm: float,
+                   smooth_mm: float, passes: int = 2, noise_mm: float = 0.0) -> Centreline:
+    """Centreline through circle centres of slabs of the side wall.
+
+    Parameters
+    ----------
+    vertices : (n, 3) float, mm
+    wall : (n,) bool
+        Side-wall vertices (caps excluded).
+    axis0 : (3,) unit vector
+        Rough axis to start from.
+    slab_mm : float
+        Slab thickness along the axis.
+    smooth_mm : float
+        Gaussian smoothing of the centres along the axis (mm, sigma).
+    passes : int
+        Each pass cuts the slabs across the previous pass's curve.
+    noise_mm : float
+        Scanner noise (rms); the base is the median of the vertices within 6 noise of the lowest one,
+        so that noise does not pull the origin below the true base.
+
+    Returns
+    -------
+    Centreline
+        Arc length 0 at the base: the lowest part of the whole mesh along the curve.
+    """
+    line = _straight(vertices[wall], axis0)
+    vw = vertices[wall]
+    for _ in range(passes):
+        s, radial = line.project(vw)
+        e1, e2 = line.frame(s)
+        x = np.einsum("ij,ij->i", radial, e1)
+        y = np.einsum("ij,ij->i", radial, e2)
+        s0 = float(s.min())
+        nb = max(2, int(np.ceil((s.max() - s0) / slab_mm)))
+        u = np.minimum(((s - s0) / slab_mm).astype(np.int64), nb - 1)
+        cx, cy, _ = circle_centres(u, x, y, nb)
+        ok = np.isfinite(cx)
+        if ok.sum() < 2:
+            break
+        # centre of each slab in 3-D: point on the old curve at the slab's mean s, plus the offset
+        ms = np.bincount(u, s, minlength=nb) / np.maximum(np.bincount(u, minlength=nb), 1)
+        base, _ = line.at(ms[ok])
+        be1, be2 = line.frame(ms[ok])
+        pts = base + cx[ok, None] * be1 + cy[ok, None] * be2
+        sig = max(smooth_mm / slab_mm, 0.5)
+        pts = gaussian_filter1d(pts, sig, axis=0, mode="nearest")
+        seg = np.linalg.norm(np.diff(pts, axis=0), axis=1)
+        keep = np.r_[True, seg > 1e-9]
+        pts = pts[keep]
+        arc = np.r_[0.0, np.cumsum(np.linalg.norm(np.diff(pts, axis=0), axis=1))]
+        tan = np.gradient(pts, arc, axis=0) if len(pts) > 2 else np.repeat((pts[1:] - pts[:1]), 2, axis=0)
+        tan /= np.linalg.norm(tan, axis=1, keepdims=True)
+        if tan[:, 2].mean() < 0 and np.dot(tan.mean(axis=0), axis0) < 0:
+            pts, tan, arc = pts[::-1], -tan[::-1], arc[-1] - arc[::-1]
+        line = Centreline(arc, pts, tan)
+    # arc length 0 at the lowest point of the whole mesh along the curve
+    s_all, _ = line.project(vertices)
+    low = float(s_all.min())
+    tol = 6.0 * noise_mm if np.isfinite(noise_mm) and noise_mm > 0 else 0.0
+    shift = float(np.median(s_all[s_all <= low + tol])) if tol > 0 else low
+    return Centreline(line.heights_mm - shift, line.points_mm, line.tangents)

@@ -1,0 +1,216 @@
+"""Data objects of the segmentation stage: boundaries, the segmentation, and band assignment."""
+from __future__ import annotations
+
+import copy
+from dataclasses import dataclass, field
+from typing import Optional
+
+import numpy as np
+
+from ..errors import InputError, ReviewError
+from .axis import Centreline
+
+ORIGINS = ("auto", "review")
+
+
+@dataclass
+class Boundary:
+    """One lamina boundary: a closed or partial ring on the side wall, fitted by a plane.
+
+    Attributes
+    ----------
+    id : int
+        Stable identifier (kept through review edits).
+    height_mm : float
+        Arc length along the centreline where the ring's plane crosses it, mm.
+    center_mm : (3,) float
+        Centre of the ring (on the centreline for a full ring), specimen frame, mm.
+    normal : (3,) float
+        Unit normal of the ring plane, pointing up the column (the local growth direction).
+    rms_mm : float
+        Rms distance of the ring's groove vertices from the plane, mm.
+    coverage : float
+        Fraction (0..1) of the circumference traced.
+    confidence : float
+        0..1, see :mod:`bandgeo.segment.repair` for how it is made.
+    origin : {'auto', 'review'}
+    flags : list of str
+        Repair rules applied and other remarks.
+    """
+
+    id: int
+    height_mm: float
+    center_mm: np.ndarray
+    normal: np.ndarray
+    rms_mm: float = float("nan")
+    coverage: float = 0.0
+    confidence: float = 0.0
+    origin: str = "auto"
+    flags: list = field(default_factory=list)
+
+    def __post_init__(self):
+        self.center_mm = np.asarray(self.center_mm, dtype=float).reshape(3)
+        n = np.asarray(self.normal, dtype=float).reshape(3)
+        norm = np.linalg.norm(n)
+        if not np.isfinite(norm) or norm == 0:
+            raise ReviewError(f"boundary {self.id}: the normal must be a non-zero vector but got {n.tolist()}")
+        self.normal = n / norm
+        self.height_mm = float(self.height_mm)
+        if self.origin not in ORIGINS:
+            raise ReviewError(f"boundary origin must be one of {', '.join(ORIGINS)} but got {self.origin!r}")
+
+    @classmethod
+    def from_height(cls, height_mm: float, axis: Centreline, id: int, origin: str = "review",
+                    confidence: float = 1.0) -> "Boundary":
+        """A boundary at ``height_mm`` on the axis, in the plane perpendicular to the local axis."""
+        try:
+            h = float(height_mm)
+        except (TypeError, ValueError):
+            raise ReviewError(f"a boundary height must be a number in mm but got {height_mm!r}") from None
+        if not np.isfinite(h):
+            raise ReviewError(f"a boundary height must be finite but got {height_mm!r}")
+        p, t = axis.at(h)
+        return cls(id=int(id), height_mm=h, center_mm=p, normal=t, rms_mm=float("nan"), coverage=0.0,
+                   confidence=float(confidence), origin=origin, flags=["placed by height"])
+
+    def to_dict(self) -> dict:
+        return {"id": int(self.id), "height_mm": self.height_mm, "center_mm": self.center_mm.tolist(),
+                "normal": self.normal.tolist(), "rms_mm": self.rms_mm, "coverage": float(self.coverage),
+                "confidence": float(self.confidence), "origin": self.origin, "flags": list(self.flags)}
+
+    @classmethod
+    def from_dict(cls, d: dict) -> "Boundary":
+        rms = d.get("rms_mm")
+        return cls(id=int(d["id"]), height_mm=float(d["height_mm"]), center_mm=d["center_mm"],
+                   normal=d["normal"], rms_mm=float("nan") if rms is None else float(rms),
+                   coverage=float(d.get("coverage", 0.0)), confidence=float(d.get("confidence", 0.0)),
+                   origin=str(d.get("origin", "auto")), flags=list(d.get("flags", [])))
+
+
+def plane_height(center: np.ndarray, normal: np.ndarray, axis: Centreline, s0: Optional[float] = None,
+                 iterations: int = 6) -> float:
+    """Arc length where the plane (center, normal) crosses the centreline, mm."""
+    s = float(axis.project(center[None, :])[0][0]) if s0 is None else float(s0)
+    for _ in range(iterations):
+        c, t = axis.at(s)
+        den = float(np.dot(t, normal))
+        if abs(den) < 1e-6:
+            break
+        s = s + float(np.dot(center - c, normal)) / den
+    return s
+
+
+def assign_bands(vertices_mm: np.ndarray, boundaries, axis: Centreline, s: Optional[np.ndarray] = None):
+    """Band index of each vertex: ``k`` between boundaries ``k`` and ``k+1`` (base to top), else -1.
+
+    A vertex lies above a boundary when its signed distance to the boundary's plane is positive;
+    boundaries are taken in order of height.
+
+    Parameters
+    ----------
+    vertices_mm : (n, 3) float
+    boundaries : sequence of Boundary
+    axis : Centreline
+    s : (n,) float, optional
+        Precomputed arc lengths of the vertices (``axis.project``).
+
+    Returns
+    -------
+    (n,) int32
+    """
+    v = np.asarray(vertices_mm, dtype=float)
+    n = len(v)
+    bs = sorted(boundaries, key=lambda b: b.height_mm)
+    if len(bs) < 2:
+        return np.full(n, -1, dtype=np.int32)
+    if s is None:
+        s, _ = axis.project(v)
+    heights = np.array([b.height_mm for b in bs])
+    centres = np.array([b.center_mm for b in bs])
+    normals = np.array([b.normal for b in bs])
+    # start from the heights, then step across planes that disagree (at most a few steps)
+    k = np.searchsorted(heights, s, side="right") - 1  # boundaries at or below: 0..len-1, -1 below all
+    for _ in range(4):
+        lo = np.clip(k, 0, len(bs) - 1)
+        below_lo = np.einsum("ij,ij->i", v - centres[lo], normals[lo]) < 0
+        k = np.where((k >= 0) & below_lo, k - 1, k)
+        hi = np.clip(k + 1, 0, len(bs) - 1)
+        above_hi = (k + 1 < len(bs)) & (np.einsum("ij,ij->i", v - centres[hi], normals[hi]) >= 0)
+        k = np.where(above_hi, k + 1, k)
+    band = np.where((k >= 0) & (k < len(bs) - 1), k, -1)
+    return band.astype(np.int32)
+
+
+@dataclass
+class Segmentation:
+    """Boundaries, growth axis and per-vertex labels of one specimen.
+
+    Attributes
+    ----------
+    boundaries : list of Boundary
+        Base to top.
+    axis : Centreline
+    vertex_class : (n,) int8
+        Index into ``class_names``; -1 unassigned.
+    class_names : list of str
+    vertex_band : (n,) int32
+        -1 outside the banded stretch.
+    resolution : dict
+        ``sampling_along_mm``, ``noise_mm``, ``relief_mm``, ``relief_to_noise``, ``band_spacing_mm``,
+        ``flagged`` ([[s0_mm, s1_mm, reason], ...]).
+    warnings : list of str
+    params : dict
+    """
+
+    boundaries: list
+    axis: Centreline
+    vertex_class: np.ndarray
+    class_names: list
+    vertex_band: np.ndarray
+    resolution: dict = field(default_factory=dict)
+    warnings: list = field(default_factory=list)
+    params: dict = field(default_factory=dict)
+
+    @property
+    def n_bands(self) -> int:
+        return max(0, len(self.boundaries) - 1)
+
+    def heights_mm(self) -> np.ndarray:
+        return np.array([b.height_mm for b in self.boundaries], dtype=float)
+
+    def with_boundaries(self, boundaries, specimen) -> "Segmentation":
+        """A new segmentation with ``boundaries`` (sorted by height) and bands re-assigned.
+
+        Parameters
+        ----------
+        boundaries : sequence of Boundary (or dicts of Boundary fields)
+        specimen : bandgeo.scan.Specimen
+            The specimen this segmentation belongs to (same vertex count).
+        """
+        v = np.asarray(getattr(specimen, "vertices_mm", None) if specimen is not None else None, dtype=float)
+        if v.ndim != 2 or len(v) != len(self.vertex_band):
+            raise InputError(f"the specimen has {v.shape[0] if v.ndim == 2 else 0} vertices but the "
+                             f"segmentation labels {len(self.vertex_band)}; use the specimen it was made from")
+        bs = [b if isinstance(b, Boundary) else Boundary.from_dict(b) for b in boundaries]
+        ids = [b.id for b in bs]
+        if len(set(ids)) != len(ids):
+            raise ReviewError("boundary ids must be unique; give each added boundary a new id")
+        bs = sorted((copy.deepcopy(b) for b in bs), key=lambda b: b.height_mm)
+        band = assign_bands(v, bs, self.axis)
+        return Segmentation(boundaries=bs, axis=self.axis, vertex_class=self.vertex_class.copy(),
+                            class_names=list(self.class_names), vertex_band=band,
+                            resolution=copy.deepcopy(self.resolution), warnings=list(self.warnings),
+                            params=copy.deepcopy(self.params))
+
+    def save(self, folder):
+        """Write ``segmentation.json`` and ``segmentation_labels.npz`` into ``folder`` (atomically)."""
+        from .io import save_segmentation
+
+        return save_segmentation(self, folder)
+
+    @classmethod
+    def load(cls, folder) -> "Segmentation":
+        """Read a segmentation written by :meth:`save`; malformed files raise InputError."""
+        from .io import load_segmentation
+
+        return load_segmentation(folder)

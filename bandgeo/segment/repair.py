@@ -1,0 +1,134 @@
+"""Explicit repair rules for traced rings, and the confidence of each boundary.
+
+Rules, applied in this order (each leaves a flag on the boundaries it touches):
+
+R1 ``merged doubled ring``: two rings closer on the axis than ``DOUBLE_FRACTION`` of the local median
+   spacing are one groove seen twice (e.g. both flanks of a wide groove, or a ring broken into two
+   offset arcs): the one with the higher score is kept, with the union's coverage.
+R2 ``dropped: poor fit``: a ring whose plane-fit rms exceeds ``MAX_RMS_FRACTION`` of the local spacing
+   is not a ring (a noise streak or a bridge between two grooves).
+R3 ``dropped: short arc``: a ring covering less than ``MIN_COVERAGE`` of the circumference is too short
+   to be a boundary (holes and broken rings keep more than this on a real groove).
+R4 ``gap filled``: where two neighbouring rings are more than ``GAP_FRACTION`` times the local median
+   spacing apart, the strongest weak peak inside the gap is traced; it is added (with lowered
+   confidence) if it passes R2 and R3, otherwise the gap is flagged as a possibly missed boundary.
+
+Confidence (0..1) = coverage^(1/2) * min(1, prominence / reference prominence)
+* exp(-(rms / (0.25 * local spacing))^2), times 0.7 for a gap-filled ring.
+"""
+from __future__ import annotations
+
+import numpy as np
+
+DOUBLE_FRACTION = 0.4
+MAX_RMS_FRACTION = 0.35
+MIN_COVERAGE = 0.25
+GAP_FRACTION = 1.75
+
+
+def local_spacing(heights: np.ndarray, fallback: float, window: int = 5) -> np.ndarray:
+    """Median spacing of the ``window`` nearest intervals around each height (fallback if too few)."""
+    h = np.sort(np.asarray(heights, float))
+    if len(h) < 3:
+        return np.full(len(h), fallback)
+    d = np.diff(h)
+    out = np.empty(len(h))
+    for i in range(len(h)):
+        lo, hi = max(0, i - window // 2 - 1), min(len(d), i + window // 2 + 1)
+        out[i] = np.median(d[lo:hi])
+    return out
+
+
+def confidence(ring: dict, ref_prominence: float, spacing: float) -> float:
+    cov = float(np.clip(ring["coverage"], 0.0, 1.0)) ** 0.5
+    prom = min(1.0, ring.get("prominence", 0.0) / max(ref_prominence, 1e-12))
+    fit = float(np.exp(-(ring["rms_mm"] / (0.25 * spacing)) ** 2)) if np.isfinite(ring["rms_mm"]) else 0.5
+    c = cov * prom * fit * (0.7 if "gap filled" in ring["flags"] else 1.0)
+    return float(np.clip(c, 0.0, 1.0))
+
+
+def repair(rings: list, spacing: float, trace_weak, log: list) -> list:
+    """Apply rules R1-R4 to ring dicts (``height``, ``prominence``, ``rms_mm``, ``coverage``, ``flags``).
+
+    Parameters
+    ----------
+    rings : list of dict
+    spacing : float
+        Expected band spacing, mm (fallback for the local spacing).
+    trace_weak : callable
+        ``trace_weak(lo_mm, hi_mm) -> ring dict or None``: the strongest weak peak inside a gap.
+    log : list
+        Receives one line per rule application.
+
+    Returns
+    -------
+    rings : list of dict, sorted by height, each with ``confidence``
+    gaps : list of [s0_mm, s1_mm, reason] for gaps R4 could not fill
+    """
+    rings = sorted(rings, key=lambda r: r["height"])
+    for r in rings:
+        r.setdefault("flags", [])
+    # R2 and R3 first on single rings
+    kept = []
+    loc = local_spacing(np.array([r["height"] for r in rings]), spacing)
+    for r, ls in zip(rings, loc):
+        if r["rms_mm"] > MAX_RMS_FRACTION * ls:
+            log.append(f"R2 dropped ring at {r['height']:.3f} mm: plane-fit rms {r['rms_mm']:.3f} mm "
+                       f"> {MAX_RMS_FRACTION} x local spacing {ls:.3f} mm")
+            continue
+        if r["coverage"] < MIN_COVERAGE:
+            log.append(f"R3 dropped ring at {r['height']:.3f} mm: covers {100 * r['coverage']:.0f}% "
+                       f"of the circumference (< {100 * MIN_COVERAGE:.0f}%)")
+            continue
+        kept.append(r)
+    rings = kept
+    # R1: doubled rings
+    changed = True
+    while changed and len(rings) > 1:
+        changed = False
+        h = np.array([r["height"] for r in rings])
+        loc = local_spacing(h, spacing)
+        gaps = np.diff(h)
+        ref = np.minimum(loc[:-1], loc[1:])
+        close = np.flatnonzero(gaps < DOUBLE_FRACTION * ref)
+        if len(close):
+            i = int(close[np.argmin(gaps[close] / ref[close])])
+            a, b = rings[i], rings[i + 1]
+            keep, drop = (a, b) if _score(a) >= _score(b) else (b, a)
+            keep["coverage"] = min(1.0, max(a["coverage"], b["coverage"]) + 0.5 * min(a["coverage"], b["coverage"]))
+            keep["flags"].append("merged doubled ring")
+            log.append(f"R1 merged rings at {a['height']:.3f} and {b['height']:.3f} mm "
+                       f"({gaps[i]:.3f} mm apart < {DOUBLE_FRACTION} x local spacing {ref[i]:.3f} mm)")
+            rings = [r for r in rings if r is not drop]
+            changed = True
+    # R4: gaps
+    gaps_flagged = []
+    if len(rings) >= 3:
+        i = 0
+        while i < len(rings) - 1:
+            h = np.array([r["height"] for r in rings])
+            loc = local_spacing(h, spacing, window=7)
+            gap = h[i + 1] - h[i]
+            ref = 0.5 * (loc[i] + loc[i + 1])
+            if gap > GAP_FRACTION * ref:
+                lo, hi = h[i] + DOUBLE_FRACTION * ref, h[i + 1] - DOUBLE_FRACTION * ref
+                new = trace_weak(lo, hi) if hi > lo else None
+                if new is not None and new["rms_mm"] <= MAX_RMS_FRACTION * ref and new["coverage"] >= MIN_COVERAGE:
+                    new.setdefault("flags", []).append("gap filled")
+                    log.append(f"R4 filled a {gap:.3f} mm gap with a weak ring at {new['height']:.3f} mm")
+                    rings.insert(i + 1, new)
+                    continue  # re-check the two halves
+                log.append(f"R4 gap of {gap:.3f} mm between {h[i]:.3f} and {h[i + 1]:.3f} mm "
+                           f"(> {GAP_FRACTION} x local spacing {ref:.3f} mm): possible missed boundary")
+                gaps_flagged.append([float(h[i]), float(h[i + 1]), "possible missed boundary"])
+            i += 1
+    if rings:
+        ref_prom = float(np.median([r["prominence"] for r in rings if "gap filled" not in r["flags"]] or [1.0]))
+        loc = local_spacing(np.array([r["height"] for r in rings]), spacing)
+        for r, ls in zip(rings, loc):
+            r["confidence"] = confidence(r, ref_prom, ls)
+    return rings, gaps_flagged
+
+
+def _score(r: dict) -> float:
+    return float(r["coverage"] * r.get("prominence", 0.0))

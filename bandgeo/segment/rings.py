@@ -1,0 +1,166 @@
+"""Tracing the groove class into rings: a groove profile along the axis, its peaks, and plane fits.
+
+Each boundary's groove is a ring around the column, perpendicular to the local growth axis. Along the
+arc length ``s`` of the centreline, the groove-class probability of the side-wall vertices therefore
+peaks once per boundary. Each peak seeds a ring; the ring is the set of groove vertices near it, fitted
+by a weighted plane (normal = least-variance direction, common practice) and an in-plane circle whose
+centre is the ring centre.
+"""
+from __future__ import annotations
+
+import numpy as np
+from scipy.ndimage import gaussian_filter1d
+from scipy.signal import find_peaks
+
+from .axis import circle_centres
+
+#: Angular bins used to measure how much of the circumference a ring covers.
+COVERAGE_BINS = 72
+
+#: Largest angle (deg) between a fitted ring normal and the local axis before the axis is used instead.
+MAX_NORMAL_ANGLE_DEG = 8.0
+
+
+def groove_profile(s: np.ndarray, score: np.ndarray, bin_mm: float, sigma_mm: float):
+    """Mean groove score in bins along ``s``, smoothed by a Gaussian (empty bins borrow neighbours).
+
+    Returns
+    -------
+    centres_mm : (q,) float
+    profile : (q,) float
+        Smoothed mean score (0..1).
+    counts : (q,) float
+        Smoothed vertex counts per bin.
+    """
+    s0 = float(s.min())
+    nb = int(np.ceil((s.max() - s0) / bin_mm)) + 1
+    ib = np.minimum(((s - s0) / bin_mm).astype(np.int64), nb - 1)
+    sums = np.bincount(ib, score, minlength=nb)
+    cnt = np.bincount(ib, minlength=nb).astype(float)
+    sig = max(sigma_mm / bin_mm, 0.5)
+    ss = gaussian_filter1d(sums, sig, mode="constant")
+    cc = gaussian_filter1d(cnt, sig, mode="constant")
+    prof = np.where(cc > 1e-9, ss / np.maximum(cc, 1e-9), 0.0)
+    return s0 + (np.arange(nb) + 0.5) * bin_mm, prof, cc
+
+
+def profile_peaks(centres: np.ndarray, profile: np.ndarray, counts: np.ndarray, spacing_mm: float,
+                  min_prominence: float = 0.08, relative: float = 0.3):
+    """Peaks of the groove profile at least ``0.35 * spacing`` apart.
+
+    A peak counts when its prominence is at least ``min_prominence`` and at least ``relative`` times the
+    median prominence of the counted peaks (so faint noise wiggles never pass on a strong record).
+
+    Returns
+    -------
+    heights_mm : (r,) float
+    prominence : (r,) float
+    weak : dict
+        All smaller local maxima (heights, prominences), for the gap-filling repair rule.
+    """
+    b = centres[1] - centres[0] if len(centres) > 1 else 1.0
+    populated = counts > 0.25 * np.median(counts[counts > 0]) if np.any(counts > 0) else counts > 0
+    prof = np.where(populated, profile, 0.0)
+    idx, props = find_peaks(prof, distance=max(1, int(0.35 * spacing_mm / b)), prominence=0.0)
+    prom = props["prominences"]
+    strong = prom >= min_prominence
+    if strong.any():
+        ref = float(np.median(prom[strong]))
+        strong &= prom >= relative * ref
+    # sub-bin peak position by a parabola through the three highest bins
+    h = centres[idx].astype(float)
+    ok = (idx > 0) & (idx < len(prof) - 1)
+    y0, y1, y2 = prof[idx[ok] - 1], prof[idx[ok]], prof[idx[ok] + 1]
+    den = y0 - 2 * y1 + y2
+    shift = np.where(np.abs(den) > 1e-12, 0.5 * (y0 - y2) / np.where(np.abs(den) > 1e-12, den, 1.0), 0.0)
+    h[ok] += np.clip(shift, -0.5, 0.5) * b
+    weak = {"heights_mm": h[~strong], "prominence": prom[~strong]}
+    return h[strong], prom[strong], weak
+
+
+def fit_ring(v, s, radial_angle, weight, p_groove, axis, h0, halfwin_mm, bins=COVERAGE_BINS):
+    """Fit one ring near arc length ``h0``.
+
+    Parameters
+    ----------
+    v : (n, 3) float
+        Side-wall vertices, mm.
+    s : (n,) float
+        Their arc lengths along ``axis``.
+    radial_angle : (n,) float
+        Their angle around the axis, rad.
+    weight : (n,) float
+        Groove weight of each vertex (>= 0).
+    p_groove : (n,) float
+        Groove-class probability.
+    axis : Centreline
+    h0 : float
+        Seed height, mm.
+    halfwin_mm : float
+        Half-width of the window around the seed (a fraction of the local spacing).
+    bins : int
+        Angular bins for the coverage (at most the number of vertices around a ring).
+
+    Returns
+    -------
+    dict with ``center``, ``normal``, ``rms_mm``, ``coverage``, ``n``, ``normal_from`` or None when
+    the window holds no groove weight.
+    """
+    sel = np.flatnonzero(np.abs(s - h0) < halfwin_mm)
+    if len(sel) == 0:
+        return None
+    c_axis, t_axis = axis.at(h0)
+    normal = t_axis
+    center = None
+    normal_from = "axis"
+    for it in range(2):
+        w = weight[sel]
+        if w.sum() <= 0:
+            return None
+        p = v[sel]
+        c = (w[:, None] * p).sum(axis=0) / w.sum()
+        cover = _coverage(radial_angle[sel], p_groove[sel] * (w > 0), bins)
+        if cover >= 0.5 and len(sel) >= 12:
+            d = p - c
+            cov = (w[:, None, None] * (d[:, :, None] * d[:, None, :])).sum(axis=0) / w.sum()
+            _, vec = np.linalg.eigh(cov)
+            nrm = vec[:, 0] * np.sign(np.dot(vec[:, 0], t_axis) or 1.0)
+            if np.degrees(np.arccos(np.clip(np.dot(nrm, t_axis), -1, 1))) <= MAX_NORMAL_ANGLE_DEG:
+                normal, normal_from = nrm, "plane fit"
+            else:
+                normal, normal_from = t_axis, "axis (plane fit too oblique)"
+        else:
+            normal, normal_from = t_axis, "axis (ring too short for a plane fit)"
+        center = c
+        if it == 0:
+            # re-select by distance to the fitted plane: follows rings tilted against the axis
+            dist = (v - c) @ normal
+            sel = np.flatnonzero(np.abs(dist) < halfwin_mm)
+            if len(sel) == 0:
+                return None
+    w = weight[sel]
+    d = (v[sel] - center) @ normal
+    rms = float(np.sqrt(np.sum(w * d * d) / w.sum()))
+    # ring centre: circle fit in the plane (robust to holes), moved into the plane
+    e1 = np.cross(normal, [1.0, 0.0, 0.0] if abs(normal[0]) < 0.9 else [0.0, 1.0, 0.0])
+    e1 /= np.linalg.norm(e1)
+    e2 = np.cross(normal, e1)
+    rel = v[sel] - center
+    strong = w > np.median(w)
+    if strong.sum() >= 12:
+        cx, cy, _ = circle_centres(np.zeros(int(strong.sum()), dtype=np.int64), rel[strong] @ e1,
+                                   rel[strong] @ e2, 1)
+        if np.isfinite(cx[0]):
+            center = center + cx[0] * e1 + cy[0] * e2
+    return {"center": center, "normal": normal, "rms_mm": rms,
+            "coverage": _coverage(radial_angle[sel], p_groove[sel] * (w > 0), bins), "n": int(len(sel)),
+            "normal_from": normal_from}
+
+
+def _coverage(angle: np.ndarray, p: np.ndarray, bins: int = COVERAGE_BINS) -> float:
+    """Fraction of ``bins`` angular bins holding at least one vertex with p > 0.5."""
+    if len(angle) == 0:
+        return 0.0
+    b = np.minimum(((angle + np.pi) / (2 * np.pi) * bins).astype(np.int64), bins - 1)
+    hit = np.bincount(b[p > 0.5], minlength=bins) > 0
+    return float(hit.mean())
