@@ -20,7 +20,7 @@ from .manifest import SpecimenJob, file_sha256
 from .summary import BatchSummary, SpecimenOutcome
 
 #: Parameters of ``analyze`` a batch may set through ``params`` (the rest come from each job).
-ANALYZE_PARAMS = ("keep_review", "report")
+ANALYZE_PARAMS = ("keep_review", "report", "n_sim", "min_period_bands", "max_period_bands")
 
 
 def default_analyze() -> Callable:
@@ -158,7 +158,8 @@ def run_batch(jobs: Sequence[SpecimenJob], out_dir, *, workers: Optional[int] = 
         another in this process (debugging). An address such as ``"tcp://10.0.0.5:8786"``, a
         ``LocalCluster`` or a ``Client``: the Dask distributed cluster runs the specimens.
     params : dict, optional
-        Extra keyword arguments of ``analyze`` (``keep_review``, ``report``); part of the job key.
+        Extra keyword arguments of ``analyze`` (``keep_review``, ``report``, ``n_sim``,
+        ``min_period_bands``, ``max_period_bands``); part of the job key.
     seed : int
         Seed handed to every specimen's analysis (the same seed for each, as ``bandgeo analyze``).
     progress : callable, optional

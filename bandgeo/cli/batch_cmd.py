@@ -15,10 +15,19 @@ from ._common import echo, existing_path, out_dir_option, seed_option
               help="Dask scheduler address (e.g. tcp://10.0.0.5:8786); the cluster runs the specimens. "
                    "The --out folder must be on a file system every worker sees.")
 @seed_option()
+@click.option("--min-period", "min_period", type=float, default=None,
+              help="Shortest annual period searched, in bands (default: a few bands).")
+@click.option("--max-period", "max_period", type=float, default=None,
+              help="Longest annual period searched, in bands (default: about a third of the record).")
+@click.option("--simulations", "n_sim", type=click.IntRange(100, 100000), default=1000, show_default=True,
+              help="Monte Carlo replicates for significance and intervals, per specimen.")
+@click.option("--discard-review", is_flag=True,
+              help="Start each specimen from its automatic segmentation (review.json renamed aside).")
 @click.option("--no-report", is_flag=True, help="Skip each specimen's HTML/PDF report (faster).")
 @click.option("--no-compile", is_flag=True, help="Do not write the compilation across specimens.")
 @click.pass_context
-def batch(ctx, specimens, out, workers, scheduler, seed, no_report, no_compile):
+def batch(ctx, specimens, out, workers, scheduler, seed, min_period, max_period, n_sim, discard_review,
+          no_report, no_compile):
     """Analyse every specimen in SPECIMENS and compile the results.
 
     SPECIMENS is a folder of scans (.ply .obj .stl .off .glb, any case; a <name>.sheet.toml beside a scan
@@ -32,7 +41,11 @@ def batch(ctx, specimens, out, workers, scheduler, seed, no_report, no_compile):
     from ..progress import bar
 
     jobs = read_manifest(specimens)
-    params = {"report": False} if no_report else {}
+    # Only settings that differ from analyze's defaults enter the job key, so that spelling out a
+    # default does not re-run a finished batch.
+    params = {key: value for key, value, default in (
+        ("report", not no_report, True), ("keep_review", not discard_review, True), ("n_sim", n_sim, 1000),
+        ("min_period_bands", min_period, None), ("max_period_bands", max_period, None)) if value != default}
     echo(ctx, f"{len(jobs)} specimens from {specimens} -> {out}")
     with bar("batch") as cb:
         summary = run_batch(jobs, out, workers=workers, scheduler=scheduler, params=params, seed=seed,
