@@ -197,3 +197,24 @@ def test_concurrent_saves_cannot_corrupt_the_file(tmp_path):
         held = [e for e in held if e not in entry["removed"]] + entry["added"]
     assert sorted(map(json.dumps, held)) == sorted(map(json.dumps, review["edits"]))
     assert len(review["edits"]) == history[-1]["edits_after"]
+
+
+def test_apply_review_with_the_real_segmentation(tmp_path):
+    segment = pytest.importorskip("bandgeo.segment")
+    from test_review_support import make_real_folder
+
+    folder, seg, specimen = make_real_folder(tmp_path / "KRB-31", n_bounds=6, spacing=2.0)
+    loaded = segment.Segmentation.load(folder)
+    review = {"edits": [{"op": "merge", "id": 2}, {"op": "split", "height_mm": 8.0},
+                        {"op": "move", "id": 4, "height_mm": 9.5}]}
+    edited = apply_review(loaded, specimen, review)
+    assert [b.id for b in edited.boundaries] == [0, 1, 3, 6, 4, 5]
+    assert [b.origin for b in edited.boundaries] == ["auto", "auto", "auto", "review", "review", "auto"]
+    # Analytic: on a straight vertical axis the band of a wall vertex is fixed by its z alone.
+    z = specimen.vertices_mm[:, 2]
+    heights = np.array([b.height_mm for b in edited.boundaries])
+    expected = np.searchsorted(heights, z, side="right") - 1
+    expected[(expected < 0) | (expected >= len(heights) - 1)] = -1
+    far = np.min(np.abs(z[:, None] - heights[None, :]), axis=1) > 0.05
+    assert np.array_equal(edited.vertex_band[far], expected[far].astype(np.int32))
+    assert edited.resolution["flagged"] == [] and "review" in edited.params

@@ -262,3 +262,40 @@ def test_sigint_stops_cleanly_and_frees_the_port(tmp_path):
     assert "stopped" in out and "Traceback" not in err
     with socket.socket() as sock:                            # the port is free again
         sock.bind(("127.0.0.1", port))
+
+
+def test_cli_refuses_a_folder_that_was_not_analysed(tmp_path):
+    for target in (tmp_path / "missing", tmp_path):
+        proc = subprocess.run([sys.executable, "-m", "bandgeo.cli", "review", str(target), "--no-browser"],
+                              capture_output=True, text=True, timeout=60)
+        assert proc.returncode == 2, proc.stderr
+        assert proc.stderr.count("\n") == 1 and proc.stderr.startswith("bandgeo: error:")
+
+
+def test_cli_serves_a_saved_segmentation_and_stops_on_ctrl_c(tmp_path):
+    pytest.importorskip("bandgeo.segment")
+    from test_review_support import make_real_folder
+
+    folder, seg, _ = make_real_folder(tmp_path / "KRB 31 results")
+    env = dict(os.environ, OMP_NUM_THREADS="1")
+    proc = subprocess.Popen([sys.executable, "-m", "bandgeo.cli", "review", str(folder), "--no-browser"],
+                            stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env)
+    try:
+        line = proc.stdout.readline()
+        url = line[line.index("http://"):].strip()
+        port = int(url.split(":")[2].split("/")[0])
+        token = url.split("token=")[1]
+        conn = http.client.HTTPConnection("127.0.0.1", port, timeout=10)
+        conn.request("GET", "/api/state", headers={"X-Review-Token": token})
+        state = json.loads(conn.getresponse().read())
+        conn.close()
+        assert state["n_bands"] == len(seg.boundaries) - 1 and state["specimen_id"] == "KRB-31"
+        proc.send_signal(signal.SIGINT)
+        out, err = proc.communicate(timeout=60)
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+    assert proc.returncode == 0, err
+    assert "stopped" in out and "Traceback" not in err
+    with socket.socket() as sock:
+        sock.bind(("127.0.0.1", port))

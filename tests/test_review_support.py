@@ -106,3 +106,19 @@ def make_folder(folder, n_bounds=12, spacing=1.5, specimen_id="KRB-12"):
                           "method": "fixture"},
         "bands": {"count": n_bounds - 1, "mean_thickness_mm": spacing}})
     return folder, seg, specimen
+
+
+def make_real_folder(folder, n_bounds=12, spacing=1.5, specimen_id="KRB-31"):
+    """Like ``make_folder`` but with bandgeo.segment's own objects, saved with ``Segmentation.save``
+    so that ``Segmentation.load`` (and the CLI) read it. Needs bandgeo.segment."""
+    from bandgeo.segment import Boundary, Centreline, Segmentation
+
+    folder, fake, specimen = make_folder(folder, n_bounds=n_bounds, spacing=spacing, specimen_id=specimen_id)
+    axis = Centreline(fake.axis.heights_mm, fake.axis.points_mm, fake.axis.tangents)
+    bounds = [Boundary(b.id, b.height_mm, b.center_mm, b.normal, b.rms_mm, b.coverage, b.confidence, "auto")
+              for b in fake.boundaries]
+    n = len(specimen.vertices_mm)
+    seg = Segmentation(bounds, axis, np.zeros(n, np.int8), ["flank"], np.zeros(n, np.int32),
+                       resolution={"flagged": []}).with_boundaries(bounds, specimen)
+    seg.save(folder)
+    return folder, seg, specimen
