@@ -168,7 +168,8 @@ def run_batch(jobs: Sequence[SpecimenJob], out_dir, *, workers: Optional[int] = 
         The per-specimen function, default ``bandgeo.pipeline.analyze``; must be picklable (a
         module-level function) for process or cluster runs.
     threads_per_worker : int, optional
-        BLAS/OpenMP threads in each worker (default: cores // workers, at least 1).
+        BLAS/OpenMP threads in each worker (default for local processes: cores // workers, at least
+        1; on a Dask cluster: left to the cluster's own settings).
 
     Returns
     -------
@@ -190,8 +191,10 @@ def run_batch(jobs: Sequence[SpecimenJob], out_dir, *, workers: Optional[int] = 
     n_workers = int(workers) if workers else (cores if local else None)
     if scheduler == "inline":
         n_workers = 1
-    threads = threads_per_worker or max(1, cores // (n_workers or 1))
+    # Local workers share this machine's cores; a cluster's workers are sized by the cluster itself.
+    threads = threads_per_worker or (max(1, cores // n_workers) if local else None)
     out_dir.mkdir(parents=True, exist_ok=True)
+    report(progress, "batch: reading inputs (SHA-256)", 0, max(len(jobs), 1))
     tasks = _make_tasks(jobs, out_dir, params, seed, _analyzer_name(analyze_fn), threads)
     summary = BatchSummary(out_dir=out_dir, seed=int(seed), params=params,
                            scheduler=_describe(scheduler, n_workers), workers=n_workers,
