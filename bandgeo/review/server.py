@@ -354,11 +354,21 @@ def serve(folder, host="127.0.0.1", port=0, open_browser=True, token=None, *, re
     server.thread = threading.Thread(target=server.serve_forever, kwargs={"poll_interval": 0.2},
                                      name="bandgeo-review-http", daemon=True)
     server.thread.start()
+    # Prepare the heavy page data (decimated mesh, unrolled surface) while the browser starts.
+    threading.Thread(target=_warm, args=(app.data,), name="bandgeo-review-warm", daemon=True).start()
     if open_browser:
         import webbrowser
 
         threading.Thread(target=webbrowser.open, args=(server.url,), daemon=True).start()
     return server
+
+
+def _warm(data) -> None:
+    try:
+        data.surface_payload()
+        data.mesh_payload()
+    except Exception:  # the request that needs it reports the error
+        pass
 
 
 def run(folder, host="127.0.0.1", port=0, open_browser=True, token=None, echo=print, **kwargs) -> int:

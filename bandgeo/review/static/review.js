@@ -329,8 +329,10 @@
         (b.auto ? "moved by hand" : "added by hand");
       const row = document.createElement("div"); row.className = "row";
       if (b.status === "rejected" || b.status === "merged") row.append(button("Restore (A)", () => act("accept")));
-      else row.append(button("Accept (A)", () => act("accept")), button("Reject (X)", () => act("reject")),
-        button("Merge bands across it (M)", () => act("merge")));
+      else {
+        if (b.auto && b.status !== "accepted") row.append(button("Accept (A)", () => act("accept")));
+        row.append(button("Reject (X)", () => act("reject")), button("Merge bands across it (M)", () => act("merge")));
+      }
       box.append(h, facts, row);
     }
     if (band || sel.stretch) {
