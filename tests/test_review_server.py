@@ -299,3 +299,11 @@ def test_cli_serves_a_saved_segmentation_and_stops_on_ctrl_c(tmp_path):
     assert "stopped" in out and "Traceback" not in err
     with socket.socket() as sock:
         sock.bind(("127.0.0.1", port))
+
+
+def test_a_review_that_does_not_fit_is_a_one_line_error(tmp_path):
+    folder, seg, _ = make_folder(tmp_path / "stale")
+    (folder / "review.json").write_text(json.dumps({"edits": [{"op": "reject", "id": 77}]}), encoding="utf-8")
+    with pytest.raises(ReviewError, match="does not fit the segmentation") as info:
+        serve(folder, open_browser=False, segmentation=seg)
+    assert "no boundary 77" in str(info.value) and "move the file aside" in str(info.value)

@@ -27,6 +27,8 @@ def result_summary(result, band_table=None) -> dict | None:
             "ci95": [_num(v) for v in (dpy.get("ci95") or [None, None])][:2],
             "significant": dpy.get("significant"),
             "method": dpy.get("method"),
+            "p_value": _num(dpy.get("p_value")),
+            "is_minimum": dpy.get("is_minimum"),
             "unit": dpy.get("unit") or "days/yr",
         },
         "bands": {"count": bands.get("count"), "mean_thickness_mm": _num(bands.get("mean_thickness_mm")),

@@ -53,7 +53,11 @@ class ReviewApp:
         self.data = FolderData(self.folder, segmentation=segmentation)
         review = read_review(self.folder) or {}
         base = [(b.id, b.height_mm) for b in self.data.segmentation.boundaries]
-        self.session = ReviewSession(base, self.data.span, review.get("edits", []))
+        try:
+            self.session = ReviewSession(base, self.data.span, review.get("edits", []))
+        except ReviewError as exc:
+            raise ReviewError(f"{self.folder / 'review.json'} does not fit the segmentation in the folder "
+                              f"({exc}); move the file aside and review again") from None
         self.saved_utc = review.get("updated_utc")
         self._lock = threading.Lock()
         self._worker: threading.Thread | None = None

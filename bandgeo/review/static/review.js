@@ -305,11 +305,15 @@
     else {
       const d = res.days_per_year, ci = d.ci95 || [];
       const unit = d.unit || "days/yr";
-      e.textContent = d.estimate === null ? "days per year: no estimate" :
+      const method = d.method ? String(d.method) : "";
+      e.textContent = d.estimate === null ? "days per year: no significant annual cycle" :
         `days per year: ${fmt(d.estimate, 1)} ${unit} (95% CI ${fmt(ci[0], 1)}–${fmt(ci[1], 1)} ${unit})` +
-        (d.significant === false ? " · not significant" : "") + (d.method ? ` · ${d.method}` : "");
+        (d.significant === false ? " · not significant" : "") +
+        (method ? ` · ${method.length > 38 ? method.slice(0, 36) + "…" : method}` : "");
       const b = res.bands || {};
-      e.title = `from the last analysis: ${b.count ?? "–"} bands, mean thickness ${fmt(b.mean_thickness_mm, 3)} mm`;
+      e.title = `From the last analysis: ${b.count ?? "–"} bands, mean thickness ${fmt(b.mean_thickness_mm, 3)} mm.` +
+        (method ? ` Method: ${method}.` : "") + (d.p_value !== null && d.p_value !== undefined ? ` p = ${fmt(d.p_value, 4)}.` : "") +
+        (d.is_minimum ? " Band counts are minima (missing days are not counted)." : "");
     }
     $("undo").disabled = !S.can_undo; $("redo").disabled = !S.can_redo;
     drawStatus();
