@@ -270,6 +270,9 @@ def _parse(data: bytes, path: Path, file_type: str, name: str):
                           f"a {file_type.upper()} file, export the scan again")
     if not hasattr(loaded, "faces"):
         n = len(getattr(loaded, "vertices", []))
+        if n == 0:
+            raise _fail(name, f"holds no vertices and no faces; is it really a {file_type.upper()} mesh? "
+                              "Export the scan again")
         raise _fail(name, f"holds points only ({n} vertices, no faces); mesh the point cloud first and export "
                           "the faces")
     return loaded
