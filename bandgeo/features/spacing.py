@@ -10,7 +10,7 @@ from __future__ import annotations
 import numpy as np
 
 #: A spectral peak must stand this many times above the median spectral level to count.
-PEAK_TO_NOISE_MIN = 8.0
+PEAK_TO_NOISE_MIN = 2.0
 
 #: A lower-frequency peak at least this fraction of the strongest is taken as the fundamental.
 FUNDAMENTAL_FRACTION = 0.2

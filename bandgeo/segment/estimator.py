@@ -212,10 +212,10 @@ class BandSegmenter:
         report(progress, "segment: resolution checks", 3, 5)
         res = resolution.assess(sw, rw, angle, boundaries, features, spacing, samp, gaps, warnings)
         if refuse is not None:
-            warnings.append(f"bands not resolved: {refuse}; no boundaries are reported")
+            warnings.insert(0, f"bands not resolved: {refuse}; no boundaries are reported")
             res["flagged"].append([float(sw.min()), float(sw.max()), "bands not resolved: " + refuse])
         elif boundaries and np.isfinite(res["relief_to_noise"]) and res["relief_to_noise"] < self.min_relief_to_noise:
-            warnings.append(f"bands not resolved: the groove relief {res['relief_mm']:.4f} mm is below "
+            warnings.insert(0, f"bands not resolved: the groove relief {res['relief_mm']:.4f} mm is below "
                             f"{self.min_relief_to_noise:g} x the scanner noise {res['noise_mm']:.4f} mm; "
                             f"no boundaries are reported (a finer scan or a stronger etch is needed)")
             res["flagged"].append([float(sw.min()), float(sw.max()), "groove relief below scanner noise"])

@@ -1,0 +1,261 @@
+"""Band measurements: thickness along the local growth direction, inclination and azimuth of growth.
+
+For band ``k`` between boundaries ``k`` (base) and ``k+1`` (top), each fitted by a plane:
+
+- the growth direction ``g`` is the normalised mean of the two boundary normals (both point up the
+  column);
+- ``thickness_axis_mm`` is the distance along ``g`` from the point where the base plane crosses the
+  centreline to the top plane;
+- ``thickness_median_mm`` and ``thickness_iqr_mm`` are the median and interquartile range of the same
+  distance taken from ``N_AROUND`` points around the base ring at the side wall (median radius of the
+  band's wall vertices), so wedge-shaped laminae show their spread;
+- ``inclination_deg`` is the angle of ``g`` from the paleo-vertical ``z``; ``azimuth_deg`` is its
+  direction clockwise from north, ``atan2(x, y)`` (common practice for azimuths), 0..360.
+"""
+from __future__ import annotations
+
+import csv
+import io
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+
+from .atomic import write_text
+from .errors import InputError
+
+#: Points around the circumference used for the median thickness.
+N_AROUND = 72
+
+#: Confidence below which a band is flagged for review.
+LOW_CONFIDENCE = 0.5
+
+#: CSV columns (units in the names) and the attribute each comes from.
+COLUMNS = (("band_index", "index"), ("base_mm", "base_mm"), ("top_mm", "top_mm"),
+           ("thickness_axis_mm", "thickness_axis_mm"), ("thickness_median_mm", "thickness_median_mm"),
+           ("thickness_iqr_mm", "thickness_iqr_mm"), ("inclination_deg", "inclination_deg"),
+           ("azimuth_deg", "azimuth_deg"), ("confidence", "confidence"), ("flags", "flags"))
+
+
+@dataclass
+class BandTable:
+    """One row per band, base to top.
+
+    Attributes
+    ----------
+    index : (N,) int
+        Band number from the base, 0-based.
+    base_mm, top_mm : (N,) float
+        Heights of the bounding boundaries on the centreline, mm.
+    thickness_axis_mm : (N,) float
+        Thickness along the local growth direction at the axis, mm.
+    thickness_median_mm, thickness_iqr_mm : (N,) float
+        Median and interquartile range of the thickness around the circumference, mm.
+    inclination_deg, azimuth_deg : (N,) float
+        Growth direction from the paleo-vertical, and its azimuth clockwise from north (y), degrees.
+    confidence : (N,) float
+        The lower of the two boundary confidences (0..1).
+    flags : list of str
+        Per band, ';'-separated remarks (flagged stretches, repairs, low confidence); '' if none.
+    growth_direction : (N, 3) float
+        Unit growth directions, specimen frame.
+    warnings : list of str
+    north_known : bool
+        When False, azimuths are relative to the specimen's arbitrary y axis.
+    """
+
+    index: np.ndarray
+    base_mm: np.ndarray
+    top_mm: np.ndarray
+    thickness_axis_mm: np.ndarray
+    thickness_median_mm: np.ndarray
+    thickness_iqr_mm: np.ndarray
+    inclination_deg: np.ndarray
+    azimuth_deg: np.ndarray
+    confidence: np.ndarray
+    flags: list
+    growth_direction: np.ndarray = None
+    warnings: list = field(default_factory=list)
+    north_known: bool = True
+
+    def __len__(self) -> int:
+        return int(len(self.index))
+
+    def to_records(self) -> list:
+        """One dict per band, keyed by the CSV column names."""
+        out = []
+        for i in range(len(self)):
+            row = {}
+            for col, attr in COLUMNS:
+                val = getattr(self, attr)[i]
+                row[col] = val if isinstance(val, str) else (int(val) if col == "band_index" else float(val))
+            out.append(row)
+        return out
+
+    def to_csv(self, path) -> Path:
+        """Write the table as CSV (units in the column names), atomically. Returns the path."""
+        buf = io.StringIO()
+        w = csv.writer(buf, lineterminator="\n")
+        w.writerow([c for c, _ in COLUMNS])
+        for rec in self.to_records():
+            w.writerow([_fmt(rec[c]) for c, _ in COLUMNS])
+        return write_text(path, buf.getvalue())
+
+    @classmethod
+    def from_csv(cls, path) -> "BandTable":
+        """Read a table written by :meth:`to_csv`; a wrong or damaged file raises InputError."""
+        path = Path(path)
+        if not path.is_file():
+            raise InputError(f"{str(path)!r} does not exist; give the bands.csv written by 'bandgeo segment'")
+        try:
+            rows = list(csv.DictReader(io.StringIO(path.read_text(encoding="utf-8-sig"))))
+            header = next(csv.reader(io.StringIO(path.read_text(encoding="utf-8-sig"))), [])
+        except (UnicodeDecodeError, csv.Error) as exc:
+            raise InputError(f"{path} is not a readable CSV ({exc}); re-export it") from None
+        missing = [c for c, _ in COLUMNS if c not in header]
+        if missing:
+            raise InputError(f"{path} lacks column(s) {', '.join(missing)}; expected the header "
+                             f"{','.join(c for c, _ in COLUMNS)}")
+        data = {attr: [] for _, attr in COLUMNS}
+        for ln, row in enumerate(rows, start=2):
+            for col, attr in COLUMNS:
+                raw = row.get(col)
+                if attr == "flags":
+                    data[attr].append(raw or "")
+                    continue
+                try:
+                    data[attr].append(float(raw) if raw not in ("", None) else float("nan"))
+                except ValueError:
+                    raise InputError(f"{path} line {ln}: column {col} holds {raw!r}, expected a number") from None
+        arr = {k: np.asarray(v, dtype=float) for k, v in data.items() if k != "flags"}
+        return cls(index=arr["index"].astype(int), base_mm=arr["base_mm"], top_mm=arr["top_mm"],
+                   thickness_axis_mm=arr["thickness_axis_mm"], thickness_median_mm=arr["thickness_median_mm"],
+                   thickness_iqr_mm=arr["thickness_iqr_mm"], inclination_deg=arr["inclination_deg"],
+                   azimuth_deg=arr["azimuth_deg"], confidence=arr["confidence"], flags=data["flags"])
+
+
+def _fmt(v):
+    if isinstance(v, str):
+        return v
+    if isinstance(v, int):
+        return str(v)
+    return "" if not np.isfinite(v) else f"{v:.6g}"
+
+
+def _overlaps(a0, a1, b0, b1) -> bool:
+    return min(a1, b1) - max(a0, b0) > 1e-9
+
+
+def direction_angles(g: np.ndarray):
+    """Inclination from +z and azimuth clockwise from +y (north), degrees, for (N, 3) unit vectors."""
+    g = np.atleast_2d(g)
+    inc = np.degrees(np.arccos(np.clip(g[:, 2], -1.0, 1.0)))
+    az = np.degrees(np.arctan2(g[:, 0], g[:, 1])) % 360.0
+    return inc, az
+
+
+def measure_bands(specimen, segmentation) -> BandTable:
+    """Measure every band of ``segmentation`` on ``specimen``.
+
+    Parameters
+    ----------
+    specimen : bandgeo.scan.Specimen
+    segmentation : bandgeo.segment.Segmentation
+
+    Returns
+    -------
+    BandTable
+    """
+    try:
+        v = np.asarray(specimen.vertices_mm, dtype=float)
+        bs = list(segmentation.boundaries)
+        axis = segmentation.axis
+        vband = np.asarray(segmentation.vertex_band)
+    except AttributeError:
+        raise InputError("expected a Specimen and a Segmentation of it; run the segmentation first") from None
+    if len(vband) != len(v):
+        raise InputError(f"the segmentation labels {len(vband)} vertices but the specimen has {len(v)}; "
+                         f"use the segmentation made from this specimen")
+    bs = sorted(bs, key=lambda b: b.height_mm)
+    nb = max(0, len(bs) - 1)
+    warnings = []
+    north_known = bool(getattr(specimen, "north_known", True))
+    if not north_known and nb:
+        warnings.append("north is not known: azimuths are measured from the specimen's y axis, not north")
+    if nb == 0:
+        empty = np.zeros(0)
+        if segmentation.boundaries is not None:
+            warnings.append("fewer than two boundaries: no bands to measure")
+        return BandTable(np.zeros(0, int), empty, empty, empty, empty, empty, empty, empty, empty, [],
+                         np.zeros((0, 3)), warnings, north_known)
+    # median wall radius per band (from the labelled vertices), for the circumference samples
+    s, radial = axis.project(v)
+    r = np.linalg.norm(radial, axis=1)
+    inside = vband >= 0
+    radius = np.full(nb, np.nan)
+    if inside.any():
+        order = np.argsort(vband[inside], kind="stable")
+        lab, rr = vband[inside][order], r[inside][order]
+        starts = np.searchsorted(lab, np.arange(nb))
+        ends = np.searchsorted(lab, np.arange(nb), side="right")
+        for k in range(nb):
+            if ends[k] > starts[k]:
+                radius[k] = np.median(rr[starts[k]:ends[k]])
+    fallback = np.nanmedian(radius) if np.isfinite(radius).any() else float(np.median(r))
+    radius = np.where(np.isfinite(radius), radius, fallback)
+
+    flagged = (segmentation.resolution or {}).get("flagged", []) or []
+    theta = 2 * np.pi * np.arange(N_AROUND) / N_AROUND
+    rows = {k: np.zeros(nb) for k in ("base", "top", "tax", "tmed", "tiqr", "conf")}
+    gdir = np.zeros((nb, 3))
+    flags = []
+    for k in range(nb):
+        b0, b1 = bs[k], bs[k + 1]
+        g = b0.normal + b1.normal
+        g /= np.linalg.norm(g)
+        gdir[k] = g
+        p0, _ = axis.at(b0.height_mm)
+        den = float(np.dot(g, b1.normal))
+        rows["tax"][k] = float(np.dot(b1.center_mm - p0, b1.normal)) / den
+        # points on the base ring at the wall
+        e1 = np.cross(b0.normal, [1.0, 0.0, 0.0] if abs(b0.normal[0]) < 0.9 else [0.0, 1.0, 0.0])
+        e1 /= np.linalg.norm(e1)
+        e2 = np.cross(b0.normal, e1)
+        # centre of the base ring where its plane crosses the axis
+        ring = p0 + radius[k] * (np.cos(theta)[:, None] * e1 + np.sin(theta)[:, None] * e2)
+        t = ((b1.center_mm - ring) @ b1.normal) / den
+        rows["tmed"][k] = float(np.median(t))
+        q75, q25 = np.percentile(t, [75, 25])
+        rows["tiqr"][k] = float(q75 - q25)
+        rows["base"][k], rows["top"][k] = b0.height_mm, b1.height_mm
+        rows["conf"][k] = min(b0.confidence, b1.confidence)
+        fl = []
+        for st in flagged:
+            if _overlaps(b0.height_mm, b1.height_mm, float(st[0]), float(st[1])) and str(st[2]) not in fl:
+                fl.append(str(st[2]))
+        for b in (b0, b1):
+            for f in b.flags:
+                if not f.startswith("normal:") and f not in fl and f != "placed by height":
+                    fl.append(f)
+            if b.origin == "review" and "edited in review" not in fl:
+                fl.append("edited in review")
+        if rows["conf"][k] < LOW_CONFIDENCE:
+            fl.append("low confidence")
+        if rows["tax"][k] <= 0:
+            fl.append("boundaries cross")
+        flags.append("; ".join(fl))
+    inc, az = direction_angles(gdir)
+    return BandTable(index=np.arange(nb), base_mm=rows["base"], top_mm=rows["top"],
+                     thickness_axis_mm=rows["tax"], thickness_median_mm=rows["tmed"],
+                     thickness_iqr_mm=rows["tiqr"], inclination_deg=inc, azimuth_deg=az,
+                     confidence=rows["conf"], flags=flags, growth_direction=gdir, warnings=warnings,
+                     north_known=north_known)
+
+
+def mean_growth_direction(table: BandTable) -> np.ndarray:
+    """Thickness-weighted mean growth direction of the column (unit (3,) vector)."""
+    if len(table) == 0:
+        return np.array([np.nan] * 3)
+    w = np.clip(np.nan_to_num(table.thickness_axis_mm), 0.0, None)
+    g = (table.growth_direction * w[:, None]).sum(axis=0)
+    return g / np.linalg.norm(g)
