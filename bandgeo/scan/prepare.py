@@ -13,7 +13,7 @@ from .types import Scan, ScaleReference, Specimen, SpecimenSheet
 #: Faces needed for a mesh to be worth orienting at all.
 MIN_FACES = 20
 #: Plausible overall size of a hand specimen, mm (USERS.md: columns 1-10 cm wide, 5-50 cm tall).
-PLAUSIBLE_MM = (5.0, 2000.0)
+PLAUSIBLE_MM = (10.0, 2000.0)
 TYPICAL_MM = (20.0, 1000.0)
 
 
@@ -188,7 +188,8 @@ def prepare(scan: Scan, *, units=None, up=None, north=None, strike_dip=None, she
     # ---- origin on the axis at the base
     pm = p * k
     zmin, zmax = float(pm[:, 2].min()), float(pm[:, 2].max())
-    base = pm[:, 2] <= zmin + 0.03 * (zmax - zmin)
+    width = float(max(np.ptp(pm[:, 0]), np.ptp(pm[:, 1])))
+    base = pm[:, 2] <= zmin + min(0.03 * (zmax - zmin), 0.1 * width)
     origin = np.array([pm[base, 0].mean(), pm[base, 1].mean(), zmin])
     vertices_mm = pm - origin
     m_scale = _h(scale=k)
