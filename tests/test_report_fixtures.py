@@ -152,3 +152,33 @@ def make_state(folder: Path, significant=True, n_rows=240, n_cols=120, period=40
     return SimpleNamespace(folder=Path(folder), result=result_dict(n_bands, period, significant),
                            specimen=specimen, segmentation=seg, band_table=table, series=series,
                            periodicity=periodicity(n_bands, period, significant))
+
+
+def with_spectral_stage(state, n_sim=99, seed=5):
+    """Replace the synthetic periodicity of ``state`` by the real spectral stage run on its series.
+
+    Uses ``bandgeo.series.BandSeries`` and ``bandgeo.spectral.test_periodicity``; the result.json blocks
+    (daily_test, days_per_year, tidal, hiatus) then come from the engine, as in a real analysis.
+    """
+    from bandgeo.series import BandSeries
+    from bandgeo.spectral import test_periodicity
+
+    s = state.series
+    series = BandSeries(band_number=np.asarray(s.band_number), thickness_mm=np.asarray(s.thickness_mm),
+                        inclination_deg=s.inclination_deg, sway_deg=s.sway_deg,
+                        hiatus_flags=np.asarray(s.hiatus_flags), source="report fixture")
+    per = test_periodicity(series, n_sim=n_sim, seed=seed)
+    blocks = per.to_dict()
+    for key in ("daily_test", "days_per_year", "tidal", "hiatus"):
+        state.result[key] = blocks[key]
+    state.result["warnings"] = list(state.result["warnings"]) + list(blocks["warnings"])
+    if not blocks["days_per_year"]["significant"]:
+        state.result["length_of_day_hours"] = None
+        state.result["sidereal_day_hours"] = None
+    else:
+        est, (lo, hi) = blocks["days_per_year"]["estimate"], blocks["days_per_year"]["ci95"]
+        year_h = 365.24219 * 24.0                      # LOD = Y / N (reference-values.md)
+        state.result["length_of_day_hours"] = {"estimate": year_h / est, "ci95": [year_h / hi, year_h / lo],
+                                               "method": "LOD = year / N"}
+    state.series, state.periodicity = series, per
+    return state

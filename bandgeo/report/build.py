@@ -104,10 +104,11 @@ def _figure_specs(state: Any) -> list[tuple[str, str, str, Any, bool]]:
                           lambda: figures.evolutive_figure(evol, searched), False))
     counts = model.cycle_counts(result) if f_est is not None else []
     cc = (dpy.get("methods") or {}).get("cycle_count") or {}
+    cc_method = str(cc.get("method") or "") if isinstance(cc, Mapping) else ""
     specs.append(("counts", "Cycle-by-cycle counts",
-                  "Bands counted in each successive annual cycle; each count is a minimum.",
-                  lambda: figures.counts_figure(counts, cc.get("estimate") if isinstance(cc, Mapping) else None,
-                                                str(cc.get("method", "")) if isinstance(cc, Mapping) else ""),
+                  "Bands counted in each successive annual cycle; each count is a minimum."
+                  + (f" Method: {cc_method}." if cc_method and counts else ""),
+                  lambda: figures.counts_figure(counts, cc.get("estimate") if isinstance(cc, Mapping) else None),
                   False))
     sp = result.get("specimen") or {}
     refs = reference_points()

@@ -84,20 +84,24 @@ def unrolled_figure(s_mm, azimuth_deg, radius_mm, boundaries, axis, flagged=(), 
                  "orange margin: flagged)", fontsize=8)
     if len(boundaries) >= 2:
         heights = np.array([b.height_mm for b in boundaries], float)
-        mid = len(boundaries) // 2
-        lo_i, hi_i = max(0, mid - zoom_bands // 2), min(len(boundaries) - 1, mid + zoom_bands // 2)
-        z0, z1 = heights[lo_i], heights[hi_i]
-        pad = 0.5 * (z1 - z0) / max(hi_i - lo_i, 1)
-        z0, z1 = z0 - pad, z1 + pad
+        span = float(np.ptp(s_mm))
+        # mean vertex spacing for isotropic sampling: the zoom never goes finer than ~20 samples
+        spacing = np.sqrt(span * 2 * np.pi * radius / max(len(s_mm), 1))
+        mid = 0.5 * (heights[len(heights) // 2] + heights[(len(heights) - 1) // 2])
+        typical = float(np.median(np.diff(heights))) if len(heights) > 2 else span / 10
+        half = max(0.5 * zoom_bands * typical, 10.0 * spacing)
+        z0, z1 = mid - half, mid + half
+        inside = [b for b in boundaries if z0 <= b.height_mm <= z1]
         keep = (s_mm >= z0) & (s_mm <= z1)
-        if keep.sum() > 100 and z1 > z0:
-            n_s = int(np.clip(4 * (hi_i - lo_i + 1), 40, 400))
-            zimg, zse, zae = relief_image(s_mm[keep], azimuth_deg[keep], radius_mm[keep], n_s=n_s,
-                                          smooth_mm=smooth_mm)
+        if keep.sum() > 100 and inside:
+            zimg, zse, zae = relief_image(s_mm[keep], azimuth_deg[keep], radius_mm[keep], smooth_mm=smooth_mm)
             _relief_panel(zx, fig, zimg, zse, zae, label=False)
-            _draw_boundaries(zx, boundaries[lo_i:hi_i + 1], axis, radius)
-            zx.set_title(f"zoom: boundaries {boundaries[lo_i].id}-{boundaries[hi_i].id}, all drawn\n"
+            zstep = max(1, int(np.ceil(len(inside) / max_drawn)))
+            _draw_boundaries(zx, inside[::zstep], axis, radius)
+            what = "all drawn" if zstep == 1 else f"every {zstep}th drawn"
+            zx.set_title(f"zoom: boundaries {inside[0].id}-{inside[-1].id}, {what}\n"
                          f"({z0:.1f}-{z1:.1f} mm along the axis)", fontsize=8)
+            zx.set_ylim(z0, z1)
             ax.axhspan(z0, z1, xmin=0.0, xmax=0.03, color=LINE["search"], alpha=0.9)
             return fig
     zx.set_axis_off()
@@ -206,51 +210,71 @@ def periodogram_figure(spectra, searched=None, estimate_frequency=None):
                                                   lambda v: 1.0 / np.maximum(v, 1e-9)))
         top.set_xlabel("period, bands per cycle", fontsize=8)
         top.tick_params(labelsize=7)
-        ax.legend(fontsize=7, loc="lower left", framealpha=0.85)
         ax.grid(alpha=0.25)
+    handles, labels = {}, []
+    for ax in axes:
+        for h, lab in zip(*ax.get_legend_handles_labels()):
+            if lab not in handles:
+                handles[lab] = h
+    fig.legend(list(handles.values()), list(handles), loc="outside lower center", ncol=3, fontsize=7,
+               frameon=False)
     return fig
 
 
 def evolutive_figure(evolutive, searched=None):
-    """Sliding-window spectra: window centre (band number) × frequency, power as an image."""
-    if not evolutive:
-        return _message_figure("No evolutive spectrum was saved with this result.")
-    fig = Figure(figsize=(8.0, 3.2 * len(evolutive) + 0.4), layout="constrained")
-    axes = fig.subplots(len(evolutive), 1, squeeze=False)[:, 0]
-    for ax, ev in zip(axes, evolutive):
-        power = np.asarray(ev["power"], float)
-        img = ax.pcolormesh(ev["centre"], ev["frequency"], power.T, cmap=IMAGE_CMAP, shading="nearest",
-                            rasterized=True)
+    """Sliding-window spectra: window centre (band number) × frequency, power as an image (log scales)."""
+    from matplotlib.colors import LogNorm
+
+    usable = [ev for ev in evolutive if len(ev["centre"]) >= 3]
+    if not usable:
+        return _message_figure("Evolutive spectrum: the record holds fewer than three windows of the "
+                               "needed length, so persistence through the record is not shown.")
+    fig = Figure(figsize=(8.0, 3.4 * len(usable) + 0.4), layout="constrained")
+    axes = fig.subplots(len(usable), 1, squeeze=False)[:, 0]
+    for ax, ev in zip(axes, usable):
+        f = np.asarray(ev["frequency"], float)
+        keep = f > 0
+        power = np.asarray(ev["power"], float)[:, keep]
+        finite = power[np.isfinite(power) & (power > 0)]
+        lo = float(np.percentile(finite, 5)) if finite.size else 1e-3
+        hi = float(finite.max()) if finite.size else 1.0
+        img = ax.pcolormesh(ev["centre"], f[keep], power.T, cmap=IMAGE_CMAP, shading="nearest",
+                            norm=LogNorm(vmin=lo, vmax=max(hi, lo * 10)), rasterized=True)
         fig.colorbar(img, ax=ax, pad=0.01).set_label(ev.get("label", "power"), fontsize=8)
         if searched is not None and min(searched) > 0:
             for b in searched:
                 ax.axhline(1.0 / b, color="white", lw=0.9, ls="--", path_effects=_OUTLINE)
+        ax.set_yscale("log")
         ax.set_xlabel("window centre, band number")
         ax.set_ylabel("frequency, cycles per band")
-        ax.set_title(f"Evolutive spectrum of the {ev['name']} series (dashed: searched band)", fontsize=9)
+        ax.set_title(f"{ev['name']} series (dashed: limits of the searched band)", fontsize=9)
     return fig
 
 
 def counts_figure(counts, estimate=None, method=""):
-    """Bands counted in each successive annual cycle, with the mean and the accepted estimate."""
+    """Bands counted in each successive annual cycle (a dot per cycle), with the mean and the estimate.
+
+    Dots rather than bars, because the value axis does not start at zero.
+    """
     counts = np.asarray([c for c in counts if c is not None], float)
     if counts.size == 0:
         return _message_figure("No cycle-by-cycle counts: no significant annual cycle.")
     fig = Figure(figsize=(8.0, 3.2), layout="constrained")
     ax = fig.add_subplot(1, 1, 1)
     idx = np.arange(1, len(counts) + 1)
-    ax.bar(idx, counts, color=LINE["data"], width=0.8, label="bands in the cycle")
+    ax.plot(idx, counts, "o-", color=LINE["data"], lw=0.8, ms=5, label="bands in the cycle")
     ax.axhline(np.mean(counts), color=LINE["background"], ls="--", lw=1,
                label=f"mean {np.mean(counts):.1f} bands per cycle")
     if estimate is not None and np.isfinite(estimate):
         ax.axhline(estimate, color=LINE["estimate"], lw=1.3, label=f"estimate {estimate:.1f}")
-    lo = max(0.0, float(np.min(counts)) * 0.8)
-    ax.set_ylim(lo, float(np.max(counts)) * 1.1)   # axis does not start at zero: stated in the label
     ax.set_xlabel("annual cycle number, from the base")
-    ax.xaxis.set_major_locator(MaxNLocator(integer=True))
-    ax.set_ylabel(f"bands per cycle (axis from {lo:.0f})", fontsize=8)
-    ax.set_title("Cycle-by-cycle counts (each a minimum: missing days are not counted)"
-                 + (f" - {method}" if method else ""), fontsize=9)
-    ax.legend(fontsize=7, framealpha=0.85, loc="lower right")
-    ax.grid(alpha=0.25, axis="y")
+    if len(counts) <= 25:
+        ax.set_xticks(idx)
+    else:
+        ax.xaxis.set_major_locator(MaxNLocator(integer=True))
+    ax.set_xlim(0.5, len(counts) + 0.5)
+    ax.set_ylabel("bands per cycle")
+    ax.set_title("each count is a minimum: missing days leave no band", fontsize=9)
+    ax.legend(fontsize=7, framealpha=0.85, loc="best")
+    ax.grid(alpha=0.25)
     return fig

@@ -60,7 +60,17 @@ def unroll_vertices(vertices_mm: np.ndarray, axis) -> tuple[np.ndarray, np.ndarr
     return s, np.mod(az, 360.0), np.linalg.norm(r, axis=1)
 
 
-def relief_image(s_mm, azimuth_deg, radius_mm, n_az=360, n_s=None, smooth_mm=None):
+def grid_shape(n_points: int, span_mm: float, radius_mm: float, per_cell: float = 4.0) -> tuple[int, int]:
+    """Cells along the axis and in azimuth so that each holds about ``per_cell`` vertices and the cells
+    are roughly square on the surface (height span ``span_mm``, circumference ``2 pi radius_mm``)."""
+    cells = max(n_points / per_cell, 1.0)
+    aspect = max(2 * np.pi * max(radius_mm, 1e-6), 1e-6) / max(span_mm, 1e-6)   # width / height
+    n_az = int(np.clip(np.sqrt(cells * aspect), 36, 720))
+    n_s = int(np.clip(cells / n_az, 20, 1500))
+    return n_s, n_az
+
+
+def relief_image(s_mm, azimuth_deg, radius_mm, n_az=None, n_s=None, smooth_mm=None):
     """Relief of the side surface on a regular (height, azimuth) grid.
 
     Relief is the mean radius in each cell minus a smooth version of it (Gaussian, wrapping in
@@ -78,8 +88,9 @@ def relief_image(s_mm, azimuth_deg, radius_mm, n_az=360, n_s=None, smooth_mm=Non
     s_mm = np.asarray(s_mm, float)
     lo, hi = float(np.min(s_mm)), float(np.max(s_mm))
     span = max(hi - lo, 1e-9)
-    if n_s is None:
-        n_s = int(np.clip(np.sqrt(len(s_mm) / 4.0), 50, 900))
+    auto_s, auto_az = grid_shape(len(s_mm), span, float(np.median(radius_mm)))
+    n_s = auto_s if n_s is None else int(n_s)
+    n_az = auto_az if n_az is None else int(n_az)
     s_edges = np.linspace(lo, hi, n_s + 1)
     az_edges = np.linspace(0.0, 360.0, n_az + 1)
     si = np.clip(((s_mm - lo) / span * n_s).astype(np.int64), 0, n_s - 1)
