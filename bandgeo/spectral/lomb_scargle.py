@@ -20,7 +20,7 @@ _BLOCK = 4_000_000
 
 def oversample_for(n: int) -> int:
     """Zero-padding factor of the frequency grid for a series of ``n`` bands (finer for short series)."""
-    return 8 if n <= 20_000 else (4 if n <= 50_000 else 2)
+    return 4 if n <= 50_000 else 2
 
 
 def n_fft_for(n: int, oversample: int | None = None) -> int:
@@ -76,14 +76,15 @@ def astropy_power(x: np.ndarray, frequency: np.ndarray) -> np.ndarray:
     """astropy ``LombScargle`` power (normalization 'psd', data centred, no floating mean) of one
     series indexed by band number, at ``frequency`` (cycles per band, > 0).
 
-    The exact 'cython' method is used up to 5000 bands and the fast approximation beyond
-    (see /work/shared/PERF-NOTES: exact methods are 16-80x slower at 1e5 samples).
+    The exact 'cython' method is used while bands x frequencies stays below 2e6, and astropy's fast
+    approximation beyond (see /work/shared/PERF-NOTES: exact methods are 16-80x slower at 1e5 samples).
     """
     from astropy.timeseries import LombScargle
 
     x = np.asarray(x, dtype=float)
     t = np.arange(x.size, dtype=float)
-    method = "cython" if x.size <= 5000 else "fast"
+    frequency = np.asarray(frequency, dtype=float)
+    method = "cython" if x.size * frequency.size <= 2_000_000 else "fast"
     ls = LombScargle(t, x, fit_mean=False, center_data=True, normalization="psd")
     return np.asarray(ls.power(np.asarray(frequency, dtype=float), method=method), dtype=float)
 
@@ -115,7 +116,7 @@ def parabolic_peak(power: np.ndarray, index: np.ndarray, n_fft: int) -> np.ndarr
     return (i + np.clip(delta, -0.5, 0.5)) / n_fft
 
 
-def refine_frequency(x: np.ndarray, f0: np.ndarray, n_steps: int = 3) -> np.ndarray:
+def refine_frequency(x: np.ndarray, f0: np.ndarray, n_steps: int = 2) -> np.ndarray:
     """Refine peak frequencies by Newton steps on the exact periodogram ``|X(f)|^2`` (batched).
 
     Parameters
@@ -124,7 +125,7 @@ def refine_frequency(x: np.ndarray, f0: np.ndarray, n_steps: int = 3) -> np.ndar
         Series (already detrended), one per row.
     f0 : (B,) float
         Starting frequencies (cycles per band), e.g. from :func:`parabolic_peak`.
-    n_steps : int, default=3
+    n_steps : int, default=2
 
     Returns
     -------
@@ -144,11 +145,15 @@ def refine_frequency(x: np.ndarray, f0: np.ndarray, n_steps: int = 3) -> np.ndar
         xb = x[sl]
         fb = f[sl]
         for _ in range(n_steps):
-            e = np.exp(-1j * np.outer(fb, w))
-            xe = xb * e
-            X0 = xe.sum(axis=1)
-            X1 = (xe * (-1j * w)).sum(axis=1)
-            X2 = (xe * (-(w * w))).sum(axis=1)
+            # exp(-i f w_t) by a running product (w_t steps by 2 pi): cheaper than n complex exps.
+            e = np.empty_like(xb, dtype=complex)
+            e[:, 0] = np.exp(-1j * fb * w[0])
+            e[:, 1:] = np.exp(-2j * np.pi * fb)[:, None]
+            np.cumprod(e, axis=1, out=e)
+            e *= xb
+            X0 = e.sum(axis=1)
+            X1 = -1j * (e @ w)
+            X2 = -(e @ (w * w))
             d1 = 2.0 * np.real(np.conj(X0) * X1)
             d2 = 2.0 * (np.abs(X1) ** 2 + np.real(np.conj(X0) * X2))
             with np.errstate(divide="ignore", invalid="ignore"):

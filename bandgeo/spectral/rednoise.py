@@ -14,6 +14,8 @@ Gilman, D. L., Fuglister, F. J. & Mitchell, J. M. (1963) J. Atmos. Sci. 20:182-1
 """
 from __future__ import annotations
 
+import functools
+
 import numpy as np
 from scipy.signal import lfilter
 
@@ -52,6 +54,17 @@ def _bins(frequency: np.ndarray, n: int):
     return [g for g in groups if g.size >= 2]
 
 
+@functools.lru_cache(maxsize=64)
+def _bin_table(nf: int, df: float, n: int):
+    """Indices (nb, size) of the points of each bin, same number per bin (evenly spread) so that the
+    medians are one vectorised call, and the bins' mean frequencies (cached per grid)."""
+    frequency = np.arange(nf) * df
+    groups = _bins(frequency, n)
+    size = min(g.size for g in groups)
+    take = np.stack([g[np.linspace(0, g.size - 1, size).round().astype(int)] for g in groups])
+    return take, frequency[take].mean(axis=1)
+
+
 def fit_ar1_spectrum(power: np.ndarray, frequency: np.ndarray, n: int):
     """Robust AR(1) fit to periodograms (one per row).
 
@@ -71,11 +84,8 @@ def fit_ar1_spectrum(power: np.ndarray, frequency: np.ndarray, n: int):
         Innovation variance, in the units of power.
     """
     P = np.atleast_2d(np.asarray(power, dtype=float))
-    groups = _bins(np.asarray(frequency, dtype=float), n)
-    size = min(g.size for g in groups)
-    # Same number of points per bin (evenly spread), so the medians are one vectorised call.
-    take = np.stack([g[np.linspace(0, g.size - 1, size).round().astype(int)] for g in groups])
-    fb = np.asarray(frequency)[take].mean(axis=1)
+    frequency = np.asarray(frequency, dtype=float)
+    take, fb = _bin_table(frequency.size, float(frequency[1] - frequency[0]), int(n))
     med = np.median(P[:, take], axis=2) / np.log(2.0)
     L = np.log(np.maximum(med, np.finfo(float).tiny))          # (B, nb)
     G = -np.log(1.0 - 2.0 * PHI_GRID[:, None] * np.cos(2 * np.pi * fb)[None, :] + PHI_GRID[:, None] ** 2)
