@@ -158,15 +158,22 @@ def estimate_up(vertices: np.ndarray, faces: np.ndarray, boundary_edges=None, ma
         t = (centroid - mean) @ axis
         lo, hi = np.quantile(t, [0.15, 0.85])
         nb = 16
-        edges = np.linspace(lo, hi, nb + 1)
-        b = np.clip(np.searchsorted(edges, t) - 1, 0, nb - 1)
         inside = (t >= lo) & (t <= hi)
-        wsum = np.bincount(b[inside], weights=area[inside], minlength=nb)
+        # linear (cloud-in-cell) binning: a ring of faces on a bin edge splits smoothly between two bins
+        u = (t[inside] - lo) / max(hi - lo, 1e-300) * nb - 0.5
+        i0 = np.floor(u).astype(np.int64)
+        w1 = u - i0
+        idx = np.clip(np.concatenate([i0, i0 + 1]), 0, nb - 1)
+        # taper to zero at both cuts, so a ring of faces lying exactly on a cut has no weight
+        taper = np.sin(np.pi * (t[inside] - lo) / max(hi - lo, 1e-300)) ** 2
+        wts = np.concatenate([1.0 - w1, w1]) * np.tile(area[inside] * taper, 2)
+        pts = np.tile(centroid[inside], (2, 1))
+        wsum = np.bincount(idx, weights=wts, minlength=nb)
         good = wsum > 0
         if good.sum() < 4:
             break
-        cen = np.stack([np.bincount(b[inside], weights=area[inside] * centroid[inside, k], minlength=nb)
-                        for k in range(3)], axis=1)[good] / wsum[good][:, None]
+        cen = np.stack([np.bincount(idx, weights=wts * pts[:, k], minlength=nb) for k in range(3)],
+                       axis=1)[good] / wsum[good][:, None]
         cmean = cen.mean(axis=0)
         _, sv, vt = np.linalg.svd(cen - cmean)
         new = vt[0] if np.dot(vt[0], axis) >= 0 else -vt[0]
