@@ -1,0 +1,220 @@
+"""Segmentation data objects, save/load, band assignment, repair rules and the estimator's conventions."""
+import json
+from types import SimpleNamespace
+
+import numpy as np
+import pytest
+
+from bandgeo.constants import SEGMENTATION_SCHEMA
+from bandgeo.errors import InputError, ParameterError, ReviewError
+from bandgeo.segment import (BandSegmenter, Boundary, Centreline, Segmentation, assign_bands,
+                             fit_centreline, plane_height)
+from bandgeo.segment import repair as rp
+from bandgeo.segment.axis import circle_centres
+
+
+def tilted_axis(tilt_deg=10.0, az_deg=30.0, length=20.0):
+    t = np.array([np.sin(np.radians(tilt_deg)) * np.sin(np.radians(az_deg)),
+                  np.sin(np.radians(tilt_deg)) * np.cos(np.radians(az_deg)), np.cos(np.radians(tilt_deg))])
+    s = np.linspace(0.0, length, 50)
+    return Centreline(s, s[:, None] * t[None, :], np.repeat(t[None, :], 50, axis=0)), t
+
+
+def cylinder_points(axis, t, radius=3.0, n=20000, length=20.0, seed=0):
+    rng = np.random.default_rng(seed)
+    s = rng.uniform(0, length, n)
+    th = rng.uniform(0, 2 * np.pi, n)
+    e1 = np.cross(t, [1.0, 0, 0])
+    e1 /= np.linalg.norm(e1)
+    e2 = np.cross(t, e1)
+    return s, s[:, None] * t + radius * (np.cos(th)[:, None] * e1 + np.sin(th)[:, None] * e2)
+
+
+def make_segmentation(heights=(2.0, 4.0, 7.0, 9.5)):
+    axis, t = tilted_axis()
+    s, v = cylinder_points(axis, t)
+    bs = [Boundary.from_height(h, axis, id=i, origin="auto") for i, h in enumerate(heights)]
+    band = assign_bands(v, bs, axis)
+    seg = Segmentation(boundaries=bs, axis=axis, vertex_class=np.zeros(len(v), np.int8),
+                       class_names=["groove", "flank", "ridge"], vertex_band=band,
+                       resolution={"sampling_along_mm": 0.05, "flagged": [[4.0, 7.0, "test stretch"]]},
+                       warnings=["a warning"], params={"n_classes": "bic"})
+    return seg, SimpleNamespace(vertices_mm=v, faces=np.zeros((0, 3), int)), s
+
+
+def test_centreline_at_and_project_on_a_straight_tilted_line():
+    axis, t = tilted_axis()
+    p, tan = axis.at(5.0)
+    assert np.allclose(p, 5.0 * t) and np.allclose(tan, t)
+    s, v = cylinder_points(axis, t, n=1000)
+    s_hat, radial = axis.project(v)
+    # construction: each point is s * t plus a radial offset of 3 mm
+    assert np.allclose(s_hat, s, atol=1e-9)
+    assert np.allclose(np.linalg.norm(radial, axis=1), 3.0)
+    # beyond the ends the curve goes on straight
+    assert np.allclose(axis.at(-1.0)[0], -t) and np.allclose(axis.at(25.0)[0], 25.0 * t)
+
+
+def test_circle_fit_recovers_centre_of_a_partial_arc():
+    # Kasa (1976) algebraic circle fit: exact on noise-free points, also on a 90-degree arc
+    th = np.linspace(0, np.pi / 2, 50)
+    x, y = 1.5 + 2.0 * np.cos(th), -0.5 + 2.0 * np.sin(th)
+    cx, cy, r = circle_centres(np.zeros(50, dtype=np.int64), x, y, 1)
+    assert cx[0] == pytest.approx(1.5) and cy[0] == pytest.approx(-0.5) and r[0] == pytest.approx(2.0)
+
+
+def test_fit_centreline_follows_a_curved_column():
+    # a column whose axis bends along a circle of radius 200 mm: the tangent turns by length / 200 rad
+    rho, length, r = 200.0, 20.0, 3.0
+    rng = np.random.default_rng(1)
+    s = rng.uniform(0, length, 60000)
+    th = rng.uniform(0, 2 * np.pi, 60000)
+    phi = s / rho
+    c = np.stack([rho * (1 - np.cos(phi)), np.zeros_like(s), rho * np.sin(phi)], 1)
+    t = np.stack([np.sin(phi), np.zeros_like(s), np.cos(phi)], 1)
+    e1 = np.stack([np.cos(phi), np.zeros_like(s), -np.sin(phi)], 1)
+    e2 = np.array([0.0, 1.0, 0.0])
+    v = c + r * (np.cos(th)[:, None] * e1 + np.sin(th)[:, None] * e2)
+    axis = fit_centreline(v, np.ones(len(v), bool), np.array([0.0, 0.0, 1.0]), slab_mm=0.5, smooth_mm=1.0)
+    _, tan = axis.at(np.array([5.0, 15.0]))
+    expected = np.stack([np.sin([5 / rho, 15 / rho]), [0, 0], np.cos([5 / rho, 15 / rho])], 1)
+    ang = np.degrees(np.arccos(np.clip(np.einsum("ij,ij->i", tan, expected), -1, 1)))
+    assert np.all(ang < 0.1)
+    s_hat, radial = axis.project(v)
+    assert np.median(np.abs(np.linalg.norm(radial, axis=1) - r)) < 0.01
+    assert np.median(np.abs(s_hat - s)) < 0.02
+
+
+def test_boundary_from_height_lies_across_the_local_axis():
+    axis, t = tilted_axis()
+    b = Boundary.from_height(6.0, axis, id=9)
+    assert b.origin == "review" and np.allclose(b.normal, t) and np.allclose(b.center_mm, 6.0 * t)
+    assert plane_height(b.center_mm, b.normal, axis) == pytest.approx(6.0)
+    with pytest.raises(ReviewError):
+        Boundary.from_height("high", axis, id=1)
+    with pytest.raises(ReviewError):
+        Boundary(id=1, height_mm=1.0, center_mm=[0, 0, 0], normal=[0, 0, 0])
+
+
+def test_assign_bands_matches_heights():
+    seg, spec, s = make_segmentation()
+    h = seg.heights_mm()
+    expected = np.searchsorted(h, s, side="right") - 1
+    expected[(expected < 0) | (expected >= len(h) - 1)] = -1
+    assert np.array_equal(seg.vertex_band, expected)
+
+
+def test_assign_bands_uses_tilted_planes():
+    # two planes tilted against the axis: a point's band follows the planes, not its height
+    axis, t = Centreline(np.array([0.0, 10.0]), np.array([[0, 0, 0.0], [0, 0, 10.0]]),
+                         np.array([[0, 0, 1.0], [0, 0, 1.0]])), None
+    n = np.array([np.sin(0.3), 0.0, np.cos(0.3)])
+    bs = [Boundary(0, 2.0, [0, 0, 2.0], n), Boundary(1, 4.0, [0, 0, 4.0], n), Boundary(2, 6.0, [0, 0, 6.0], n)]
+    pts = np.array([[3.0, 0, 3.2], [-3.0, 0, 2.8], [0, 0, 3.2]])
+    # construction: the plane through (0, 0, h) with normal n sits at z = h - x tan(0.3) (tan 0.3 = 0.309),
+    # so at x = 3 the second plane is at z = 3.07 (below the first point: band 1), and at x = -3 the
+    # first plane is at z = 2.93 (above the second point: below the banded stretch, -1)
+    band = assign_bands(pts, bs, axis)
+    assert band.tolist() == [1, -1, 0]
+
+
+def test_save_load_round_trip(tmp_path):
+    seg, spec, _ = make_segmentation()
+    folder = tmp_path / "out folder"
+    seg.save(folder)
+    doc = json.loads((folder / "segmentation.json").read_text())
+    assert doc["schema"] == SEGMENTATION_SCHEMA and doc["n_bands"] == 3
+    back = Segmentation.load(folder)
+    assert np.allclose(back.heights_mm(), seg.heights_mm())
+    assert np.array_equal(back.vertex_band, seg.vertex_band)
+    assert back.class_names == seg.class_names and back.warnings == seg.warnings
+    assert back.resolution["flagged"] == [[4.0, 7.0, "test stretch"]]
+    assert np.allclose(back.axis.points_mm, seg.axis.points_mm)
+    assert [b.origin for b in back.boundaries] == ["auto"] * 4
+
+
+@pytest.mark.parametrize("damage", ["schema", "json", "labels", "missing", "count"])
+def test_load_malformed_is_one_line_input_error(tmp_path, damage):
+    seg, spec, _ = make_segmentation()
+    seg.save(tmp_path)
+    j, npz = tmp_path / "segmentation.json", tmp_path / "segmentation_labels.npz"
+    if damage == "schema":
+        doc = json.loads(j.read_text())
+        doc["schema"] = "other/1"
+        j.write_text(json.dumps(doc))
+    elif damage == "json":
+        j.write_text("{not json")
+    elif damage == "labels":
+        npz.write_bytes(b"garbage")
+    elif damage == "missing":
+        npz.unlink()
+    elif damage == "count":
+        doc = json.loads(j.read_text())
+        doc["n_vertices"] = 5
+        j.write_text(json.dumps(doc))
+    with pytest.raises(InputError) as exc:
+        Segmentation.load(tmp_path)
+    assert "\n" not in str(exc.value)
+
+
+def test_with_boundaries_reassigns_bands_and_keeps_the_original():
+    seg, spec, s = make_segmentation()
+    before = seg.vertex_band.copy()
+    added = Boundary.from_height(5.5, seg.axis, id=100)
+    new = seg.with_boundaries([*seg.boundaries[:3], added], spec)  # drop the top one, add one
+    assert np.allclose(new.heights_mm(), [2.0, 4.0, 5.5, 7.0])
+    assert np.array_equal(seg.vertex_band, before)  # the original is untouched
+    assert np.all(new.vertex_band[(s > 4.0) & (s < 5.5)] == 1)
+    assert np.all(new.vertex_band[(s > 5.5) & (s < 7.0)] == 2)
+    assert np.all(new.vertex_band[s > 7.0] == -1)
+    with pytest.raises(ReviewError):
+        seg.with_boundaries([seg.boundaries[0], seg.boundaries[0]], spec)
+    with pytest.raises(InputError):
+        seg.with_boundaries(seg.boundaries, SimpleNamespace(vertices_mm=np.zeros((3, 3))))
+    # dicts (as a review file holds them) are accepted too
+    again = seg.with_boundaries([b.to_dict() for b in seg.boundaries], spec)
+    assert np.array_equal(again.vertex_band, seg.vertex_band)
+
+
+def ring(h, cov=1.0, rms=0.01, prom=0.5):
+    return {"height": h, "coverage": cov, "rms_mm": rms, "prominence": prom, "flags": []}
+
+
+def test_repair_rules():
+    log = []
+    rings = [ring(0.0), ring(1.0), ring(1.2, prom=0.2), ring(2.0), ring(3.0, rms=0.9), ring(3.05, cov=0.1),
+             ring(4.0), ring(7.0), ring(8.0), ring(9.0)]
+
+    def trace_weak(lo, hi):
+        # one weak groove hides in the 4..7 gap at 5.5; nothing else
+        return ring(5.5, prom=0.1) if lo < 5.5 < hi else None
+
+    out, gaps = rp.repair(rings, 1.0, trace_weak, log)
+    h = [r["height"] for r in out]
+    # R1: 1.0 and 1.2 are doubled (0.2 < 0.4 x 1.0): the stronger (1.0) is kept
+    assert 1.0 in h and 1.2 not in h
+    # R2 drops the poor fit at 3.0, R3 the short arc at 3.05
+    assert 3.0 not in h and 3.05 not in h
+    # R4 fills 4..7 with the weak ring at 5.5, and flags the 2..4 gap? (2 mm = 2 x spacing > 1.75)
+    assert 5.5 in h and any("gap filled" in r["flags"] for r in out)
+    assert [2.0, 4.0, "possible missed boundary"] in gaps
+    assert all(0.0 <= r["confidence"] <= 1.0 for r in out)
+    gap_filled = next(r for r in out if r["height"] == 5.5)
+    assert gap_filled["confidence"] < min(r["confidence"] for r in out if r["height"] != 5.5)
+    assert any(line.startswith("R1") for line in log) and any(line.startswith("R2") for line in log)
+    assert any(line.startswith("R3") for line in log) and any(line.startswith("R4") for line in log)
+
+
+def test_estimator_convention_and_parameter_errors():
+    est = BandSegmenter(n_classes=3, max_classes=4)
+    assert est.get_params()["n_classes"] == 3
+    assert est.set_params(max_classes=5) is est and est.max_classes == 5
+    with pytest.raises(ParameterError):
+        est.set_params(bogus=1)
+    spec = SimpleNamespace(vertices_mm=np.zeros((10, 3)), faces=np.zeros((2, 3), int))
+    feats = SimpleNamespace(mean=np.zeros((10, 3)))
+    for bad in (dict(n_classes="many"), dict(max_classes=0), dict(subsample=10), dict(covariance_type="x")):
+        with pytest.raises(ParameterError):
+            BandSegmenter(**bad).fit(spec, feats)
+    with pytest.raises(InputError):
+        BandSegmenter().fit(spec, SimpleNamespace(mean=np.zeros((5, 3))))
