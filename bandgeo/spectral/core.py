@@ -143,6 +143,8 @@ def test_periodicity(series, *, min_period_bands=None, max_period_bands=None, n_
     if "sway" in methods:
         sb = _method_block(est_s and est_s["spectrum"], p_s, SWAY_METHOD + f" ({sway_name})", sig_s)
         sb["assumption"] = SWAY_ASSUMPTION
+        if sway is None:
+            sb["note"] = "no usable tilt series; not tested"
         blocks["sway"] = sb
 
     dpy = _days_per_year(blocks, est_t, est_s, p_t, p_s, n_tests, searched, thick, warnings)
