@@ -175,6 +175,11 @@ def build_series(band_table, segmentation=None, specimen=None) -> BandSeries:
             h[miss] = alt[miss]
             warnings.append(f"{int(miss.sum())} band(s) had no thickness on the axis; their median "
                             f"thickness over the band was used")
+    still = ~np.isfinite(h) | (h <= 0)
+    if still.any() and (~still).sum() >= MIN_BANDS:
+        h[still] = float(np.median(h[~still]))
+        warnings.append(f"{int(still.sum())} band(s) had no positive thickness (e.g. crossing boundaries); "
+                        f"the median thickness was used for them - check them in review")
     series = series_from_thickness(h, getattr(band_table, "inclination_deg", None),
                                    getattr(band_table, "azimuth_deg", None), source="band table",
                                    hiatus_flags=_hiatus_from_flags(getattr(band_table, "flags", None), h.size))
@@ -294,6 +299,9 @@ def read_series_csv(path) -> BandSeries:
     series = series_from_thickness(h, extra.get("inclination_deg"), extra.get("azimuth_deg"),
                                    source=f"csv:{p.name}")
     if "sway_deg" in extra:
-        series.sway_deg = extra["sway_deg"]
+        sw = extra["sway_deg"]
+        if not np.all(np.isfinite(sw)):
+            raise InputError(f"{p.name}: column 'sway_deg' has missing values; fill them or drop the column")
+        series.sway_deg = sw
     series.warnings = warnings + series.warnings
     return series
