@@ -119,7 +119,10 @@ class _Edges:
 
 def _edge_runs(f: np.ndarray, n: int) -> _Edges:
     e0 = f.ravel()
-    e1 = np.roll(f, -1, axis=1).ravel()
+    e1 = np.empty_like(f)
+    e1[:, :2] = f[:, 1:]
+    e1[:, 2] = f[:, 0]
+    e1 = e1.ravel()
     key = np.minimum(e0, e1)
     key *= n
     key += np.maximum(e0, e1)
@@ -134,8 +137,33 @@ def _edge_runs(f: np.ndarray, n: int) -> _Edges:
 
 
 def _edge_ends(f: np.ndarray, pos: np.ndarray):
-    face, corner = np.divmod(pos, 3)
-    return f[face, corner], f[face, (corner + 1) % 3]
+    flat = f.ravel()
+    corner = pos % 3
+    return flat[pos], flat[pos + np.where(corner == 2, -2, 1)]
+
+
+def _face_area_volume(vertices: np.ndarray, f: np.ndarray):
+    """Twice each face's area, and its signed volume term (c - c0) . n_area (x 2) about the area centroid."""
+    corners = [np.ascontiguousarray(f[:, j]) for j in range(3)]
+    cols = []
+    for k in range(3):  # contiguous 1-D gathers: several times faster than strided or row gathers
+        vk = np.ascontiguousarray(vertices[:, k])
+        cols.append(tuple(vk[c] for c in corners))
+    del corners
+    (x0, x1, x2), (y0, y1, y2), (z0, z1, z2) = cols
+    ax, ay, az = x1 - x0, y1 - y0, z1 - z0
+    bx, by, bz = x2 - x0, y2 - y0, z2 - z0
+    nx = ay * bz - az * by
+    ny = az * bx - ax * bz
+    nz = ax * by - ay * bx
+    area2 = np.sqrt(nx * nx + ny * ny + nz * nz)
+    cx, cy, cz = (x0 + x1 + x2) / 3.0, (y0 + y1 + y2) / 3.0, (z0 + z1 + z2) / 3.0
+    w = area2.sum()
+    if w > 0:
+        cx -= (cx * area2).sum() / w
+        cy -= (cy * area2).sum() / w
+        cz -= (cz * area2).sum() / w
+    return area2, cx * nx + cy * ny + cz * nz
 
 
 def _run_members(edges: _Edges, runs: np.ndarray):
@@ -167,7 +195,10 @@ def clean_mesh(vertices: np.ndarray, faces: np.ndarray, progress=None) -> CleanR
     stats: dict = {}
     n = len(vertices)
     report(progress, "cleaning: duplicates", 0, 6)
-    finite = np.isfinite(vertices).all(axis=1)
+    if np.isfinite(vertices).all():  # whole-array reduction: fast; rows only when something is wrong
+        finite = np.ones(n, dtype=bool)
+    else:
+        finite = np.isfinite(vertices).all(axis=1)
     n_bad = int(n - np.count_nonzero(finite))
     if n_bad:
         used_bad = ~finite[faces].all(axis=1)
@@ -191,22 +222,13 @@ def clean_mesh(vertices: np.ndarray, faces: np.ndarray, progress=None) -> CleanR
     # 2. degenerate faces: repeated index or zero area
     report(progress, "cleaning: degenerate faces", 1, 6)
     repeated = (f[:, 0] == f[:, 1]) | (f[:, 1] == f[:, 2]) | (f[:, 0] == f[:, 2])
-    v0 = vertices[f[:, 0]]
-    d1 = vertices[f[:, 1]] - v0
-    d2 = vertices[f[:, 2]] - v0
-    cross = np.cross(d1, d2)
-    d1 += d2
-    d1 /= 3.0
-    d1 += v0  # d1 is now the face centroid
-    centroid_f = d1
-    del d2, v0
-    area2 = np.sqrt(np.einsum("ij,ij->i", cross, cross))
+    area2, vol = _face_area_volume(vertices, f)
     span = np.ptp(vertices[finite], axis=0) if n_bad else np.ptp(vertices, axis=0)
     degenerate = repeated | (area2 <= 1e-13 * float(np.dot(span, span)))
     counts["degenerate_faces_removed"] = int(np.count_nonzero(degenerate))
     if degenerate.any():
         keep = ~degenerate
-        f, cross, area2, centroid_f = f[keep], cross[keep], area2[keep], centroid_f[keep]
+        f, area2, vol = f[keep], area2[keep], vol[keep]
     if len(f) == 0:
         raise InputError("no usable faces are left after removing degenerate ones (all have zero area or repeat "
                          "a vertex); the mesh is broken, re-export the scan")
@@ -216,7 +238,7 @@ def clean_mesh(vertices: np.ndarray, faces: np.ndarray, progress=None) -> CleanR
     while True:
         m = len(f)
         edges = _edge_runs(f, n)
-        fsum = f.sum(axis=1)
+        fsum = f[:, 0] + f[:, 1] + f[:, 2]
         multi = np.flatnonzero(edges.runlen == 2)
         fh, fm = edges.order[edges.starts[multi]] // 3, edges.order[edges.starts[multi] + 1] // 3
         nm = np.flatnonzero(edges.runlen > 2)
@@ -232,7 +254,7 @@ def clean_mesh(vertices: np.ndarray, faces: np.ndarray, progress=None) -> CleanR
         dup[np.maximum(fh[same], fm[same])] = True
         counts["duplicate_faces_removed"] += int(np.count_nonzero(dup))
         keep = ~dup
-        f, cross, area2, centroid_f = f[keep], cross[keep], area2[keep], centroid_f[keep]
+        f, area2, vol = f[keep], area2[keep], vol[keep]
     del fsum, fh, fm, same
     referenced = np.zeros(n, dtype=bool)
     referenced[f.ravel()] = True
@@ -241,10 +263,9 @@ def clean_mesh(vertices: np.ndarray, faces: np.ndarray, progress=None) -> CleanR
     pair_pos = starts[runlen == 2]
     ea, eb = order[pair_pos], order[pair_pos + 1]
     fa, fb = ea // 3, eb // 3
-    a0, a1 = _edge_ends(f, ea)
-    b0, _ = _edge_ends(f, eb)
-    same_dir = a0 == b0  # the shared edge is walked the same way by both faces: their windings disagree
-    del a0, a1, b0, ea, eb, pair_pos
+    flat = f.ravel()  # flat[pos] is the first vertex of directed edge ``pos``
+    same_dir = flat[ea] == flat[eb]  # the shared edge is walked the same way: the windings disagree
+    del ea, eb, pair_pos
     nm_runs = np.flatnonzero(runlen > 2)
     stats["non_manifold_edges"] = int(len(nm_runs))
     # 4. pieces (faces joined through edges)
@@ -286,11 +307,8 @@ def clean_mesh(vertices: np.ndarray, faces: np.ndarray, progress=None) -> CleanR
         flip = None
         stats["non_orientable_faces"] = 0
     del fa, fb, same_dir, pa, pb, pd
-    w = area * keep_face if n_pieces > 1 else area
-    center = (centroid_f * w[:, None]).sum(axis=0) / w.sum()
-    centroid_f -= center
-    vol = np.einsum("ij,ij->i", centroid_f, cross)
-    del centroid_f, cross
+    # vol: each face's share of (enclosed volume x 6) about the area centroid of the whole mesh; the sum
+    # over a closed patch does not depend on that reference point
     if flip is not None:
         vol[flip] *= -1.0
     if n_pieces > 1:
@@ -308,9 +326,13 @@ def clean_mesh(vertices: np.ndarray, faces: np.ndarray, progress=None) -> CleanR
     used = np.zeros(n, dtype=bool)
     used[f_keep.ravel()] = True
     counts["vertices_in_removed_pieces"] = int(np.count_nonzero(referenced & ~used))
-    new_index = np.cumsum(used) - 1
-    scan_index = np.flatnonzero(used).astype(np.int64)
-    faces_out = new_index[f_keep]
+    if used.all():
+        new_index = scan_index = np.arange(n, dtype=np.int64)
+        faces_out = f_keep
+    else:
+        new_index = np.cumsum(used) - 1
+        scan_index = np.flatnonzero(used).astype(np.int64)
+        faces_out = new_index[f_keep]
     # boundary loops of the kept piece (holes)
     bpos = order[starts[runlen == 1]]
     bpos = bpos[keep_face[bpos // 3]]
@@ -329,5 +351,5 @@ def clean_mesh(vertices: np.ndarray, faces: np.ndarray, progress=None) -> CleanR
     u0, u1 = _edge_ends(f, uniq)
     stats["median_edge"] = float(np.median(np.linalg.norm(vertices[u0] - vertices[u1], axis=1)))
     report(progress, "cleaning: done", 6, 6)
-    return CleanResult(vertices=vertices[scan_index], faces=faces_out, scan_index=scan_index, counts=counts,
+    return CleanResult(vertices=vertices if used.all() else vertices[scan_index], faces=faces_out, scan_index=scan_index, counts=counts,
                        stats=stats, boundary_edges=bedges)

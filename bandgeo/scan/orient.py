@@ -10,6 +10,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from ..constants import DEFAULT_SEED
 from ..errors import ParameterError
 
 
@@ -116,7 +117,7 @@ def _weighted_axis(points, weights):
     return mean, evals[::-1], evecs[:, ::-1]
 
 
-def estimate_up(vertices: np.ndarray, faces: np.ndarray, boundary_edges=None, max_faces: int = 400_000) -> UpEstimate:
+def estimate_up(vertices: np.ndarray, faces: np.ndarray, boundary_edges=None, max_faces: int = 150_000) -> UpEstimate:
     """Estimate the growth direction of a column from its shape.
 
     The long axis comes from the area-weighted principal axes of the surface, refined by a line fit
@@ -130,14 +131,17 @@ def estimate_up(vertices: np.ndarray, faces: np.ndarray, boundary_edges=None, ma
     faces : (m, 3) int64, outward winding
     boundary_edges : (b, 2) int64 or None
     max_faces : int
-        Faces sampled (evenly) for the estimate, for speed.
+        Faces sampled (seeded, at random) for the estimate, for speed.
 
     Returns
     -------
     UpEstimate
     """
-    step = max(1, len(faces) // max_faces)
-    centroid, area, normal = _face_geometry(vertices, faces[::step])
+    step = max(1.0, len(faces) / max_faces)
+    if step > 1.0:  # a seeded random sample (a regular stride could alias with rings of faces)
+        pick = np.random.default_rng(DEFAULT_SEED).integers(0, len(faces), int(len(faces) / step))
+        faces = faces[np.sort(pick)]
+    centroid, area, normal = _face_geometry(vertices, faces)
     ok = area > 0
     centroid, area, normal = centroid[ok], area[ok], normal[ok]
     mean, evals, evecs = _weighted_axis(centroid, area)
