@@ -164,7 +164,7 @@ def analyze(scan_path, out_dir, *, units=None, up=None, north=None, strike_dip=N
         "scan": str(scan_path), "units": units, "up": None if up is None else [float(v) for v in up],
         "north": None if north is None else [float(v) for v in north],
         "strike_dip": None if strike_dip is None else [float(v) for v in strike_dip],
-        "sheet": getattr(sheet, "source_path", None) if sheet is not None else None,
+        "sheet": getattr(sheet, "path", None) if sheet is not None else None,
         "scale": scale, "seed": int(seed), "keep_review": bool(keep_review),
         "min_period_bands": min_period_bands, "max_period_bands": max_period_bands, "n_sim": int(n_sim),
         "features": {"scales_mm": np.asarray(feats.scales_mm).tolist(),
@@ -270,7 +270,7 @@ def _astronomy_block(astro, per: dict) -> dict:
 
 def _result_dict(specimen, seg, table, per, astronomy, review_info, parameters, seconds, warnings) -> dict:
     sheet = specimen.sheet
-    sheet_dict = dataclasses.asdict(sheet) if dataclasses.is_dataclass(sheet) else (sheet or {})
+    sheet_dict = sheet.to_dict() if hasattr(sheet, "to_dict") else dict(sheet or {})
     thickness = np.asarray(table.thickness_axis_mm, dtype=float)
     finite = thickness[np.isfinite(thickness)]
     all_warnings = list(specimen.warnings) + list(seg.warnings) + list(per.get("warnings", [])) + warnings
@@ -352,6 +352,8 @@ def save_specimen(folder: Path, specimen, segmentation=None) -> Path:
     specimen's metadata as JSON, so report and review work without the original scan."""
     meta = {f.name: getattr(specimen, f.name) for f in dataclasses.fields(specimen)
             if f.name not in ("vertices_mm", "faces", "colors", "scan_vertex_index")}
+    if specimen.sheet is not None and hasattr(specimen.sheet, "to_dict"):
+        meta["sheet"] = specimen.sheet.to_dict()
     from .atomic import to_jsonable
 
     arrays = {
@@ -374,6 +376,7 @@ def save_specimen(folder: Path, specimen, segmentation=None) -> Path:
 def load_specimen(folder: Path):
     """Read ``specimen.npz`` back into a :class:`bandgeo.scan.Specimen` (vertices in float64 mm)."""
     from .scan import Specimen, SpecimenSheet
+    from .scan.types import ScaleReference
 
     path = Path(folder) / "specimen.npz"
     if not path.is_file():
@@ -392,6 +395,9 @@ def load_specimen(folder: Path):
         for key in ("up", "north"):
             if sheet.get(key) is not None:
                 sheet[key] = np.asarray(sheet[key], dtype=float)
+        if isinstance(sheet.get("scale"), dict):
+            (p1, p2), length = sheet["scale"]["points"], sheet["scale"]["length"]
+            sheet["scale"] = ScaleReference(np.asarray(p1, float), np.asarray(p2, float), float(length))
         kwargs["sheet"] = SpecimenSheet(**sheet)
     kwargs["scan_to_specimen"] = np.asarray(kwargs.get("scan_to_specimen"), dtype=float)
     kwargs["vertices_mm"] = arrays["vertices_mm"].astype(np.float64)
