@@ -69,12 +69,13 @@ def periodicity(ctx, series_csv: Path, out, min_period, max_period, n_sim, seed,
     The CSV has a thickness column (thickness_mm, thickness_um or thickness) and optionally
     inclination_deg and azimuth_deg. With --out, result.json and spectra.csv are written there.
     """
+    from ..series import read_series_csv
+
+    series = read_series_csv(series_csv)          # bad input fails here, before the heavy imports
     from .. import astro, progress
     from ..atomic import write_json
-    from ..series import read_series_csv
     from ..spectral import test_periodicity
 
-    series = read_series_csv(series_csv)
     with progress.bar("periodicity") as cb:
         res = test_periodicity(series, min_period_bands=min_period, max_period_bands=max_period,
                                n_sim=n_sim, seed=seed, progress=cb)

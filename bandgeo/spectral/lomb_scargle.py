@@ -86,7 +86,8 @@ def astropy_power(x: np.ndarray, frequency: np.ndarray) -> np.ndarray:
     frequency = np.asarray(frequency, dtype=float)
     method = "cython" if x.size * frequency.size <= 2_000_000 else "fast"
     ls = LombScargle(t, x, fit_mean=False, center_data=True, normalization="psd")
-    return np.asarray(ls.power(np.asarray(frequency, dtype=float), method=method), dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):   # astropy's fast method near f = 0
+        return np.asarray(ls.power(frequency, method=method), dtype=float)
 
 
 def parabolic_peak(power: np.ndarray, index: np.ndarray, n_fft: int) -> np.ndarray:
