@@ -9,10 +9,10 @@ from ..progress import report
 from . import cluster, repair, resolution
 from .axis import fit_centreline
 from .model import Boundary, Segmentation, assign_bands, plane_height
-from .rings import COVERAGE_BINS, fit_ring, groove_profile, profile_peaks
+from .rings import COVERAGE_BINS, SortedWall, fit_ring, groove_profile, periodic_contrast, profile_peaks
 
-#: Classes whose standardised mean curvature (groove scale) is at or below this join the groove set.
-GROOVE_KEY = -0.5
+#: Side-wall vertices used to fit the centreline on large scans.
+AXIS_SUBSAMPLE = 400_000
 
 #: Side-wall vertices: normal within 60 degrees of perpendicular to the axis.
 WALL_MAX_AXIAL_NORMAL = 0.5
@@ -141,17 +141,29 @@ class BandSegmenter:
         class_names = [names[c] for c in order]
         vertex_class = np.full(n, -1, dtype=np.int8)
         vertex_class[wall_idx] = rank[np.argmax(proba, axis=1)].astype(np.int8)
-        # the groove set: the most concave class and every class clearly concave relative to the wall
-        # (standardised mean curvature below GROOVE_KEY); the profile uses their summed probability
-        groove_set = [int(c) for c in order if key[c] <= GROOVE_KEY] or [int(order[0])]
-        if k == 1:
-            groove_set = []
+        # the groove set: the j most concave classes whose summed probability, binned along the rough
+        # axis, is most periodic at the band spacing (BIC tends to split the groove tail into several
+        # classes on non-Gaussian data; this picks the split back up without any threshold)
+        groove_set, contrast = [], {}
+        if k > 1:
+            s_rough = v[wall_idx] @ axis0
+            bin0 = min(samp / 2.0, spacing / 8.0)
+            for j in range(1, k):
+                pj = proba[:, order[:j]].sum(axis=1)
+                _, prof_j, _ = groove_profile(s_rough, pj, bin0, sigma_mm=max(samp / 2.0, spacing / 16.0))
+                contrast[j] = periodic_contrast(prof_j, bin0, spacing)
+            best = max(contrast, key=contrast.get)
+            groove_set = [int(c) for c in order[:best]]
         p_groove = proba[:, groove_set].sum(axis=1).astype(np.float64) if groove_set else np.zeros(len(wall_idx))
         del proba, Z
 
         # --- axis
         report(progress, "segment: growth axis", 1, 5)
-        axis = fit_centreline(v, wall, axis0, slab_mm=max(spacing, 2 * samp), smooth_mm=2.0 * spacing,
+        wall_axis = wall.copy()
+        if wall.sum() > AXIS_SUBSAMPLE:  # the circle fits need far fewer points than a large scan has
+            drop = rng.choice(wall_idx, size=int(wall.sum()) - AXIS_SUBSAMPLE, replace=False)
+            wall_axis[drop] = False
+        axis = fit_centreline(v, wall_axis, axis0, slab_mm=max(spacing, 2 * samp), smooth_mm=2.0 * spacing,
                               noise_mm=float(features.noise_mm))
         s_all, radial = axis.project(v)
         e1, e2 = axis.frame(s_all[wall_idx])
@@ -180,8 +192,10 @@ class BandSegmenter:
             centres, prof, counts = groove_profile(sw, p_groove, bin_mm, sigma_mm=max(samp / 2.0, spacing / 16.0))
             heights, prom, weak = profile_peaks(centres, prof, counts, spacing)
             loc = repair.local_spacing(heights, spacing)
+            sorted_wall = SortedWall(vw, sw, angle, weight, p_groove)
+            radius = float(np.median(np.linalg.norm(rw, axis=1)))
             for h0, pr, ls in zip(heights, prom, loc):
-                ring = fit_ring(vw, sw, angle, weight, p_groove, axis, h0, 0.4 * ls, bins)
+                ring = fit_ring(sorted_wall, axis, h0, 0.4 * ls, radius, bins)
                 if ring is not None:
                     ring.update(prominence=float(pr), seed_mm=float(h0), flags=[])
                     ring["height"] = plane_height(ring["center"], ring["normal"], axis, s0=h0)
@@ -193,7 +207,7 @@ class BandSegmenter:
                     return None
                 j = np.flatnonzero(inside)[np.argmax(weak["prominence"][inside])]
                 h0 = float(weak["heights_mm"][j])
-                r = fit_ring(vw, sw, angle, weight, p_groove, axis, h0, 0.4 * (hi - lo), bins)
+                r = fit_ring(sorted_wall, axis, h0, 0.4 * (hi - lo), radius, bins)
                 if r is None:
                     return None
                 r.update(prominence=float(weak["prominence"][j]), seed_mm=h0, flags=[])
@@ -225,7 +239,8 @@ class BandSegmenter:
 
         params = dict(self.get_params())
         params.update({"n_classes_chosen": int(k), "bic": bic,
-                       "groove_classes": [class_names[int(rank[c])] for c in groove_set], "band_spacing_mm": spacing,
+                       "groove_classes": [class_names[int(rank[c])] for c in groove_set],
+                       "groove_set_periodic_contrast": {int(j): float(c) for j, c in contrast.items()}, "band_spacing_mm": spacing,
                        "band_spacing_method": features.band_spacing_method,
                        "scales_mm": np.asarray(features.scales_mm).tolist(), "repair_log": log})
         report(progress, "segment: done", 5, 5)

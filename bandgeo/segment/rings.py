@@ -44,6 +44,19 @@ def groove_profile(s: np.ndarray, score: np.ndarray, bin_mm: float, sigma_mm: fl
     return s0 + (np.arange(nb) + 0.5) * bin_mm, prof, cc
 
 
+def periodic_contrast(profile: np.ndarray, bin_mm: float, spacing_mm: float) -> float:
+    """Share of the profile's variance at the band frequency (0.7-1.4 / spacing) and its 2nd harmonic."""
+    x = profile - profile.mean()
+    if len(x) < 8 or not np.any(x):
+        return 0.0
+    pw = np.abs(np.fft.rfft(x * np.hanning(len(x)))) ** 2
+    f = np.fft.rfftfreq(len(x), d=bin_mm)
+    f0 = 1.0 / spacing_mm
+    band = ((f >= 0.7 * f0) & (f <= 1.4 * f0)) | ((f >= 1.4 * f0) & (f <= 2.8 * f0))
+    tot = pw[1:].sum()
+    return float(pw[band].sum() / tot) if tot > 0 else 0.0
+
+
 def profile_peaks(centres: np.ndarray, profile: np.ndarray, counts: np.ndarray, spacing_mm: float,
                   min_prominence: float = 0.08, relative: float = 0.3):
     """Peaks of the groove profile at least ``0.35 * spacing`` apart.
@@ -78,26 +91,33 @@ def profile_peaks(centres: np.ndarray, profile: np.ndarray, counts: np.ndarray, 
     return h[strong], prom[strong], weak
 
 
-def fit_ring(v, s, radial_angle, weight, p_groove, axis, h0, halfwin_mm, bins=COVERAGE_BINS):
+class SortedWall:
+    """Side-wall vertices sorted by arc length, so that each ring reads a contiguous window."""
+
+    def __init__(self, v, s, angle, weight, p_groove):
+        order = np.argsort(s, kind="stable")
+        self.v, self.s, self.angle = v[order], s[order], angle[order]
+        self.weight, self.p = weight[order], p_groove[order]
+
+    def window(self, lo, hi) -> slice:
+        return slice(int(np.searchsorted(self.s, lo)), int(np.searchsorted(self.s, hi, side="right")))
+
+
+def fit_ring(wall: SortedWall, axis, h0, halfwin_mm, radius_mm, bins=COVERAGE_BINS):
     """Fit one ring near arc length ``h0``.
 
     Parameters
     ----------
-    v : (n, 3) float
-        Side-wall vertices, mm.
-    s : (n,) float
-        Their arc lengths along ``axis``.
-    radial_angle : (n,) float
-        Their angle around the axis, rad.
-    weight : (n,) float
-        Groove weight of each vertex (>= 0).
-    p_groove : (n,) float
-        Groove-class probability.
+    wall : SortedWall
+        Side-wall vertices (mm) with their arc lengths, angles around the axis (rad), groove weights
+        (>= 0) and groove-class probabilities.
     axis : Centreline
     h0 : float
         Seed height, mm.
     halfwin_mm : float
         Half-width of the window around the seed (a fraction of the local spacing).
+    radius_mm : float
+        Column radius: a ring tilted by up to MAX_NORMAL_ANGLE_DEG spans this times its tangent in s.
     bins : int
         Angular bins for the coverage (at most the number of vertices around a ring).
 
@@ -106,55 +126,52 @@ def fit_ring(v, s, radial_angle, weight, p_groove, axis, h0, halfwin_mm, bins=CO
     dict with ``center``, ``normal``, ``rms_mm``, ``coverage``, ``n``, ``normal_from`` or None when
     the window holds no groove weight.
     """
-    sel = np.flatnonzero(np.abs(s - h0) < halfwin_mm)
-    if len(sel) == 0:
+    sl = wall.window(h0 - halfwin_mm, h0 + halfwin_mm)
+    if sl.stop <= sl.start:
         return None
-    c_axis, t_axis = axis.at(h0)
-    normal = t_axis
-    center = None
-    normal_from = "axis"
+    _, t_axis = axis.at(h0)
+    normal, center, normal_from = t_axis, None, "axis"
     for it in range(2):
-        w = weight[sel]
-        if w.sum() <= 0:
+        v, w, ang, pg = wall.v[sl], wall.weight[sl], wall.angle[sl], wall.p[sl]
+        if it == 1:
+            keep = np.abs((v - center) @ normal) < halfwin_mm
+            v, w, ang, pg = v[keep], w[keep], ang[keep], pg[keep]
+        if w.sum() <= 0 or len(v) == 0:
             return None
-        p = v[sel]
-        c = (w[:, None] * p).sum(axis=0) / w.sum()
-        cover = _coverage(radial_angle[sel], p_groove[sel] * (w > 0), bins)
-        if cover >= 0.5 and len(sel) >= 12:
-            d = p - c
-            cov = (w[:, None, None] * (d[:, :, None] * d[:, None, :])).sum(axis=0) / w.sum()
-            _, vec = np.linalg.eigh(cov)
-            nrm = vec[:, 0] * np.sign(np.dot(vec[:, 0], t_axis) or 1.0)
-            if np.degrees(np.arccos(np.clip(np.dot(nrm, t_axis), -1, 1))) <= MAX_NORMAL_ANGLE_DEG:
-                normal, normal_from = nrm, "plane fit"
-            else:
-                normal, normal_from = t_axis, "axis (plane fit too oblique)"
-        else:
-            normal, normal_from = t_axis, "axis (ring too short for a plane fit)"
-        center = c
+        c = (w[:, None] * v).sum(axis=0) / w.sum()
+        cover = _coverage(ang, pg * (w > 0), bins)
         if it == 0:
+            if cover >= 0.5 and len(v) >= 12:
+                d = v - c
+                cov = (d * w[:, None]).T @ d / w.sum()
+                _, vec = np.linalg.eigh(cov)
+                nrm = vec[:, 0] * np.sign(np.dot(vec[:, 0], t_axis) or 1.0)
+                if np.degrees(np.arccos(np.clip(np.dot(nrm, t_axis), -1, 1))) <= MAX_NORMAL_ANGLE_DEG:
+                    normal, normal_from = nrm, "plane fit"
+                else:
+                    normal, normal_from = t_axis, "axis (plane fit too oblique)"
+            else:
+                normal, normal_from = t_axis, "axis (ring too short for a plane fit)"
+            center = c
             # re-select by distance to the fitted plane: follows rings tilted against the axis
-            dist = (v - c) @ normal
-            sel = np.flatnonzero(np.abs(dist) < halfwin_mm)
-            if len(sel) == 0:
-                return None
-    w = weight[sel]
-    d = (v[sel] - center) @ normal
+            tilt = np.sqrt(max(1.0 - float(np.dot(normal, t_axis)) ** 2, 0.0)) / max(float(np.dot(normal, t_axis)), 1e-6)
+            reach = halfwin_mm + radius_mm * tilt
+            sl = wall.window(h0 - reach, h0 + reach)
+    d = (v - center) @ normal
     rms = float(np.sqrt(np.sum(w * d * d) / w.sum()))
     # ring centre: circle fit in the plane (robust to holes), moved into the plane
     e1 = np.cross(normal, [1.0, 0.0, 0.0] if abs(normal[0]) < 0.9 else [0.0, 1.0, 0.0])
     e1 /= np.linalg.norm(e1)
     e2 = np.cross(normal, e1)
-    rel = v[sel] - center
+    rel = v - center
     strong = w > np.median(w)
     if strong.sum() >= 12:
         cx, cy, _ = circle_centres(np.zeros(int(strong.sum()), dtype=np.int64), rel[strong] @ e1,
                                    rel[strong] @ e2, 1)
         if np.isfinite(cx[0]):
             center = center + cx[0] * e1 + cy[0] * e2
-    return {"center": center, "normal": normal, "rms_mm": rms,
-            "coverage": _coverage(radial_angle[sel], p_groove[sel] * (w > 0), bins), "n": int(len(sel)),
-            "normal_from": normal_from}
+    return {"center": center, "normal": normal, "rms_mm": rms, "coverage": _coverage(ang, pg * (w > 0), bins),
+            "n": int(len(v)), "normal_from": normal_from}
 
 
 def _coverage(angle: np.ndarray, p: np.ndarray, bins: int = COVERAGE_BINS) -> float:

@@ -1,0 +1,131 @@
+"""Benchmark: curvature features, clustering and ring tracing on a ~2-million-face forward-model scan.
+
+Targets (issue 4), on this 2-core machine:
+- the whole stage (features + segmentation + measurement) in at most 30 s and 4 GB;
+- the multi-scale curvature features in no more time than one libigl ``principal_curvature`` call on
+  the same mesh, measured in the same run (printed as a ratio, target <= 1).
+Also prints the accuracy against the forward model's truth, so speed is never bought with accuracy.
+
+Usage: python benchmarks/bench_segment.py [--faces 2000000] [--repeat 1] [--no-igl]
+"""
+import argparse
+import statistics
+import sys
+import time
+import tracemalloc
+
+import numpy as np
+
+
+def make_specimen(faces: int):
+    """A default-density column (radius 8 mm, 0.25 mm laminae) with about ``faces`` faces."""
+    from bandgeo.scan import Scan, prepare
+    from bandgeo.synth import SynthParams, simulate
+
+    probe = simulate(SynthParams(years=0.05, seed=1, pose="random"))
+    mesh = probe.truth["mesh"]
+    # wall faces = 2 x ring vertices x rings; one ring every ring spacing along the column
+    length = faces / (2.0 * mesh["ring_vertices"]) * mesh["ring_spacing_mm"]
+    p0 = probe.truth["params"]
+    years = max(0.05, length / (p0["mean_thickness_mm"] * p0["days_per_year"] * p0["laminae_per_day"]))
+    params = SynthParams(years=years, seed=1, pose="random", holes=2)
+    sp = simulate(params)
+    scan = Scan(vertices=sp.vertices, faces=sp.faces, colors=sp.colors, path="bench.ply", sha256="0",
+                file_format="ply-binary-le")
+    fr = sp.truth["frames"]
+    spec = prepare(scan, units=params.units, up=np.asarray(fr["paleo_up_file"]), north=np.asarray(fr["north_file"]))
+    return sp, spec
+
+
+def timed(fn, *args, **kwargs):
+    """Run ``fn``; return (result, seconds, peak traced memory in bytes during the call)."""
+    tracemalloc.start()
+    tracemalloc.reset_peak()
+    t0 = time.perf_counter()
+    out = fn(*args, **kwargs)
+    dt = time.perf_counter() - t0
+    _, peak = tracemalloc.get_traced_memory()
+    tracemalloc.stop()
+    return out, dt, peak
+
+
+def main(argv=None):
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--faces", type=int, default=2_000_000)
+    ap.add_argument("--repeat", type=int, default=1)
+    ap.add_argument("--no-igl", action="store_true", help="skip the libigl reference call")
+    args = ap.parse_args(argv)
+
+    import psutil
+    from threadpoolctl import threadpool_info
+
+    from bandgeo.features import compute_features
+    from bandgeo.measure import measure_bands
+    from bandgeo.segment import BandSegmenter
+
+    sys.path.insert(0, str(__import__("pathlib").Path(__file__).resolve().parent.parent / "tests"))
+    from test_segment_accuracy import score  # the same scoring as the accuracy tests
+
+    threads = sorted({i.get("num_threads") for i in threadpool_info()})
+    t0 = time.perf_counter()
+    sp, spec = make_specimen(args.faces)
+    print(f"scan: {len(spec.faces):,} faces, {len(spec.vertices_mm):,} vertices, column "
+          f"{sp.truth['mesh']['column_length_mm']:.1f} mm, {sp.truth['laminae']['n_recorded']} laminae; "
+          f"made in {time.perf_counter() - t0:.1f} s")
+    print(f"threads: BLAS/OpenMP {threads} (threadpoolctl)")
+
+    rows = {"features": [], "clustering": [], "axis": [], "tracing": [], "segment total": [], "measure": [],
+            "stage total": []}
+    peaks = {"features": 0, "segment": 0, "measure": 0}
+    igl_times = []
+    for rep in range(args.repeat):
+        feat, t_feat, p_feat = timed(compute_features, spec)
+        marks = []
+
+        def progress(desc, done, total):
+            marks.append((desc, time.perf_counter()))
+
+        start = time.perf_counter()
+        seg_est, t_seg, p_seg = timed(BandSegmenter(random_state=1).fit, spec, feat, progress=progress)
+        seg = seg_est.segmentation_
+        times = {d: t for d, t in marks}
+        t_clu = times["segment: growth axis"] - start
+        t_axis = times["segment: tracing rings"] - times["segment: growth axis"]
+        t_trace = times["segment: done"] - times["segment: tracing rings"]
+        table, t_meas, p_meas = timed(measure_bands, spec, seg)
+        for k, v in (("features", t_feat), ("clustering", t_clu), ("axis", t_axis), ("tracing", t_trace),
+                     ("segment total", t_seg), ("measure", t_meas), ("stage total", t_feat + t_seg + t_meas)):
+            rows[k].append(v)
+        peaks["features"] = max(peaks["features"], p_feat)
+        peaks["segment"] = max(peaks["segment"], p_seg)
+        peaks["measure"] = max(peaks["measure"], p_meas)
+        if not args.no_igl:
+            import igl
+
+            v = np.ascontiguousarray(spec.vertices_mm)
+            f = np.ascontiguousarray(spec.faces)
+            t1 = time.perf_counter()
+            igl.principal_curvature(v, f, 2)
+            igl_times.append(time.perf_counter() - t1)
+
+    for k, vals in rows.items():
+        print(f"  {k:14s} median {statistics.median(vals):6.2f} s over {len(vals)} run(s)")
+    total = statistics.median(rows["stage total"])
+    print(f"whole stage: {total:.1f} s (target <= 30 s)")
+    print(f"peak traced memory: features {peaks['features'] / 2**30:.2f} GB, segment {peaks['segment'] / 2**30:.2f} GB, "
+          f"measure {peaks['measure'] / 2**30:.2f} GB (target <= 4 GB); process peak RSS "
+          f"{psutil.Process().memory_info().rss / 2**30:.2f} GB now")
+    if igl_times:
+        ratio = statistics.median(rows["features"]) / statistics.median(igl_times)
+        print(f"libigl principal_curvature (radius 2) on the same mesh: median {statistics.median(igl_times):.2f} s; "
+              f"features / libigl = {ratio:.2f} (target <= 1)")
+    r = score(sp.truth, seg, table)
+    print(f"accuracy: recall {100 * r['recall']:.1f}%, precision {100 * r['precision']:.1f}%, median thickness "
+          f"error {100 * r['thickness_error']:.2f}% of mean, growth direction error {r['growth_deg']:.3f} deg "
+          f"({r['n_detected']} boundaries found, {r['n_true']} true incl. 2 end rims)")
+    print(f"classes: {seg.class_names} (BIC chose {seg.params['n_classes_chosen']}); warnings: {seg.warnings}")
+    return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
