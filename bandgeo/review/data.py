@@ -188,12 +188,12 @@ class FolderData:
         spacing = (getattr(self.segmentation, "resolution", None) or {}).get("band_spacing_mm")
         if not (isinstance(spacing, (int, float)) and np.isfinite(spacing) and spacing > 0):
             spacing = float(np.median(np.diff(bs))) if bs.size > 2 else None
-        cols = 180
-        # as fine as the vertices can fill (about 1.5 a cell), and no finer than 12 rows a band
-        rows = len(self.s) / (1.5 * cols)
-        if spacing:
-            rows = min(rows, (hi - lo) / (spacing / 12.0))
-        rows = int(np.clip(rows, 400, 4000))
+        # About eight rows a band where the vertices allow it (about 1.5 vertices a cell): height
+        # resolution matters more than azimuth, so the columns give way first.
+        n = len(self.s)
+        want = (hi - lo) / (spacing / 8.0) if spacing else n / (1.5 * 180)
+        cols = int(np.clip(n / (1.5 * want), 36, 360))
+        rows = int(np.clip(min(want, n / (1.5 * cols)), 400, 4000))
         spacing = spacing or (hi - lo) / 100.0
         s_corr = self.s - self.offset_at(self.s, self.az)
         ri = np.floor((s_corr - lo) / (hi - lo) * rows).astype(np.int64)
@@ -288,12 +288,13 @@ def decimate(vertices, faces, colors, target_faces):
     tri = np.asarray(vertices, float)[np.asarray(faces)]
     area = 0.5 * np.linalg.norm(np.cross(tri[:, 1] - tri[:, 0], tri[:, 2] - tri[:, 0]), axis=1).sum()
     voxel = np.sqrt(2.0 * area / target_faces)
-    for _ in range(4):
+    for _ in range(5):
         small = mesh.simplify_vertex_clustering(voxel_size=voxel,
                                                 contraction=o3d.geometry.SimplificationContraction.Average)
-        if len(small.triangles) <= 1.25 * target_faces:
+        ratio = max(len(small.triangles), 1) / target_faces
+        if 0.6 <= ratio <= 1.25:
             break
-        voxel *= np.sqrt(len(small.triangles) / target_faces)
+        voxel *= np.sqrt(ratio)  # faces go as 1 / voxel^2
     v = np.asarray(small.vertices, np.float32)
     f = np.asarray(small.triangles, np.int32)
     col = (np.clip(np.asarray(small.vertex_colors) * 255, 0, 255).astype(np.uint8)

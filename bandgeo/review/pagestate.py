@@ -64,6 +64,22 @@ def band_rows(active, marks) -> list:
     return rows
 
 
+def _flagged(segmentation, limit=2000) -> list:
+    """The segmenter's own flagged stretches ``[s0_mm, s1_mm, reason]``, merged where they overlap
+    with the same reason, base to top (a work list for the reviewer)."""
+    raw = (getattr(segmentation, "resolution", None) or {}).get("flagged") or []
+    rows = []
+    for item in raw:
+        try:
+            s0, s1, reason = float(item[0]), float(item[1]), str(item[2])
+        except (TypeError, ValueError, IndexError):
+            continue
+        if math.isfinite(s0) and math.isfinite(s1) and s1 >= s0:
+            rows.append([s0, s1, reason])
+    rows.sort()
+    return rows[:limit]
+
+
 def page_state(app, status: dict, summary) -> dict:
     """Everything the page needs except the heavy arrays (mesh, surface)."""
     session = app.session
@@ -83,6 +99,7 @@ def page_state(app, status: dict, summary) -> dict:
         "span_mm": list(app.data.span),
         "boundaries": boundaries,
         "marks": marks,
+        "flagged": _flagged(app.data.segmentation),
         "notes": state.notes,
         "bands": band_rows(active, marks),
         "n_bands": max(len(active) - 1, 0),

@@ -135,13 +135,22 @@
       const y0 = sy(sel.stretch[1], h), y1 = sy(sel.stretch[0], h);
       ctx.fillStyle = COL.stretch; ctx.fillRect(M.left, y0, w, y1 - y0);
     }
+    // segmenter's flagged stretches: a hatched strip at the left edge of the image
+    for (const f of S.flagged || []) {
+      const y0 = sy(f[1], h), y1 = sy(f[0], h); if (y1 < 0 || y0 > h) continue;
+      ctx.fillStyle = "#6b3fa0"; ctx.fillRect(M.left, y0, 6, Math.max(1.5, y1 - y0));
+    }
+    const inView = S.boundaries.filter((b) => b.height_mm >= view.v0 && b.height_mm <= view.v1).length;
+    const dense = inView > 0 && (h - M.top - M.bottom) / inView < 6;   // lines closer than 6 px
+    ctx.globalAlpha = dense ? 0.45 : 1;
     for (const b of S.boundaries) {
       const yb = sy(b.height_mm, h); if (yb < -40 || yb > h + 40) continue;
       const selected = b.id === sel.id;
+      ctx.globalAlpha = selected ? 1 : (dense ? 0.45 : 1);
       ctx.setLineDash(DASH[b.status] || []);
       for (const pass of selected ? [0, 1] : [1]) {
         ctx.strokeStyle = pass === 0 ? "#fff" : (selected ? "#000" : COL[b.status]);
-        ctx.lineWidth = pass === 0 ? 6 : (selected ? 2.5 : (b.status === "accepted" ? 2.2 : 1.6));
+        ctx.lineWidth = pass === 0 ? 6 : (selected ? 2.5 : dense ? 1 : (b.status === "accepted" ? 2.2 : 1.6));
         ctx.beginPath();
         for (let az = 0; az <= 360; az += 5) {
           const x = sx(az, w), y = sy(b.height_mm + traceAt(b, az), h);
@@ -150,7 +159,7 @@
         ctx.stroke();
       }
     }
-    ctx.setLineDash([]);
+    ctx.setLineDash([]); ctx.globalAlpha = 1;
     if (sel.cursor !== null) {
       const y = sy(sel.cursor, h); ctx.strokeStyle = "#000"; ctx.setLineDash([3, 3]); ctx.lineWidth = 1;
       ctx.beginPath(); ctx.moveTo(M.left, y); ctx.lineTo(w, y); ctx.stroke(); ctx.setLineDash([]);
@@ -448,6 +457,21 @@
     let c = (view.v0 + view.v1) / 2; c = Math.min(hi, Math.max(lo, c));
     view.v0 = c - span / 2; view.v1 = c + span / 2;
   }
+  function jumpFlag(dir) {
+    const list = S.flagged || []; if (!list.length) return toast("The segmenter flagged no stretch.");
+    const here = (view.v0 + view.v1) / 2;
+    let pick = null;
+    for (const f of list) {
+      const c = (f[0] + f[1]) / 2;
+      if (dir > 0 && c > here + 1e-6 && (!pick || c < (pick[0] + pick[1]) / 2)) pick = f;
+      if (dir < 0 && c < here - 1e-6 && (!pick || c > (pick[0] + pick[1]) / 2)) pick = f;
+    }
+    if (!pick) return toast(dir > 0 ? "No flagged stretch above." : "No flagged stretch below.");
+    const span = Math.max(view.v1 - view.v0, 1e-3), c = (pick[0] + pick[1]) / 2;
+    view.v0 = c - span / 2; view.v1 = c + span / 2; clampView();
+    sel.stretch = [pick[0], pick[1]]; sel.id = null; redraw();
+    toast(`Flagged ${fmt(pick[0], 2)}–${fmt(pick[1], 2)} mm: ${pick[2]}`);
+  }
   function fit() {
     const lo = S.span_mm[0], hi = S.span_mm[1], pad = (hi - lo) * 0.01;
     view.v0 = lo - pad; view.v1 = hi + pad; redraw();
@@ -540,6 +564,7 @@
       else if (key === "h") act("hiatus");
       else if (key === "u") act("uncertain");
       else if (key === "f") fit();
+      else if (ev.key === "]" || ev.key === "[") jumpFlag(ev.key === "]" ? 1 : -1);
       else if (key === "n") { document.querySelector('[data-tab="marks-tab"]').click(); $("note-text").focus(); }
       else if (ev.key === "Escape") { sel.id = null; sel.stretch = null; redraw(); }
       else if (ev.key === "?") $("help").hidden = !$("help").hidden;
@@ -573,7 +598,12 @@
       surf = { ...sf, images: {} };
       const layer = $("layer");
       for (const name of Object.keys(surf.layers)) { const o = document.createElement("option"); o.value = o.textContent = name; layer.append(o); }
-      S = st; fit(); setState(st);
+      S = st; fit();
+      const hs = st.boundaries.map((b) => b.height_mm).sort((a, b) => a - b);
+      if (hs.length > 40) {                   // start on the lowest thirty bands; F shows everything
+        const pad = (hs[30] - hs[0]) * 0.04; view.v0 = hs[0] - pad; view.v1 = hs[30] + pad;
+      }
+      setState(st);
       if (st.rerun && st.rerun.state === "running") poll();
       document.body.dataset.ready = "1";
       call("/api/mesh").then((m) => { setupMesh(m); colourFaces(); request3d(); document.body.dataset.mesh = "1"; })
