@@ -26,6 +26,9 @@ def atomic_path(path: str | os.PathLike, suffix: str | None = None) -> Iterator[
                                dir=path.parent)
     os.close(fd)
     tmp_path = Path(tmp)
+    # mkstemp makes the file private (0600); give it the permissions an ordinary file would get.
+    with contextlib.suppress(OSError):
+        os.chmod(tmp_path, 0o666 & ~_umask())
     try:
         yield tmp_path
         with open(tmp_path, "rb+") as fh:
@@ -36,6 +39,12 @@ def atomic_path(path: str | os.PathLike, suffix: str | None = None) -> Iterator[
         with contextlib.suppress(OSError):
             tmp_path.unlink()
         raise
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
 
 
 def _fsync_dir(folder: Path) -> None:

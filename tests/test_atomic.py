@@ -1,0 +1,31 @@
+"""Atomic output: the target holds either the old or the new content, never a partial file."""
+import json
+import os
+import stat
+
+import numpy as np
+import pytest
+
+from bandgeo import atomic
+
+
+def test_write_json_converts_numpy_and_nan(tmp_path):
+    path = atomic.write_json(tmp_path / "r.json", {"a": np.float32(1.5), "b": np.arange(3), "c": float("nan")})
+    assert json.loads(path.read_text()) == {"a": 1.5, "b": [0, 1, 2], "c": None}
+
+
+def test_failed_write_keeps_old_content_and_leaves_no_temp(tmp_path):
+    target = tmp_path / "keep.txt"
+    atomic.write_text(target, "old")
+    with pytest.raises(RuntimeError):
+        with atomic.atomic_path(target) as tmp:
+            tmp.write_text("half")
+            raise RuntimeError("crash mid-write")
+    assert target.read_text() == "old"
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["keep.txt"]
+
+
+def test_output_is_not_private(tmp_path):
+    path = atomic.write_text(tmp_path / "x.txt", "x")
+    mode = stat.S_IMODE(os.stat(path).st_mode)
+    assert mode & stat.S_IRGRP or mode & stat.S_IROTH or os.umask(0o022) & 0o044
