@@ -25,7 +25,10 @@ def test_failed_write_keeps_old_content_and_leaves_no_temp(tmp_path):
     assert sorted(p.name for p in tmp_path.iterdir()) == ["keep.txt"]
 
 
-def test_output_is_not_private(tmp_path):
-    path = atomic.write_text(tmp_path / "x.txt", "x")
-    mode = stat.S_IMODE(os.stat(path).st_mode)
-    assert mode & stat.S_IRGRP or mode & stat.S_IROTH or os.umask(0o022) & 0o044
+def test_output_gets_umask_permissions_not_private(tmp_path):
+    old = os.umask(0o022)
+    try:
+        path = atomic.write_text(tmp_path / "x.txt", "x")
+    finally:
+        os.umask(old)
+    assert stat.S_IMODE(os.stat(path).st_mode) == 0o644
