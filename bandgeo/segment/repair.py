@@ -7,8 +7,9 @@ R1 ``merged doubled ring``: two rings closer on the axis than ``DOUBLE_FRACTION`
    offset arcs): the one with the higher score is kept, with the union's coverage.
 R2 ``dropped: poor fit``: a ring whose plane-fit rms exceeds ``MAX_RMS_FRACTION`` of the local spacing
    is not a ring (a noise streak or a bridge between two grooves).
-R3 ``dropped: short arc``: a ring covering less than ``MIN_COVERAGE`` of the circumference is too short
-   to be a boundary (holes and broken rings keep more than this on a real groove).
+R3 ``dropped: short arc``: a ring covering less than ``MIN_COVERAGE`` (half) of the circumference is
+   too short to be a boundary: a real groove is traced wherever the wall exists, and holes or broken
+   stretches take far less than half of it, while noise streaks rarely reach half way round.
 R4 ``gap filled``: where two neighbouring rings are more than ``GAP_FRACTION`` times the local median
    spacing apart, the strongest weak peak inside the gap is traced; it is added (with lowered
    confidence) if it passes R2 and R3, otherwise the gap is flagged as a possibly missed boundary.
@@ -22,7 +23,7 @@ import numpy as np
 
 DOUBLE_FRACTION = 0.4
 MAX_RMS_FRACTION = 0.35
-MIN_COVERAGE = 0.25
+MIN_COVERAGE = 0.5
 GAP_FRACTION = 1.75
 
 
