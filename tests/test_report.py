@@ -259,3 +259,16 @@ def test_cli_report_errors_are_one_line_exit_2(tmp_path):
         assert proc.returncode == 2
         assert len(proc.stderr.strip().splitlines()) == 1 and "Traceback" not in proc.stderr
         assert "bandgeo analyze" in proc.stderr
+
+
+def test_envelope_keeps_every_peak_and_trough():
+    from bandgeo.report.figures import envelope
+
+    rng = np.random.default_rng(4)
+    f = np.linspace(1e-4, 0.5, 20_000)
+    p = rng.exponential(1.0, f.size)
+    p[12_345] = 500.0                                   # a narrow peak must survive thinning
+    x, y = envelope(f, p, n_bins=500)
+    assert len(x) <= 1000 and np.all(np.diff(x) > 0)
+    assert y.max() == 500.0 and x[np.argmax(y)] == f[12_345]
+    assert y.min() == p.min()

@@ -130,8 +130,11 @@ def report_context(state: Any, figures: list[dict]) -> dict:
     sig = model.dpy_significant(result)
     headline = None
     if sig:
-        headline = {"value": model.fmt(dpy["estimate"]), "unit": model.DPY_UNIT,
-                    "ci95": model.fmt_ci(dpy.get("ci95"), model.DPY_UNIT), "method": dpy.get("method") or "—",
+        unit = model.dpy_unit(result)
+        headline = {"value": model.fmt(dpy["estimate"]), "unit": unit,
+                    "daily_ok": model.daily_supported(result),
+                    "daily_verdict": str((result.get("daily_test") or {}).get("verdict") or "not tested"),
+                    "ci95": model.fmt_ci(dpy.get("ci95"), unit), "method": dpy.get("method") or "—",
                     "p_value": model.fmt(dpy.get("p_value")), "is_minimum": dpy.get("is_minimum", True)}
         lod = result.get("length_of_day_hours") or {}
         if lod.get("estimate") is not None:
@@ -186,6 +189,9 @@ def _pdf_sections(ctx: dict) -> tuple[list, list]:
         h = ctx["headline"]
         head = [f"{h['value']} {h['unit']} (95 % interval {h['ci95']}; method: {h['method']}; "
                 f"p = {h['p_value']}). A minimum: days may be missing from the record."]
+        if not h["daily_ok"]:
+            head.append(f"The daily test did not support one band per day ({h['daily_verdict']}), so bands "
+                        f"per annual cycle need not be days per year.")
         if h.get("lod"):
             head.append(f"Length of day {h['lod']} (95 % interval {h['lod_ci95']}).")
     else:
@@ -259,7 +265,7 @@ def _text_reports(state, folder, formats, paths, seconds, tick):
     first, last = _pdf_sections(ctx)
     title = f"Growth-band periodicity report: specimen {ctx['specimen_id']}"
     with contextlib.ExitStack() as stack:
-        stack.enter_context(matplotlib.rc_context({"font.size": 9, "pdf.fonttype": 42,
+        stack.enter_context(matplotlib.rc_context({"font.size": 9, "pdf.fonttype": 3,
                                                    "svg.fonttype": "path"}))
         pdf = None
         if "pdf" in formats:

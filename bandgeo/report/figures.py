@@ -23,14 +23,23 @@ def _message_figure(text: str, figsize=(8.0, 1.6)) -> Figure:
     return fig
 
 
+def _ordinal(n: int) -> str:
+    suffix = "th" if 10 <= n % 100 <= 20 else {1: "st", 2: "nd", 3: "rd"}.get(n % 10, "th")
+    return f"{n}{suffix}"
+
+
 def _relief_panel(ax, fig, image, s_edges, az_edges, label=True):
-    finite = image[np.isfinite(image)]
+    # colour limits from the middle 90 % of the height, so end caps and domes do not set the scale
+    rows = slice(int(0.05 * image.shape[0]), max(int(0.95 * image.shape[0]), 1))
+    finite = image[rows][np.isfinite(image[rows])]
     lim = float(np.percentile(np.abs(finite), 98)) if finite.size else 1.0
     lim = lim if lim > 0 else 1.0
     mesh = ax.pcolormesh(az_edges, s_edges, np.ma.masked_invalid(image), cmap=IMAGE_CMAP,
                          vmin=-lim, vmax=lim, shading="flat", rasterized=True)
     cb = fig.colorbar(mesh, ax=ax, shrink=0.85, pad=0.01, location="bottom", aspect=30)
     cb.set_label("relief (radius minus its smooth trend), mm", fontsize=8)
+    cb.ax.xaxis.set_major_locator(MaxNLocator(5))
+    cb.ax.tick_params(labelsize=7)
     ax.set_xlim(0, 360)
     ax.set_ylim(s_edges[0], s_edges[-1])
     ax.set_xticks(np.arange(0, 361, 90))
@@ -69,19 +78,28 @@ def unrolled_figure(s_mm, azimuth_deg, radius_mm, boundaries, axis, flagged=(), 
     from .unroll import relief_image
 
     radius = float(np.median(radius_mm))
+    side = radius_mm > 0.6 * radius             # drop the end caps (discs across the axis)
+    s_mm, azimuth_deg, radius_mm = s_mm[side], azimuth_deg[side], radius_mm[side]
     fig = Figure(figsize=(8.0, 7.8), layout="constrained")
     ax, zx = fig.subplots(1, 2, gridspec_kw={"width_ratios": [1.6, 1.0]})
     image, se, ae = relief_image(s_mm, azimuth_deg, radius_mm, smooth_mm=smooth_mm)
     _relief_panel(ax, fig, image, se, ae)
     step = max(1, int(np.ceil(len(boundaries) / max_drawn)))
     _draw_boundaries(ax, boundaries[::step], axis, radius)
+    reasons = list(dict.fromkeys(str(f[2]) for f in flagged))
+    colours = [LINE["fit"], LINE["level99"], LINE["level95"], LINE["background"]]
     for s0, s1, reason in flagged:
-        ax.axhspan(float(s0), float(s1), xmin=0.97, xmax=1.0, color=LINE["fit"], alpha=0.9)
-        ax.text(354, (float(s0) + float(s1)) / 2, str(reason), ha="right", va="center", fontsize=7,
-                color="white", path_effects=_OUTLINE)
-    drawn = "all" if step == 1 else f"every {step}th of {len(boundaries)}"
-    ax.set_title(f"whole column: {drawn} boundaries drawn\n(solid: automatic, dashed: reviewed; "
-                 "orange margin: flagged)", fontsize=8)
+        k = reasons.index(str(reason))
+        ax.axhspan(float(s0), float(s1), xmin=0.97, xmax=1.0, color=colours[k % len(colours)], lw=0)
+    if reasons:
+        from matplotlib.patches import Patch
+
+        ax.legend(handles=[Patch(color=colours[k % len(colours)], label=r) for k, r in enumerate(reasons)],
+                  title="flagged stretches (right margin)", title_fontsize=7, fontsize=7,
+                  loc="upper center", bbox_to_anchor=(0.5, -0.2), frameon=False)
+    drawn = "all" if step == 1 else f"every {_ordinal(step)} of {len(boundaries)}"
+    ax.set_title(f"whole column: {drawn} boundaries drawn\n(solid: automatic, dashed: reviewed)",
+                 fontsize=8)
     if len(boundaries) >= 2:
         heights = np.array([b.height_mm for b in boundaries], float)
         span = float(np.ptp(s_mm))
@@ -98,7 +116,7 @@ def unrolled_figure(s_mm, azimuth_deg, radius_mm, boundaries, axis, flagged=(), 
             _relief_panel(zx, fig, zimg, zse, zae, label=False)
             zstep = max(1, int(np.ceil(len(inside) / max_drawn)))
             _draw_boundaries(zx, inside[::zstep], axis, radius)
-            what = "all drawn" if zstep == 1 else f"every {zstep}th drawn"
+            what = "all drawn" if zstep == 1 else f"every {_ordinal(zstep)} drawn"
             zx.set_title(f"zoom: boundaries {inside[0].id}-{inside[-1].id}, {what}\n"
                          f"({z0:.1f}-{z1:.1f} mm along the axis)", fontsize=8)
             zx.set_ylim(z0, z1)
@@ -162,6 +180,25 @@ def series_figure(series, period_bands=None):
     return fig
 
 
+def envelope(x, y, n_bins=1500, log=True):
+    """Thin a dense curve for drawing: the minimum and the maximum of each bin, in order.
+
+    Keeps every peak and trough visible (common practice for plotting long signals) while drawing at
+    most ``2 n_bins`` points. Bins are even in ``log x`` when ``log`` is true.
+    """
+    x, y = np.asarray(x, float), np.asarray(y, float)
+    if len(x) <= 2 * n_bins:
+        return x, y
+    key = np.log(x) if log else x
+    edges = np.linspace(key[0], key[-1], n_bins + 1)
+    b = np.clip(np.searchsorted(edges, key, side="right") - 1, 0, n_bins - 1)
+    starts = np.flatnonzero(np.r_[True, b[1:] != b[:-1]])
+    idx_min = np.array([s + np.argmin(y[s:e]) for s, e in zip(starts, np.r_[starts[1:], len(y)])])
+    idx_max = np.array([s + np.argmax(y[s:e]) for s, e in zip(starts, np.r_[starts[1:], len(y)])])
+    idx = np.sort(np.unique(np.concatenate([idx_min, idx_max])))
+    return x[idx], y[idx]
+
+
 def periodogram_figure(spectra, searched=None, estimate_frequency=None):
     """One panel per spectrum: power, red-noise background and its 95 % / 99 % levels.
 
@@ -185,15 +222,15 @@ def periodogram_figure(spectra, searched=None, estimate_frequency=None):
             f_lo, f_hi = 1.0 / max(searched), 1.0 / min(searched)
             ax.axvspan(f_lo, f_hi, color=LINE["search"], alpha=0.18, lw=0,
                        label=f"searched band: {min(searched):.0f}-{max(searched):.0f} bands per cycle")
-        ax.plot(f[pos], p[pos], color=LINE["data"], lw=0.8, label="periodogram")
+        ax.plot(*envelope(f[pos], p[pos]), color=LINE["data"], lw=0.8, label="periodogram")
         if spec.get("multitaper") is not None:
-            ax.plot(f[pos], spec["multitaper"][pos], color=LINE["reference"], lw=0.8, alpha=0.8,
+            ax.plot(*envelope(f[pos], spec["multitaper"][pos]), color=LINE["reference"], lw=0.8, alpha=0.8,
                     label="multitaper estimate")
         for key, style, text in (("background", ":", "red-noise background"),
                                  ("level95", "--", "95 % red-noise level"),
                                  ("level99", "-.", "99 % red-noise level")):
             if spec.get(key) is not None:
-                ax.plot(f[pos], spec[key][pos], ls=style, lw=1.1,
+                ax.plot(*envelope(f[pos], spec[key][pos], n_bins=400), ls=style, lw=1.1,
                         color=LINE[key if key != "background" else "background"], label=text)
         if estimate_frequency and np.isfinite(estimate_frequency):
             ax.axvline(estimate_frequency, color=LINE["estimate"], lw=1.0,

@@ -140,19 +140,45 @@ def collect_warnings(state: Any) -> list[str]:
                 out.append(text)
     seg = getattr(state, "segmentation", None)
     flagged = ((getattr(seg, "resolution", None) or {}).get("flagged") or []) if seg is not None else []
-    for item in flagged:
-        try:
-            s0, s1, reason = item
-            text = f"flagged stretch {fmt(s0)}–{fmt(s1)} mm along the axis: {reason}"
-        except (TypeError, ValueError):
-            text = f"flagged stretch: {item}"
-        if text not in out:
-            out.append(text)
+    out.extend(_flagged_summary(flagged))
     if not dpy_significant(result):
         text = "no significant annual cycle was found: this report gives no days-per-year estimate"
         if not any("annual" in w and "signific" in w for w in out):
             out.insert(0, text)
     return out
+
+
+def _flagged_summary(flagged, show: int = 6) -> list[str]:
+    """One warning per reason for the flagged stretches: count, total length and the first few."""
+    groups: dict[str, list] = {}
+    for item in flagged:
+        try:
+            s0, s1, reason = item
+            groups.setdefault(str(reason), []).append((float(s0), float(s1)))
+        except (TypeError, ValueError):
+            groups.setdefault(str(item), [])
+    lines = []
+    for reason, spans in groups.items():
+        if not spans:
+            lines.append(f"flagged stretch: {reason}")
+            continue
+        total = sum(abs(b - a) for a, b in spans)
+        where = ", ".join(f"{fmt(a)}–{fmt(b)}" for a, b in spans[:show]) + (", …" if len(spans) > show else "")
+        n = len(spans)
+        lines.append(f"{n} stretch{'es' if n > 1 else ''} along the axis flagged ({fmt(total)} mm in all): "
+                     f"{reason}; at {where} mm")
+    return lines
+
+
+def daily_supported(result: Mapping) -> bool:
+    """True when the daily test's verdict supports regular (daily) increments."""
+    verdict = str((result.get("daily_test") or {}).get("verdict") or "")
+    return verdict.startswith("consistent")
+
+
+def dpy_unit(result: Mapping) -> str:
+    """Unit of the annual estimate: solar days per year only when the daily test supports it."""
+    return DPY_UNIT if daily_supported(result) else "bands per annual cycle"
 
 
 def key_results(result: Mapping) -> list[dict]:
@@ -169,10 +195,10 @@ def key_results(result: Mapping) -> list[dict]:
             rows.append({"name": label, "value": f"{fmt(bands[key])} mm", "ci95": fmt_ci(ci, "mm"),
                          "method": str(method)})
     if dpy_significant(result):
-        dpy = result["days_per_year"]
-        rows.append(dict(estimate_row("days per year (combined)", dpy, DPY_UNIT), highlight=True))
+        dpy, unit = result["days_per_year"], dpy_unit(result)
+        rows.append(dict(estimate_row("days per year (combined)", dpy, unit), highlight=True))
         for key, block in ((dpy.get("methods") or {}).items()):
-            rows.append(estimate_row(f"days per year {METHOD_LABELS.get(key, key)}", block, DPY_UNIT))
+            rows.append(estimate_row(f"days per year {METHOD_LABELS.get(key, key)}", block, unit))
         for key, label in (("length_of_day_hours", "length of day"), ("sidereal_day_hours", "sidereal day")):
             if isinstance(result.get(key), Mapping):
                 rows.append(estimate_row(label, result[key], "h"))

@@ -27,7 +27,7 @@ def _face_band(faces: np.ndarray, vertex_band: np.ndarray) -> np.ndarray:
     return out
 
 
-def decimate_for_render(vertices_mm, faces, vertex_band, target_faces=20000, seed=0):
+def decimate_for_render(vertices_mm, faces, vertex_band, target_faces=16000, seed=0):
     """Reduce a mesh for drawing and give each kept triangle a band.
 
     Parameters

@@ -111,7 +111,27 @@ def relief_image(s_mm, azimuth_deg, radius_mm, n_az=None, n_s=None, smooth_mm=No
     with np.errstate(invalid="ignore", divide="ignore"):
         smooth = num / den
     image = np.where(count > 0, mean - smooth, np.nan)
-    return image, s_edges, az_edges
+    return fill_gaps(image), s_edges, az_edges
+
+
+def fill_gaps(image: np.ndarray, max_sigma: float = 4.0) -> np.ndarray:
+    """Fill empty cells (NaN) from their neighbours by normalised Gaussian convolution.
+
+    Meshes sampled in rings (few vertices around, many along) or with holes leave empty cells on a
+    regular grid; each empty cell takes the weighted mean of the filled cells within a few cells
+    (sigma 1, then 2, then 4 cells, wrapping in azimuth). Cells farther than that from any data stay
+    empty, so holes in the scan still show.
+    """
+    out = image.copy()
+    sigma = 1.0
+    while sigma <= max_sigma and np.isnan(out).any():
+        have = np.isfinite(out)
+        num = gaussian_filter(np.where(have, out, 0.0), sigma, mode=("nearest", "wrap"))
+        den = gaussian_filter(have.astype(float), sigma, mode=("nearest", "wrap"))
+        fill = (~have) & (den > 0.05)
+        out[fill] = num[fill] / den[fill]
+        sigma *= 2.0
+    return out
 
 
 def boundary_trace(boundary, axis, radius_mm: float, azimuth_deg: np.ndarray) -> np.ndarray:
