@@ -7,6 +7,7 @@ the parsers do not always notice a truncated file or wrong counts.
 """
 from __future__ import annotations
 
+import gc
 import hashlib
 import io
 import os
@@ -228,8 +229,12 @@ def load_scan(path) -> Scan:
         bad = int(np.count_nonzero((faces < 0) | (faces >= len(vertices))))
         raise _fail(name, f"{bad} face indices point outside the {len(vertices)} vertices (valid 0.."
                           f"{len(vertices) - 1}); the file is corrupt or its counts are wrong, re-export it")
-    return Scan(vertices=vertices, faces=faces, colors=_colors(mesh, len(vertices)), path=str(path),
-                sha256=digest, file_format=fmt, units_hint=units_hint(data, fmt))
+    colors = _colors(mesh, len(vertices))
+    hint = units_hint(data, fmt)
+    del mesh, data
+    gc.collect()  # trimesh objects hold reference cycles: free their arrays now, not at some later peak
+    return Scan(vertices=vertices, faces=faces, colors=colors, path=str(path), sha256=digest, file_format=fmt,
+                units_hint=hint)
 
 
 _UNITS_RE = re.compile(r"\bunits?\s*(?:[:=]|in)?\s*(um|mm|cm|m|in)\b", re.IGNORECASE)
