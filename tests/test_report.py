@@ -272,3 +272,12 @@ def test_envelope_keeps_every_peak_and_trough():
     assert len(x) <= 1000 and np.all(np.diff(x) > 0)
     assert y.max() == 500.0 and x[np.argmax(y)] == f[12_345]
     assert y.min() == p.min()
+
+
+def test_every_reference_point_is_cited_in_the_report(written):
+    import html as htmllib
+
+    _, paths, _ = written
+    text = htmllib.unescape(paths["report.html"].read_text(encoding="utf-8"))
+    for point in reference_points():             # bandgeo.astro's list, or the fallback table
+        assert point["citation"] in text

@@ -208,7 +208,7 @@ def _pdf_sections(ctx: dict) -> tuple[list, list]:
             ("Provenance", [("input SHA-256", ctx["provenance"]["sha256"]), ("seed", str(ctx["provenance"]["seed"])),
                             ("created", ctx["provenance"]["created"])] + ctx["provenance"]["versions"]
              + [(f"stage {k}", v) for k, v in ctx["provenance"]["stages"]] + ctx["provenance"]["parameters"]),
-            ("References", [f"[{i + 1}] {r['label']}: {model.fmt(r['days_per_year'])} {model.DPY_UNIT} at "
+            ("References", [f"[{i + 1}] {r['label'] + ': ' if r['label'] else ''}{model.fmt(r['days_per_year'])} {model.DPY_UNIT} at "
                             f"{model.fmt(r['age_ma'])} Ma. {r['citation']}. {r['note']}"
                             for i, r in enumerate(ctx["references"])])]
     return first, last

@@ -49,10 +49,14 @@ def _as_dict(point: Any) -> dict | None:
     if value is None or age is None:
         return None
     err = d.get("err", d.get("days_per_year_err", d.get("uncertainty")))
-    return {"label": str(d.get("label", d.get("name", ""))), "age_ma": float(age),
+    label = str(d.get("label", d.get("name", "")) or "")
+    citation = str(d.get("citation", d.get("source", "")) or "")
+    if not label and "; " in citation:                 # "Author (year) Journal; what was measured"
+        citation, label = citation.split("; ", 1)
+    return {"label": label, "age_ma": float(age),
             "age_err_ma": d.get("age_err_ma"), "days_per_year": float(value),
             "err": None if err is None else float(err),
-            "citation": str(d.get("citation", d.get("source", ""))), "note": str(d.get("note", ""))}
+            "citation": citation, "note": str(d.get("note", "") or "")}
 
 
 def reference_points() -> list[dict]:
