@@ -45,7 +45,7 @@ def fit_mixture(Z: np.ndarray, k: int, rng: np.random.Generator, n_fit: int, cov
         kw = {"weights_init": init.weights_, "means_init": init.means_, "precisions_init": init.precisions_}
     # warm-started from the BIC winner, EM needs only a few steps on the larger subsample
     gm = GaussianMixture(n_components=k, covariance_type=covariance_type, random_state=seed, n_init=1,
-                         max_iter=30 if kw else 100, tol=2e-3, reg_covar=1e-4, **kw)
+                         max_iter=10 if kw else 100, tol=2e-3, reg_covar=1e-4, **kw)
     gm.fit(Z[take].astype(np.float64))
     return gm
 

@@ -34,7 +34,7 @@ class BandSegmenter:
         Side-wall vertices used to fit the mixture; all vertices are then predicted.
     random_state : int, default=DEFAULT_SEED
     covariance_type : {'full', 'diag'}, default='full'
-    bic_subsample : int, default=20_000
+    bic_subsample : int, default=10_000
         Vertices used to compare the BIC of the candidate class numbers.
     use_luminance : bool, default=False
         Add the colour luminance to the clustering features.
@@ -54,7 +54,7 @@ class BandSegmenter:
     """
 
     def __init__(self, n_classes="bic", max_classes=6, subsample=250_000, random_state=DEFAULT_SEED,
-                 covariance_type="full", bic_subsample=20_000, use_luminance=False, min_relief_to_noise=1.0):
+                 covariance_type="full", bic_subsample=10_000, use_luminance=False, min_relief_to_noise=1.0):
         self.n_classes = n_classes
         self.max_classes = max_classes
         self.subsample = subsample
@@ -131,6 +131,8 @@ class BandSegmenter:
             k, bic, init = int(self.n_classes), {}, None
         gm = cluster.fit_mixture(Zw, k, rng, self.subsample, self.covariance_type, self.random_state, init)
         proba = cluster.predict_proba(gm, Zw)
+        mixture_info = {"n_iter": int(gm.n_iter_), "converged": bool(gm.converged_),
+                        "fit_rows": int(min(self.subsample, len(Zw))), "bic_rows": int(min(self.bic_subsample, len(Zw)))}
         mid = features.groove_scale_index
         use = np.flatnonzero(features.scales_mm > 0)
         col = int(np.searchsorted(use, mid)) if mid in use else 0
@@ -238,7 +240,7 @@ class BandSegmenter:
         band[~wall] = np.where(band[~wall] >= 0, band[~wall], -1)
 
         params = dict(self.get_params())
-        params.update({"n_classes_chosen": int(k), "bic": bic,
+        params.update({"n_classes_chosen": int(k), "bic": bic, "mixture": mixture_info,
                        "groove_classes": [class_names[int(rank[c])] for c in groove_set],
                        "groove_set_periodic_contrast": {int(j): float(c) for j, c in contrast.items()}, "band_spacing_mm": spacing,
                        "band_spacing_method": features.band_spacing_method,

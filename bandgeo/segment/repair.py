@@ -28,16 +28,17 @@ GAP_FRACTION = 1.75
 
 
 def local_spacing(heights: np.ndarray, fallback: float, window: int = 5) -> np.ndarray:
-    """Median spacing of the ``window`` nearest intervals around each height (fallback if too few)."""
+    """Median of the ``window`` + 1 intervals nearest each height (fallback if fewer than 3 heights)."""
     h = np.sort(np.asarray(heights, float))
     if len(h) < 3:
         return np.full(len(h), fallback)
     d = np.diff(h)
-    out = np.empty(len(h))
-    for i in range(len(h)):
-        lo, hi = max(0, i - window // 2 - 1), min(len(d), i + window // 2 + 1)
-        out[i] = np.median(d[lo:hi])
-    return out
+    half = window // 2 + 1
+    # intervals lo..hi-1 around height i, with lo = max(0, i - half), hi = min(len(d), i + half),
+    # as in a sliding window clipped at the ends: pad with NaN and take nan-medians
+    pad = np.concatenate([np.full(half, np.nan), d, np.full(half, np.nan)])
+    win = np.lib.stride_tricks.sliding_window_view(pad, 2 * half)[: len(h)]
+    return np.nanmedian(win, axis=1)
 
 
 def confidence(ring: dict, ref_prominence: float, spacing: float) -> float:
