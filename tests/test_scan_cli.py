@@ -22,6 +22,7 @@ def scan_file(tmp_path):
 
 
 def test_text_block_has_units(scan_file, capsys):
+    # every number shown to a user carries its unit (project rule); the column is 64 mm tall (analytic)
     path, _ = scan_file
     assert main(["inspect", str(path), "--units", "cm"]) == 0
     out = capsys.readouterr().out
@@ -56,7 +57,7 @@ def test_options_up_north_bedding(scan_file, capsys):
     info = json.loads(capsys.readouterr().out)
     assert info["up"]["source"] == "cli" and info["north_known"]
     assert info["bedding"] == {"strike_deg": 30.0, "dip_deg": 10.0}
-    # the paleo-vertical is 10 degrees (the dip) from the field vertical
+    # analytic: rotating about the strike line by the dip moves the field vertical by exactly the dip
     angle = np.degrees(np.arccos(np.clip(np.dot(info["up"]["scan_frame"], up), -1, 1)))
     assert angle == pytest.approx(10.0, abs=1e-6)
 

@@ -45,6 +45,17 @@ def test_trimesh_written_reads_back(tmp_path, sphere, ext, kwargs, fmt):
         np.testing.assert_array_equal(scan.colors, c)
 
 
+def test_trimesh_gltf_with_embedded_buffer(tmp_path, sphere):
+    # reference library: trimesh writes a .gltf with its buffer embedded (base64 data URI)
+    v, f, _ = sphere
+    files = trimesh.exchange.gltf.export_gltf(trimesh.Scene(trimesh.Trimesh(v, f, process=False)), embed_buffers=True)
+    path = tmp_path / "sphere.GLTF"
+    path.write_bytes(files["model.gltf"])
+    scan = load_scan(path)
+    assert scan.file_format == "gltf"
+    np.testing.assert_allclose(_by_face(scan.vertices, scan.faces), _by_face(v, f), atol=1e-5)
+
+
 def test_trimesh_ascii_stl_reads_back(tmp_path, sphere):
     v, f, _ = sphere
     path = tmp_path / "sphere.stl"

@@ -75,6 +75,7 @@ def test_precedence_cli_over_sheet_over_file(tmp_path, column):
 
 @pytest.mark.parametrize("factor, unit", [(1.0, "mm"), (0.1, "cm"), (0.001, "m")])
 def test_units_guessed_from_size_with_warning(column, factor, unit):
+    # the 64 mm column written in mm, cm or m: the unit that makes it a hand specimen (common practice)
     v, f = column
     spec = prepare(_scan(v * factor, f))
     assert spec.units == unit and spec.summary["units_source"] == "guessed"
@@ -83,6 +84,7 @@ def test_units_guessed_from_size_with_warning(column, factor, unit):
 
 
 def test_implausible_size_warns(column):
+    # hand specimens: columns 1-10 cm wide and 5-50 cm tall (/work/shared/USERS.md; common practice)
     v, f = column
     # a 64 mm column declared in metres would be a 64 m hand specimen
     spec = prepare(_scan(v, f), units="m")
@@ -94,6 +96,7 @@ def test_implausible_size_warns(column):
 
 
 def test_reference_length_sets_the_scale(column):
+    # analytic: mm per file unit = true length / distance between the points in file units
     v, f = column
     scan = _scan(v * 0.37, f)  # arbitrary photogrammetry units
     # the two points are 60 mm apart on the real column (base rim to top rim, same azimuth)
