@@ -261,7 +261,9 @@ def test_sigint_stops_cleanly_and_frees_the_port(tmp_path):
     assert proc.returncode == 0, err
     assert "stopped" in out and "Traceback" not in err
     with socket.socket() as sock:                            # the port is free again
+        sock.setsockopt(socket.SOL_SOCKET, socket.SO_REUSEADDR, 1)
         sock.bind(("127.0.0.1", port))
+        sock.listen()
 
 
 def test_cli_refuses_a_folder_that_was_not_analysed(tmp_path):
@@ -297,8 +299,11 @@ def test_cli_serves_a_saved_segmentation_and_stops_on_ctrl_c(tmp_path):
             proc.kill()
     assert proc.returncode == 0, err
     assert "stopped" in out and "Traceback" not in err
-    with socket.socket() as sock:
+    with socket.socket() as sock:                            # no listener is left on the port
+        # SO_REUSEADDR lets the bind pass over connections in TIME_WAIT, never over a live listener.
+        sock.setsockopt(socket.SOL_SOCKET, socket.SO_REUSEADDR, 1)
         sock.bind(("127.0.0.1", port))
+        sock.listen()
 
 
 def test_a_review_that_does_not_fit_is_a_one_line_error(tmp_path):

@@ -8,6 +8,7 @@ a worker thread (``bandgeo.pipeline.rerun`` unless another callable is given) an
 from __future__ import annotations
 
 import hmac
+import os
 import json
 import secrets
 import signal
@@ -287,7 +288,7 @@ class ReviewServer(ThreadingHTTPServer):
     """The HTTP server plus the app and the page address (``url``, with its token)."""
 
     daemon_threads = True
-    allow_reuse_address = False
+    allow_reuse_address = os.name != "nt"  # restart on the same port at once (POSIX semantics)
     request_queue_size = 16
 
     def __init__(self, address, app: ReviewApp):
@@ -378,17 +379,17 @@ def _warm(data) -> None:
 def run(folder, host="127.0.0.1", port=0, open_browser=True, token=None, echo=print, **kwargs) -> int:
     """Serve until Ctrl-C (or SIGTERM), then stop cleanly; returns 0."""
     server = serve(folder, host=host, port=port, open_browser=open_browser, token=token, **kwargs)
-    echo(f"Review page for {server.app.data.specimen_id}: {server.url}")
-    echo("Press Ctrl-C to stop.")
     stop = threading.Event()
 
     def _term(signum, frame):
         stop.set()
 
     previous = None
-    if threading.current_thread() is threading.main_thread():
-        previous = signal.signal(signal.SIGTERM, _term)
     try:
+        if threading.current_thread() is threading.main_thread():
+            previous = signal.signal(signal.SIGTERM, _term)
+        echo(f"Review page for {server.app.data.specimen_id}: {server.url}")
+        echo("Press Ctrl-C to stop.")
         while not stop.wait(0.5):
             pass
     except KeyboardInterrupt:
@@ -398,5 +399,7 @@ def run(folder, host="127.0.0.1", port=0, open_browser=True, token=None, echo=pr
             signal.signal(signal.SIGTERM, previous)
         server.stop()
     unsaved = " (unsaved edits were discarded)" if server.app.session.dirty else ""
-    echo(f"Review server stopped{unsaved}; saved edits are in {server.app.folder / 'review.json'}.")
+    path = server.app.folder / "review.json"
+    where = f"saved edits are in {path}" if path.exists() else "no review was saved"
+    echo(f"Review server stopped{unsaved}; {where}.")
     return 0
