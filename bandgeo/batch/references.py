@@ -95,6 +95,18 @@ def _coerce(item) -> Optional[ReferencePoint]:
     derived = []
     dpy_ci = interval("days_per_year_ci95", "dpy_ci95", "days_per_year")
     lod_ci = interval("length_of_day_ci95", "lod_ci95", "length_of_day_hours", "length_of_day_h")
+    dpy_err = value("days_per_year_err")  # a published "±": plotted as value ± err
+    lod_err = value("length_of_day_err_hours", "length_of_day_err_h")
+    if dpy_ci is None and n is not None and dpy_err:
+        dpy_ci = (n - dpy_err, n + dpy_err)
+    if lod_ci is None and lod is not None and lod_err:
+        lod_ci = (lod - lod_err, lod + lod_err)
+    if dpy_ci is None and lod_ci is not None and n is not None and lod is not None:
+        derived.append("days_per_year")
+        dpy_ci = (_DAY_H / lod_ci[1], _DAY_H / lod_ci[0])
+    if lod_ci is None and dpy_ci is not None and n is not None and lod is not None:
+        derived.append("length_of_day_h")
+        lod_ci = (_DAY_H / dpy_ci[1], _DAY_H / dpy_ci[0])
     if n is None:
         n, derived = _DAY_H / lod, ["days_per_year"]
         dpy_ci = None if lod_ci is None else (_DAY_H / lod_ci[1], _DAY_H / lod_ci[0])
