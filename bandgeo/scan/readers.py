@@ -232,7 +232,7 @@ def load_scan(path) -> Scan:
     colors = _colors(mesh, len(vertices))
     hint = units_hint(data, fmt)
     del mesh, data
-    gc.collect()  # trimesh objects hold reference cycles: free their arrays now, not at some later peak
+    gc.collect(1)  # trimesh objects hold reference cycles: free their arrays now (young generations: ms)
     return Scan(vertices=vertices, faces=faces, colors=colors, path=str(path), sha256=digest, file_format=fmt,
                 units_hint=hint)
 
