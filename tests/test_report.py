@@ -253,7 +253,10 @@ def test_reference_points_match_the_published_values():
 
 
 def test_cli_report_errors_are_one_line_exit_2(tmp_path):
-    for target in (tmp_path / "missing", tmp_path):
+    incomplete = tmp_path / "only a result"
+    incomplete.mkdir()
+    (incomplete / "result.json").write_text('{"schema": "bandgeo.result/1"}')
+    for target in (tmp_path / "missing", tmp_path, incomplete):
         proc = subprocess.run([sys.executable, "-m", "bandgeo.cli", "report", str(target)],
                               capture_output=True, text=True)
         assert proc.returncode == 2

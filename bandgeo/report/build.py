@@ -108,17 +108,29 @@ def _figure_specs(state: Any) -> list[tuple[str, str, str, Any, bool]]:
     specs.append(("counts", "Cycle-by-cycle counts",
                   "Bands counted in each successive annual cycle; each count is a minimum."
                   + (f" Method: {cc_method}." if cc_method and counts else ""),
-                  lambda: figures.counts_figure(counts, cc.get("estimate") if isinstance(cc, Mapping) else None),
+                  lambda: figures.counts_figure(
+                      counts, cc.get("estimate") if isinstance(cc, Mapping) else None,
+                      "No cycle-by-cycle counts: no significant annual cycle." if f_est is None else
+                      "No cycle-by-cycle counts: the cycle-count method needs a significant annual cycle "
+                      "in the thickness series, and there was none."),
                   False))
     sp = result.get("specimen") or {}
     refs = reference_points()
     specs.append(("days_per_year", "Days per year beside published values",
                   "Estimates from this specimen with 95 % intervals, and published values numbered as in "
                   "the reference list.",
-                  lambda: comparison.days_per_year_figure(model.method_estimates(result), refs,
+                  lambda: comparison.days_per_year_figure(_labelled_estimates(result), refs,
                                                           sp.get("age_ma"), sp.get("age_err_ma"),
                                                           model.dpy_significant(result)), False))
     return specs
+
+
+def _labelled_estimates(result: Mapping) -> list:
+    """The figure's estimates, labelled as bands per cycle when the daily test did not back days."""
+    est = model.method_estimates(result)
+    if model.daily_supported(result):
+        return est
+    return [(f"{label} (bands per cycle; not shown to be daily)", e, lo, hi) for label, e, lo, hi in est]
 
 
 def report_context(state: Any, figures: list[dict]) -> dict:

@@ -288,14 +288,14 @@ def evolutive_figure(evolutive, searched=None):
     return fig
 
 
-def counts_figure(counts, estimate=None, method=""):
+def counts_figure(counts, estimate=None, empty_message="No cycle-by-cycle counts: no significant annual cycle."):
     """Bands counted in each successive annual cycle (a dot per cycle), with the mean and the estimate.
 
     Dots rather than bars, because the value axis does not start at zero.
     """
     counts = np.asarray([c for c in counts if c is not None], float)
     if counts.size == 0:
-        return _message_figure("No cycle-by-cycle counts: no significant annual cycle.")
+        return _message_figure(empty_message)
     fig = Figure(figsize=(8.0, 3.2), layout="constrained")
     ax = fig.add_subplot(1, 1, 1)
     idx = np.arange(1, len(counts) + 1)
