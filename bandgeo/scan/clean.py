@@ -328,8 +328,11 @@ def clean_mesh(vertices: np.ndarray, faces: np.ndarray, progress=None) -> CleanR
     # 6. compact the kept piece
     report(progress, "cleaning: compacting", 5, 6)
     f_keep = f[keep_face] if n_pieces > 1 else f
-    used = np.zeros(n, dtype=bool)
-    used[f_keep.ravel()] = True
+    if n_pieces > 1:
+        used = np.zeros(n, dtype=bool)
+        used[f_keep.ravel()] = True
+    else:
+        used = referenced  # one piece: the kept vertices are exactly the referenced ones
     counts["vertices_in_removed_pieces"] = int(np.count_nonzero(referenced & ~used))
     if used.all():
         new_index = scan_index = np.arange(n, dtype=np.int64)
