@@ -147,7 +147,7 @@ def save_review(folder, review: dict) -> dict:
                  "added": [e for e in review["edits"] if _key(e) not in before],
                  "removed": [e for e in old["edits"] if _key(e) not in after]}
         out = {"schema": REVIEW_SCHEMA, "specimen_id": review.get("specimen_id", old.get("specimen_id")),
-               "created_utc": old.get("created_utc") or now, "updated_utc": now}
+               "created_utc": old.get("created_utc") or now, "updated_utc": now, "saved": now}
         out.update({k: v for k, v in review.items() if k not in (*out, "history", "edits")})
         out.update(edits=review["edits"], history=old["history"] + [entry])
         atomic.write_json(path, out)

@@ -117,6 +117,7 @@
     const ctx = c.getContext("2d"); ctx.setTransform(dpr, 0, 0, dpr, 0, 0);
     ctx.clearRect(0, 0, w, h); ctx.fillStyle = "#fff"; ctx.fillRect(0, 0, w, h);
     if (!S || !surf) return;
+    c.dataset.view = `${view.v0},${view.v1}`;      // the visible height range (mm), for tests and tools
     const img = layerImage($("layer").value || "relief");
     const span = surf.s1_mm - surf.s0_mm;
     const r0 = (view.v0 - surf.s0_mm) / span * surf.rows, r1 = (view.v1 - surf.s0_mm) / span * surf.rows;
@@ -297,11 +298,12 @@
   // ---------------------------------------------------------------------------------- panels
   function drawStatus() {
     const st = $("status"), r = S.rerun || {};
-    let text = S.dirty ? `${S.n_edits} edit(s), unsaved changes` : (S.saved_utc ? `saved ${S.saved_utc.replace("T", " ")}` : "no review saved yet");
+    const hms = (t) => String(t || "").slice(11, 19);
+    let text = S.dirty ? `${S.n_edits} edit(s), unsaved changes` : (S.saved_utc ? `saved ${hms(S.saved_utc)} UTC` : "no review saved yet");
     st.classList.remove("error");
     if (r.state === "running") text += " · re-running the analysis…";
     else if (r.state === "failed") { text += ` · re-run failed: ${r.error} (last good result shown)`; st.classList.add("error"); }
-    else if (r.state === "done") text += ` · analysis updated ${String(r.finished_utc || "").slice(11, 19)} UTC`;
+    else if (r.state === "done") text += ` · analysis updated ${hms(r.finished_utc)} UTC`;
     st.textContent = text; st.title = text;
     $("save").classList.toggle("dirty", S.dirty);
   }
