@@ -33,7 +33,7 @@ SAMPLES = [
         "notes": "clear annual banding and sway; a few short missing-day gaps",
         "params": dict(days_per_year=400, years=3.0, mean_thickness_mm=0.55, annual_amplitude=0.35,
                        noise_cv=0.12, ar1_phi=0.4, hiatus_rate_per_year=0.7, hiatus_mean_days=2.0,
-                       sway_amplitude_deg=4.0, sway_azimuth_deg=25.0, mean_tilt_deg=2.5,
+                       sway_amplitude_deg=2.5, sway_azimuth_deg=25.0, mean_tilt_deg=1.5,
                        mean_tilt_azimuth_deg=110.0, radius_mm=2.0, radius_variation=0.06,
                        dome_height_mm=0.8, groove_depth_mm=0.07, groove_width_fraction=0.4,
                        scanner_noise_mm=0.006, rings_per_lamina=3.0, holes=1, pose="random",

@@ -181,8 +181,10 @@ def _truth(p, record, mesh, rot, shift, mm_per_unit, file_from_spec, n_vertices)
             "hiatuses": record.hiatus_positions(),
         },
         "boundaries": {
-            "note": "boundary i: arc length along the centreline where it meets the axis at the wall; "
-                    "centre and unit normal (pointing up the column) of its plane on the wall, file frame",
+            "note": "heights_mm[i]: arc length along the centreline of the plane in which boundary i meets "
+                    "the side wall (its dome rises dome_height_mm above that plane on the axis); "
+                    "centres_file/normals_file: that plane's point on the centreline (file units) and unit "
+                    "normal pointing up the column (file frame)",
             "heights_mm": h,
             "centres_file": to_file(centres),
             "normals_file": normals @ rot.T,

@@ -8,6 +8,7 @@ import numpy as np
 
 from ..atomic import atomic_path, write_json
 from ..errors import ParameterError
+from ..progress import report
 from .specimen import SynthSpecimen
 
 #: Mesh formats by lower-case extension.
@@ -74,12 +75,14 @@ def _write_ply(fh, spec: SynthSpecimen, progress) -> None:
     fh.write(header.encode("ascii"))
     vdt = np.dtype([("xyz", "<f4", 3), ("rgb", "u1", 3)])
     for a, b in _chunks(n):
+        report(progress, "writing PLY vertices", a, n + m)
         block = np.empty(b - a, dtype=vdt)
         block["xyz"] = spec.vertices[a:b]
         block["rgb"] = spec.colors[a:b]
         fh.write(block.tobytes())
     fdt = np.dtype([("count", "u1"), ("idx", "<i4", 3)])
     for a, b in _chunks(m):
+        report(progress, "writing PLY faces", n + a, n + m)
         block = np.empty(b - a, dtype=fdt)
         block["count"] = 3
         block["idx"] = spec.faces[a:b]
@@ -90,10 +93,13 @@ def _write_obj(fh, spec: SynthSpecimen, progress) -> None:
     fh.write(f"# bandgeo synthetic specimen; units {spec.truth['units']}\n".encode("ascii"))
     verts = spec.vertices.astype(np.float32).astype(np.float64)
     rgb = spec.colors.astype(np.float64) / 255.0
+    total = spec.n_vertices + spec.n_faces
     for a, b in _chunks(spec.n_vertices):
+        report(progress, "writing OBJ vertices", a, total)
         rows = np.column_stack([verts[a:b], rgb[a:b]])
         fh.write((("v %.9g %.9g %.9g %.4f %.4f %.4f\n" * (b - a)) % tuple(rows.ravel())).encode("ascii"))
     for a, b in _chunks(spec.n_faces):
+        report(progress, "writing OBJ faces", spec.n_vertices + a, total)
         rows = spec.faces[a:b] + 1
         fh.write((("f %d %d %d\n" * (b - a)) % tuple(rows.ravel().tolist())).encode("ascii"))
 
@@ -105,6 +111,7 @@ def _write_stl(fh, spec: SynthSpecimen, progress) -> None:
     sdt = np.dtype([("normal", "<f4", 3), ("tri", "<f4", (3, 3)), ("attr", "<u2")])
     verts = spec.vertices.astype(np.float32)
     for a, b in _chunks(spec.n_faces):
+        report(progress, "writing STL", a, spec.n_faces)
         tri = verts[spec.faces[a:b]]
         normal = np.cross(tri[:, 1] - tri[:, 0], tri[:, 2] - tri[:, 0])
         length = np.linalg.norm(normal, axis=1, keepdims=True)
