@@ -301,7 +301,7 @@ def _text_reports(state, folder, formats, paths, seconds, tick):
             if pdf is not None:
                 t0 = time.perf_counter()
                 fig.suptitle(ftitle, fontsize=11, weight="bold")
-                pdf.savefig(fig, dpi=150)
+                pdf.savefig(fig, dpi=150, **({"bbox_inches": "tight", "pad_inches": 0.2} if raster else {}))
                 t_out["pdf"] += time.perf_counter() - t0
         tick("report: figures")
         if pdf is not None:

@@ -23,7 +23,7 @@ def figure_data_uri(fig, raster: bool = False, dpi: int = 110) -> str:
     """Encode a matplotlib figure as a ``data:`` URI (SVG with text as paths, or PNG)."""
     buf = io.BytesIO()
     if raster:
-        fig.savefig(buf, format="png", dpi=dpi)
+        fig.savefig(buf, format="png", dpi=dpi, bbox_inches="tight", pad_inches=0.08)
         mime = "image/png"
     else:
         import matplotlib
