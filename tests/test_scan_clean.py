@@ -165,3 +165,12 @@ def test_scan_vertex_index_and_colours_follow(sphere):
     np.testing.assert_array_equal(spec.scan_vertex_index, np.arange(1, len(v) + 1))
     np.testing.assert_array_equal(spec.colors, colors)
     assert spec.cleaning["unreferenced_vertices_removed"] == 1
+
+
+def test_progress_is_reported(sphere):
+    # the progress convention of DEVELOPERS.md: progress(description, done, total)
+    v, f = sphere
+    calls = []
+    prepare(_scan(v, f), up=[0, 0, 1], progress=lambda d, done, total: calls.append((d, done, total)))
+    assert calls and all(isinstance(d, str) and 0 <= done <= total for d, done, total in calls)
+    assert any(d.startswith("cleaning") for d, _, _ in calls) and any(d == "orienting" for d, _, _ in calls)
