@@ -95,6 +95,7 @@ def render_views(triangles, face_band, north_known=True, views=VIEWS, figsize=(1
     """
     from matplotlib.figure import Figure
     from matplotlib.patches import Patch
+    from matplotlib.ticker import MaxNLocator
     from mpl_toolkits.mplot3d.art3d import Poly3DCollection
 
     fig = Figure(figsize=figsize, dpi=dpi, layout="constrained")
@@ -120,6 +121,8 @@ def render_views(triangles, face_band, north_known=True, views=VIEWS, figsize=(1
         ax.set_ylabel(ylab, fontsize=7, labelpad=-2)
         ax.set_zlabel("z (up), mm", fontsize=7, labelpad=-2)
         ax.tick_params(labelsize=6, pad=0)
+        for axis_ in (ax.xaxis, ax.yaxis):
+            axis_.set_major_locator(MaxNLocator(3))
         if end_on is not None:                      # seen end-on: its ticks would overlap
             getattr(ax, f"set_{end_on}ticklabels")([])
             getattr(ax, f"set_{end_on}label")("")
