@@ -49,6 +49,8 @@ def test_synthetic_random_pose_and_units(tmp_path, seed, fmt, units, base):
     assert info["size_mm"]["height"] == pytest.approx(height, rel=0.01)
     assert info["size"]["height"] * truth["mm_per_unit"] == pytest.approx(info["size_mm"]["height"], rel=1e-9)
     assert info["holes"] == (1 if base == "open" else 0)
+    # diameter: twice the model's column radius (radius_variation 8% and grooves allow a few per cent)
+    assert info["size_mm"]["diameter"] == pytest.approx(2 * params.radius_mm, rel=0.1)
     if fmt in ("ply", "stl"):
         assert info["colors"] == (fmt == "ply")  # binary PLY carries vertex colours, STL cannot
     assert not info["warnings"]

@@ -71,9 +71,13 @@ def inspect_scan(path, **prepare_kwargs) -> dict:
             "extent": (extent_mm * in_unit).tolist(),
             "height": s["height_mm"] * in_unit,
             "width": s["width_mm"] * in_unit,
-            "note": "extent along the specimen axes x (east or arbitrary), y, z (paleo-up)",
+            "diameter": s["diameter_mm"] * in_unit,
+            "note": "extent along the specimen axes x (east or arbitrary), y, z (paleo-up); width is the larger "
+                    "horizontal extent; diameter is twice the median distance of the mid-column surface from "
+                    "the column axis",
         },
-        "size_mm": {"extent": extent_mm.tolist(), "height": s["height_mm"], "width": s["width_mm"]},
+        "size_mm": {"extent": extent_mm.tolist(), "height": s["height_mm"], "width": s["width_mm"],
+                    "diameter": s["diameter_mm"]},
         "median_edge": {"value": s["median_edge_mm"] * in_unit, "unit": spec.units},
         "median_edge_mm": s["median_edge_mm"],
         "up": up,
@@ -108,8 +112,9 @@ def format_inspection(info: dict) -> str:
         f"pieces       {info['pieces']} found, {info['pieces_removed']} removed",
         f"holes        {info['holes']} boundary loops ({info['boundary_edges']} boundary edges)",
         f"units        {u} (from {info['units_source']}; {info['mm_per_unit']:g} mm per file unit)",
-        f"size         height {size['height']:.4g} {u}, width {size['width']:.4g} {u} "
-        f"(height {smm['height']:.4g} mm, width {smm['width']:.4g} mm)",
+        f"size         height {size['height']:.4g} {u}, width {size['width']:.4g} {u}, column diameter "
+        f"{size['diameter']:.4g} {u} (height {smm['height']:.4g} mm, width {smm['width']:.4g} mm, diameter "
+        f"{smm['diameter']:.4g} mm)",
         f"median edge  {info['median_edge']['value']:.4g} {u} ({info['median_edge_mm']:.4g} mm)",
         f"up (scan)    {_vec(up['scan_frame'])} from {up['source']}, confidence {up['confidence']:.2f} (0..1)",
         f"estimated up {_vec(est['scan_frame'])}, confidence {est['confidence']:.2f} (0..1), "

@@ -98,6 +98,7 @@ class UpEstimate:
     cues: dict = field(default_factory=dict)
     warnings: list = field(default_factory=list)
     ci95_deg: float = float("nan")  # 95% angular radius of the axis direction (slice-centroid scatter)
+    radius: float = float("nan")    # median distance of the middle of the surface from the axis (input units)
 
 
 def _face_geometry(vertices, faces):
@@ -234,4 +235,4 @@ def estimate_up(vertices: np.ndarray, faces: np.ndarray, boundary_edges=None, ma
         est_warn.append("cannot tell the domed top from the base with confidence (both ends look alike); "
                         "check the way-up and give it with --up X,Y,Z or in the specimen sheet")
     return UpEstimate(up=axis, confidence=confidence, axis_confidence=axis_conf, end_confidence=end_conf,
-                      cues=cues, warnings=est_warn, ci95_deg=ci95)
+                      cues=cues, warnings=est_warn, ci95_deg=ci95, radius=r_mid)

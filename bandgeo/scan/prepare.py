@@ -219,6 +219,7 @@ def prepare(scan: Scan, *, units=None, up=None, north=None, strike_dip=None, she
         "median_edge_units": clean.stats["median_edge"], "median_edge_mm": clean.stats["median_edge"] * k,
         "extent_units": (extent_file * factor).tolist(), "extent_mm": (extent_file * k).tolist(),
         "height_mm": float(zmax - zmin), "width_mm": float(max(extent_file[0], extent_file[1]) * k),
+        "diameter_mm": float(2.0 * estimate.radius * k),
         "units_source": units_source, "scale": scale_note,
         "field_up_scan": field_up.tolist(), "paleo_up_scan": paleo_up_scan.tolist(),
         "estimated_up_scan": estimate.up.tolist(), "estimated_up_confidence": estimate.confidence,
