@@ -455,9 +455,11 @@
   }
   function clampView() {
     const lo = S.span_mm[0], hi = S.span_mm[1], full = hi - lo;
-    let span = Math.min(full * 1.02, Math.max(full / 2000, view.v1 - view.v0));
-    let c = (view.v0 + view.v1) / 2; c = Math.min(hi, Math.max(lo, c));
-    view.v0 = c - span / 2; view.v1 = c + span / 2;
+    const span = Math.min(full * 1.02, Math.max(full / 2000, view.v1 - view.v0)), pad = 0.03 * span;
+    let v0 = (view.v0 + view.v1) / 2 - span / 2;
+    if (span >= full) v0 = lo - (span - full) / 2;          // everything fits: centre it
+    else v0 = Math.min(hi + pad - span, Math.max(lo - pad, v0));   // keep the specimen filling the view
+    view.v0 = v0; view.v1 = v0 + span;
   }
   function jumpFlag(dir) {
     const list = S.flagged || []; if (!list.length) return toast("The segmenter flagged no stretch.");
