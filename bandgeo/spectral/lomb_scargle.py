@@ -36,12 +36,16 @@ def fft_frequencies(n_fft: int) -> np.ndarray:
 
 def detrend(x: np.ndarray) -> np.ndarray:
     """Remove the least-squares straight line along the last axis (batched); returns a new array."""
-    x = np.asarray(x, dtype=float)
+    x = np.asarray(x)
+    dt = np.float32 if x.dtype == np.float32 else np.float64   # single precision stays single
+    x = x.astype(dt, copy=False)
     n = x.shape[-1]
-    t = np.arange(n, dtype=float) - 0.5 * (n - 1)
-    tt = float(t @ t) if n > 1 else 1.0
-    slope = (x @ t) / tt
-    return x - x.mean(axis=-1, keepdims=True) - np.asarray(slope)[..., None] * t
+    t = (np.arange(n, dtype=np.float64) - 0.5 * (n - 1)).astype(dt)
+    tt = float(t.astype(np.float64) @ t.astype(np.float64)) if n > 1 else 1.0
+    slope = (x @ t) / dt(tt)
+    out = x - x.mean(axis=-1, keepdims=True, dtype=np.float64).astype(dt)
+    out -= np.asarray(slope, dtype=dt)[..., None] * t
+    return out
 
 
 def fft_transform(x: np.ndarray, n_fft: int) -> np.ndarray:

@@ -17,6 +17,7 @@ from ..progress import report
 from .lomb_scargle import detrend, fft_frequencies, fft_power, fft_transform, parabolic_peak, \
     refine_frequency
 from .rednoise import fit_ar1_spectrum, simulate_ar1
+from .significance import LARGE_N
 
 #: Samples (replicates x bands) per block of the Monte Carlo.
 BLOCK_SAMPLES = 2_000_000
@@ -64,7 +65,9 @@ def estimate_in_window(x: np.ndarray, P: np.ndarray, frequency: np.ndarray, n_ff
     inside = (frequency[None, :] >= np.asarray(lo)[:, None]) & (frequency[None, :] <= np.asarray(hi)[:, None])
     k = np.argmax(np.where(inside, P, -np.inf), axis=1)
     f0 = parabolic_peak(P, k, n_fft)
-    f = refine_frequency(x, f0)
+    # Newton refinement costs O(n) per row and step; beyond LARGE_N bands the parabola on the
+    # oversampled grid is used alone (the same on data and replicates, so the interval is unaffected).
+    f = refine_frequency(x, f0) if x.shape[1] <= LARGE_N else f0
     return np.clip(f, lo, hi)
 
 
@@ -127,7 +130,12 @@ def peak_monte_carlo(x: np.ndarray, f_hat: float, other_freqs, n_fft: int, n_boo
     block = max(1, min(n_boot, BLOCK_SAMPLES // max(n, 1)))
     for start in range(0, n_boot, block):
         size = min(block, n_boot - start)
-        y = detrend(model[None, :] + simulate_ar1(rng, size, n, phi, var_e))
+        if n > LARGE_N:     # single precision halves the cost; ample for a periodogram peak
+            y = simulate_ar1(rng, size, n, phi, var_e, dtype=np.float32)
+            y += model.astype(np.float32)[None, :]
+            y = detrend(y)
+        else:
+            y = detrend(model[None, :] + simulate_ar1(rng, size, n, phi, var_e))
         X = fft_transform(y, n_fft)
         P = fft_power(y, n_fft, spectrum=X)
         fs = estimate_in_window(y, P, freq, n_fft, np.full(size, lo), np.full(size, hi))

@@ -100,7 +100,7 @@ def fit_ar1_spectrum(power: np.ndarray, frequency: np.ndarray, n: int):
     return phi, np.exp(log_var)
 
 
-def simulate_ar1(rng: np.random.Generator, size: int, n: int, phi, var_e) -> np.ndarray:
+def simulate_ar1(rng: np.random.Generator, size: int, n: int, phi, var_e, dtype=np.float64) -> np.ndarray:
     """``size`` stationary Gaussian AR(1) series of length ``n`` (rows), started in equilibrium.
 
     Parameters
@@ -109,6 +109,8 @@ def simulate_ar1(rng: np.random.Generator, size: int, n: int, phi, var_e) -> np.
     size, n : int
     phi, var_e : float
         Lag-1 coefficient (|phi| < 1) and innovation variance.
+    dtype : numpy float type, default=float64
+        float32 halves the cost for long series.
 
     Returns
     -------
@@ -116,7 +118,13 @@ def simulate_ar1(rng: np.random.Generator, size: int, n: int, phi, var_e) -> np.
     """
     phi = float(phi)
     sd = float(np.sqrt(max(var_e, 0.0)))
-    innov = rng.standard_normal((size, n)) * sd
+    if dtype == np.float32:
+        innov = rng.standard_normal((size, n), dtype=np.float32)
+        innov *= np.float32(sd)
+    else:
+        innov = rng.standard_normal((size, n)) * sd
     first = rng.standard_normal(size) * sd / np.sqrt(max(1.0 - phi * phi, 1e-12))
     innov[:, 0] = first
+    if dtype == np.float32:
+        return lfilter(np.array([1.0], np.float32), np.array([1.0, -phi], np.float32), innov, axis=1)
     return lfilter([1.0], [1.0, -phi], innov, axis=1)

@@ -19,7 +19,8 @@ import numpy as np
 from .lomb_scargle import detrend, fft_frequencies, fft_power, n_fft_for
 from .peaks import estimate_in_window, find_peaks, fit_sinusoids, local_window
 from .rednoise import ar1_spectrum, fit_ar1_spectrum
-from .significance import band_mask, levels, max_ratio_null, mc_p_value
+from .significance import LARGE_N, band_mask, levels, max_ratio_null, max_ratio_null_asymptotic, \
+    mc_p_value
 
 #: Most peaks reported per series.
 MAX_PEAKS = 8
@@ -42,13 +43,33 @@ def search_series(values: np.ndarray, band: tuple[float, float], n_sim: int, rng
     n_fft = n_fft_for(n)
     fr = fft_frequencies(n_fft)
     P = fft_power(x, n_fft)
-    phi, ve = fit_ar1_spectrum(P, fr, n)
+    large = n > LARGE_N
+    if large:   # fit on the Fourier grid, as the asymptotic null does
+        phi, ve = fit_ar1_spectrum(fft_power(x, n), np.arange(n // 2 + 1) / n, n)
+    else:
+        phi, ve = fit_ar1_spectrum(P, fr, n)
     phi, ve = float(phi[0]), float(ve[0])
     S = ar1_spectrum(fr, phi, ve)
     mask = band_mask(fr, band[0], band[1])
-    null = max_ratio_null(n, phi, ve, mask, n_fft, n_sim, rng, progress, f"{label}: red-noise Monte Carlo")
+    label = f"{label}: red-noise Monte Carlo"
+    if large:
+        # The statistic lives on the Fourier grid k/n, where the asymptotic null holds.
+        null = max_ratio_null_asymptotic(n, phi, ve, band[0], band[1], n_sim, rng, progress, label)
+    else:
+        null = max_ratio_null(n, phi, ve, mask, n_fft, n_sim, rng, progress, label)
     lev = levels(null)
-    ratio = P / S
+
+    def score(power_fine, series):
+        """Test statistic at each fine-grid point: the ratio itself, or (large series) the larger
+        ratio of the two Fourier frequencies around it."""
+        if not large:
+            return power_fine / S
+        fF = np.arange(n // 2 + 1) / n
+        RF = fft_power(series, n) / ar1_spectrum(fF, phi, ve)
+        k = np.minimum(np.floor(fr * n).astype(int), n // 2)
+        return np.maximum(RF[k], RF[np.minimum(k + 1, n // 2)])
+
+    ratio = score(P, x)
     i_max = int(np.flatnonzero(mask)[np.argmax(ratio[mask])])
     found: list[dict] = []
     resid = x
@@ -56,15 +77,16 @@ def search_series(values: np.ndarray, band: tuple[float, float], n_sim: int, rng
     for _ in range(MAX_PEAKS):
         Pr = P if resid is x else fft_power(resid, n_fft)
         Rr = Pr / S
-        cand = find_peaks(Rr, fr, allowed, lev[0.95], n)
+        Sc = ratio if resid is x else score(Pr, resid)
+        cand = find_peaks(Rr, fr, allowed & (Sc > lev[0.95]), lev[0.95] if not large else 0.0, n)
         if cand.size == 0:
             break
         i = int(cand[0])
         lo, hi = local_window(fr[i], n)
         f_hat = float(estimate_in_window(resid[None, :], Pr[None, :], fr, n_fft,
                                          np.array([lo]), np.array([hi]))[0])
-        found.append({"frequency": f_hat, "grid_index": i, "ratio": float(Rr[i]),
-                      "p_value": mc_p_value(float(Rr[i]), null)})
+        found.append({"frequency": f_hat, "grid_index": i, "ratio": float(Sc[i]),
+                      "p_value": mc_p_value(float(Sc[i]), null)})
         allowed &= np.abs(fr - f_hat) > 3.0 / n
         model, amp = fit_sinusoids(x, [p["frequency"] for p in found])
         for p, a in zip(found, amp):
