@@ -312,3 +312,32 @@ def test_a_review_that_does_not_fit_is_a_one_line_error(tmp_path):
     with pytest.raises(ReviewError, match="does not fit the segmentation") as info:
         serve(folder, open_browser=False, segmentation=seg)
     assert "no boundary 77" in str(info.value) and "move the file aside" in str(info.value)
+
+
+def test_saves_and_edits_hammered_over_http_leave_a_consistent_file(served):
+    server, folder, rec, _ = served
+    errors = []
+
+    def worker(k):
+        try:
+            for i in range(5):
+                status, _, _ = request(server, "POST", "/api/edit",
+                                       {"edit": {"op": "note", "text": f"worker {k} note {i}"}})
+                assert status == 200
+                status, _, _ = request(server, "POST", "/api/save", {})
+                assert status == 200
+        except Exception as exc:  # pragma: no cover - reported below
+            errors.append(exc)
+
+    threads = [threading.Thread(target=worker, args=(k,)) for k in range(6)]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join()
+    server.app.wait(60)
+    assert not errors
+    review = read_review(folder)
+    assert len(review["edits"]) == 30 and len(review["history"]) == 30
+    assert all(a["edits_after"] == b["edits_before"] for a, b in zip(review["history"], review["history"][1:]))
+    # one re-run at a time: saves during a run ask for one more, they do not start a second worker
+    assert 1 <= rec.calls <= 30
