@@ -9,7 +9,8 @@ from ..progress import report
 from . import cluster, repair, resolution
 from .axis import fit_centreline
 from .model import Boundary, Segmentation, assign_bands, plane_height
-from .rings import COVERAGE_BINS, SortedWall, fit_ring, groove_profile, periodic_contrast, profile_peaks
+from .rings import (COVERAGE_BINS, SortedWall, fit_ring, groove_profile, periodic_contrast, profile_peaks,
+                    relief_profile)
 
 #: Side-wall vertices used to fit the centreline on large scans.
 AXIS_SUBSAMPLE = 400_000
@@ -175,9 +176,6 @@ class BandSegmenter:
 
         # --- tracing
         report(progress, "segment: tracing rings", 2, 5)
-        h_mid = features.mean[wall_idx, mid]
-        excess = np.maximum(np.median(h_mid) - h_mid, 0.0)
-        weight = p_groove * excess
         per_ring = len(wall_idx) * samp / max(float(sw.max() - sw.min()), 1e-9)
         bins = int(np.clip(round(per_ring), 8, COVERAGE_BINS))
         rings: list[dict] = []
@@ -190,16 +188,20 @@ class BandSegmenter:
             refuse = ("no periodic relief stands out of the noise along the axis "
                       f"(spectral peak/noise {features.info.get('peak_to_noise', 0):.1f})")
         if refuse is None:
-            bin_mm = min(samp / 2.0, spacing / 8.0)
-            centres, prof, counts = groove_profile(sw, p_groove, bin_mm, sigma_mm=max(samp / 2.0, spacing / 16.0))
+            bin_mm = min(samp / 4.0, spacing / 8.0)
+            centres, prof, counts, share = relief_profile(sw, np.linalg.norm(rw, axis=1), p_groove, bin_mm,
+                                                          sigma_mm=samp / 2.0, detrend_mm=2.0 * spacing)
             heights, prom, weak = profile_peaks(centres, prof, counts, spacing)
             loc = repair.local_spacing(heights, spacing)
-            sorted_wall = SortedWall(vw, sw, angle, weight, p_groove)
-            radius = float(np.median(np.linalg.norm(rw, axis=1)))
+            r_wall = np.linalg.norm(rw, axis=1)
+            p_mean = max(float(p_groove.mean()), 1e-12)
+            sorted_wall = SortedWall(vw, sw, angle, r_wall, p_groove)
+            radius = float(np.median(r_wall))
             for h0, pr, ls in zip(heights, prom, loc):
-                ring = fit_ring(sorted_wall, axis, h0, 0.4 * ls, radius, bins)
+                ring = fit_ring(sorted_wall, axis, h0, 0.5 * ls, radius, bins)
                 if ring is not None:
-                    ring.update(prominence=float(pr), seed_mm=float(h0), flags=[])
+                    ring.update(prominence=float(pr), seed_mm=float(h0), flags=[],
+                                class_support=min(1.0, ring["groove_share"] / p_mean))
                     ring["height"] = plane_height(ring["center"], ring["normal"], axis, s0=h0)
                     rings.append(ring)
 
@@ -209,10 +211,11 @@ class BandSegmenter:
                     return None
                 j = np.flatnonzero(inside)[np.argmax(weak["prominence"][inside])]
                 h0 = float(weak["heights_mm"][j])
-                r = fit_ring(sorted_wall, axis, h0, 0.4 * (hi - lo), radius, bins)
+                r = fit_ring(sorted_wall, axis, h0, 0.5 * (hi - lo), radius, bins)
                 if r is None:
                     return None
-                r.update(prominence=float(weak["prominence"][j]), seed_mm=h0, flags=[])
+                r.update(prominence=float(weak["prominence"][j]), seed_mm=h0, flags=[],
+                         class_support=min(1.0, r["groove_share"] / p_mean))
                 r["height"] = plane_height(r["center"], r["normal"], axis, s0=h0)
                 return r
 

@@ -15,7 +15,9 @@ R4 ``gap filled``: where two neighbouring rings are more than ``GAP_FRACTION`` t
    confidence) if it passes R2 and R3, otherwise the gap is flagged as a possibly missed boundary.
 
 Confidence (0..1) = coverage^(1/2) * min(1, prominence / reference prominence)
-* exp(-(rms / (0.25 * local spacing))^2), times 0.7 for a gap-filled ring.
+* exp(-(rms / (0.25 * local spacing))^2) * class_support^(1/2), times 0.7 for a gap-filled ring.
+``class_support`` is the groove-class probability of the ring's groove vertices relative to the wall's
+mean (capped at 1): a ring where the curvature clustering saw no groove is kept but trusted less.
 """
 from __future__ import annotations
 
@@ -45,7 +47,8 @@ def confidence(ring: dict, ref_prominence: float, spacing: float) -> float:
     cov = float(np.clip(ring["coverage"], 0.0, 1.0)) ** 0.5
     prom = min(1.0, ring.get("prominence", 0.0) / max(ref_prominence, 1e-12))
     fit = float(np.exp(-(ring["rms_mm"] / (0.25 * spacing)) ** 2)) if np.isfinite(ring["rms_mm"]) else 0.5
-    c = cov * prom * fit * (0.7 if "gap filled" in ring["flags"] else 1.0)
+    support = float(np.clip(ring.get("class_support", 1.0), 0.0, 1.0)) ** 0.5
+    c = cov * prom * fit * support * (0.7 if "gap filled" in ring["flags"] else 1.0)
     return float(np.clip(c, 0.0, 1.0))
 
 

@@ -44,6 +44,31 @@ def groove_profile(s: np.ndarray, score: np.ndarray, bin_mm: float, sigma_mm: fl
     return s0 + (np.arange(nb) + 0.5) * bin_mm, prof, cc
 
 
+def relief_profile(s: np.ndarray, radius: np.ndarray, p_groove: np.ndarray, bin_mm: float, sigma_mm: float,
+                   detrend_mm: float):
+    """Groove evidence along the axis: the ring-averaged relief deficit, and the groove-class share.
+
+    Around each ring the radius of the side wall is averaged (noise falls with the square root of the
+    vertices in a ring, and an off-centre axis cancels to first order); the column's slow changes of
+    radius are removed with a Gaussian of ``detrend_mm``. Grooves are the minima of this relief. Its
+    peaks locate the rings (the per-vertex groove class is blurred where bands are only two or three
+    samples thick); the ring-averaged groove-class probability (second output) confirms each one.
+
+    Returns
+    -------
+    centres_mm, evidence (0..1 scaled by its 1-99 % range), counts, groove_share : (q,) float
+    """
+    c, r_mean, cnt = groove_profile(s, radius, bin_mm, sigma_mm)
+    _, p_mean, _ = groove_profile(s, p_groove, bin_mm, sigma_mm)
+    trend = gaussian_filter1d(r_mean, max(detrend_mm / bin_mm, 1.0), mode="nearest")
+    deficit = trend - r_mean
+    pm = p_mean / max(float(np.mean(p_mean[cnt > 0])) if np.any(cnt > 0) else 1.0, 1e-12)
+    ev = deficit
+    lo, hi = np.percentile(ev[cnt > 0], [1, 99]) if np.any(cnt > 0) else (0.0, 1.0)
+    ev = (ev - lo) / max(hi - lo, 1e-12)
+    return c, ev, cnt, pm
+
+
 def periodic_contrast(profile: np.ndarray, bin_mm: float, spacing_mm: float) -> float:
     """Share of the profile's variance at the band frequency (0.7-1.4 / spacing) and its 2nd harmonic."""
     x = profile - profile.mean()
@@ -94,13 +119,32 @@ def profile_peaks(centres: np.ndarray, profile: np.ndarray, counts: np.ndarray, 
 class SortedWall:
     """Side-wall vertices sorted by arc length, so that each ring reads a contiguous window."""
 
-    def __init__(self, v, s, angle, weight, p_groove):
+    def __init__(self, v, s, angle, radius, p_groove):
         order = np.argsort(s, kind="stable")
         self.v, self.s, self.angle = v[order], s[order], angle[order]
-        self.weight, self.p = weight[order], p_groove[order]
+        self.r, self.p = radius[order], p_groove[order]
 
     def window(self, lo, hi) -> slice:
         return slice(int(np.searchsorted(self.s, lo)), int(np.searchsorted(self.s, hi, side="right")))
+
+
+def _groove_weights(u, r, ang, halfwin, bins):
+    """Per-vertex groove weight and traced coverage in a window of along-axis offsets ``u``.
+
+    In each angular bin the mean radius over the window is the local wall; a vertex's deficit below it,
+    tapered by a Gaussian in ``u`` (sigma half the window), is its weight. A bin is traced when the
+    vertices near the ring (|u| < 0.4 window) lie below the local wall on average.
+    """
+    b = np.minimum(((ang + np.pi) / (2 * np.pi) * bins).astype(np.int64), bins - 1)
+    n_b = np.bincount(b, minlength=bins)
+    wall_r = np.bincount(b, r, minlength=bins) / np.maximum(n_b, 1)
+    deficit = wall_r[b] - r
+    near = np.abs(u) < 0.4 * halfwin
+    dn = np.bincount(b[near], deficit[near], minlength=bins)
+    nn = np.bincount(b[near], minlength=bins)
+    traced = (nn > 0) & (dn > 0)
+    w = np.maximum(deficit, 0.0) * np.exp(-0.5 * (u / (0.5 * halfwin)) ** 2)
+    return w, float(traced.mean())
 
 
 def fit_ring(wall: SortedWall, axis, h0, halfwin_mm, radius_mm, bins=COVERAGE_BINS):
@@ -109,13 +153,13 @@ def fit_ring(wall: SortedWall, axis, h0, halfwin_mm, radius_mm, bins=COVERAGE_BI
     Parameters
     ----------
     wall : SortedWall
-        Side-wall vertices (mm) with their arc lengths, angles around the axis (rad), groove weights
-        (>= 0) and groove-class probabilities.
+        Side-wall vertices (mm) with their arc lengths, angles around the axis (rad), distances from
+        the axis (mm) and groove-class probabilities.
     axis : Centreline
     h0 : float
         Seed height, mm.
     halfwin_mm : float
-        Half-width of the window around the seed (a fraction of the local spacing).
+        Half-width of the window around the seed (half the local spacing).
     radius_mm : float
         Column radius: a ring tilted by up to MAX_NORMAL_ANGLE_DEG spans this times its tangent in s.
     bins : int
@@ -123,23 +167,25 @@ def fit_ring(wall: SortedWall, axis, h0, halfwin_mm, radius_mm, bins=COVERAGE_BI
 
     Returns
     -------
-    dict with ``center``, ``normal``, ``rms_mm``, ``coverage``, ``n``, ``normal_from`` or None when
-    the window holds no groove weight.
+    dict with ``center``, ``normal``, ``rms_mm``, ``coverage``, ``groove_share``, ``n``,
+    ``normal_from``; None when the window holds no groove.
     """
     sl = wall.window(h0 - halfwin_mm, h0 + halfwin_mm)
-    if sl.stop <= sl.start:
+    if sl.stop - sl.start < 3:
         return None
     _, t_axis = axis.at(h0)
     normal, center, normal_from = t_axis, None, "axis"
     for it in range(2):
-        v, w, ang, pg = wall.v[sl], wall.weight[sl], wall.angle[sl], wall.p[sl]
-        if it == 1:
-            keep = np.abs((v - center) @ normal) < halfwin_mm
-            v, w, ang, pg = v[keep], w[keep], ang[keep], pg[keep]
-        if w.sum() <= 0 or len(v) == 0:
+        v, ang, r, pg = wall.v[sl], wall.angle[sl], wall.r[sl], wall.p[sl]
+        u = wall.s[sl] - h0 if it == 0 else (v - center) @ normal
+        keep = np.abs(u) < halfwin_mm
+        v, ang, r, pg, u = v[keep], ang[keep], r[keep], pg[keep], u[keep]
+        if len(v) < 3:
+            return None
+        w, cover = _groove_weights(u, r, ang, halfwin_mm, bins)
+        if w.sum() <= 0:
             return None
         c = (w[:, None] * v).sum(axis=0) / w.sum()
-        cover = _coverage(ang, pg * (w > 0), bins)
         if it == 0:
             if cover >= 0.5 and len(v) >= 12:
                 d = v - c
@@ -154,9 +200,12 @@ def fit_ring(wall: SortedWall, axis, h0, halfwin_mm, radius_mm, bins=COVERAGE_BI
                 normal, normal_from = t_axis, "axis (ring too short for a plane fit)"
             center = c
             # re-select by distance to the fitted plane: follows rings tilted against the axis
-            tilt = np.sqrt(max(1.0 - float(np.dot(normal, t_axis)) ** 2, 0.0)) / max(float(np.dot(normal, t_axis)), 1e-6)
-            reach = halfwin_mm + radius_mm * tilt
+            cos_t = max(float(np.dot(normal, t_axis)), 1e-6)
+            reach = halfwin_mm + radius_mm * np.sqrt(max(1.0 - cos_t ** 2, 0.0)) / cos_t
             sl = wall.window(h0 - reach, h0 + reach)
+        else:
+            # the plane stays as fitted; its offset moves to the weighted groove centre
+            center = c
     d = (v - center) @ normal
     rms = float(np.sqrt(np.sum(w * d * d) / w.sum()))
     # ring centre: circle fit in the plane (robust to holes), moved into the plane
@@ -170,7 +219,8 @@ def fit_ring(wall: SortedWall, axis, h0, halfwin_mm, radius_mm, bins=COVERAGE_BI
                                    rel[strong] @ e2, 1)
         if np.isfinite(cx[0]):
             center = center + cx[0] * e1 + cy[0] * e2
-    return {"center": center, "normal": normal, "rms_mm": rms, "coverage": _coverage(ang, pg * (w > 0), bins),
+    share = float(np.sum(w * pg) / w.sum())
+    return {"center": center, "normal": normal, "rms_mm": rms, "coverage": cover, "groove_share": share,
             "n": int(len(v)), "normal_from": normal_from}
 
 
