@@ -154,6 +154,10 @@ def report_context(state: Any, figures: list[dict]) -> dict:
             headline["lod_ci95"] = model.fmt_ci(lod.get("ci95"), "h")
     searched = dpy.get("searched_band_bands_per_cycle")
     blocks = []
+    resolution = {k: v for k, v in ((result.get("bands") or {}).get("resolution") or {}).items()
+                  if k != "flagged"}
+    if resolution:
+        blocks.append({"title": "Can the scan resolve the bands?", "rows": model.flatten(resolution)})
     for key, title in (("daily_test", "Are the bands daily?"), ("tidal", "Tidal cycles"),
                        ("hiatus", "Hiatus evidence")):
         if result.get(key):
@@ -161,6 +165,9 @@ def report_context(state: Any, figures: list[dict]) -> dict:
     if sig:
         if dpy.get("consistency"):
             blocks.append({"title": "Agreement between methods", "rows": model.flatten(dpy["consistency"])})
+        if result.get("synodic_months_per_year"):
+            blocks.append({"title": "Synodic months per year",
+                           "rows": model.flatten(result["synodic_months_per_year"])})
         if result.get("earth_moon_distance"):
             blocks.append({"title": "Earth–Moon distance", "rows": model.flatten(result["earth_moon_distance"])})
     age = sp.get("age_ma")

@@ -127,8 +127,8 @@ def render_views(triangles, face_band, north_known=True, views=VIEWS, figsize=(1
             getattr(ax, f"set_{end_on}ticklabels")([])
             getattr(ax, f"set_{end_on}label")("")
         ax.set_title(title, fontsize=9)
-    handles = [Patch(color=tuple(c / 255.0), label=f"band {i} + 7k") for i, c in
+    handles = [Patch(color=tuple(c / 255.0), label=f"bands {i}, {i + 7}, {i + 14}, ...") for i, c in
                enumerate(band_colors(np.arange(7)))]
     handles.append(Patch(color=tuple(UNASSIGNED_RGB / 255.0), label="outside the banded stretch"))
-    fig.legend(handles=handles, loc="outside lower center", ncol=8, fontsize=7, frameon=False)
+    fig.legend(handles=handles, loc="outside lower center", ncol=4, fontsize=7, frameon=False)
     return fig
