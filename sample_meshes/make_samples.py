@@ -36,8 +36,8 @@ SAMPLES = [
                        sway_amplitude_deg=2.5, sway_azimuth_deg=25.0, mean_tilt_deg=1.5,
                        mean_tilt_azimuth_deg=110.0, radius_mm=2.0, radius_variation=0.06,
                        dome_height_mm=0.8, groove_depth_mm=0.07, groove_width_fraction=0.4,
-                       scanner_noise_mm=0.006, rings_per_lamina=3.0, holes=1, pose="random",
-                       units="mm", sampling="isotropic", seed=707),
+                       scanner_noise_mm=0.006, rings_per_lamina=4.5, ring_vertices=40, holes=1,
+                       pose="random", units="mm", sampling="isotropic", seed=707),
     },
     {
         "file": "KRB-12_null.ply", "sheet": "KRB-12.sheet.toml", "specimen_id": "KRB-12",
@@ -47,8 +47,8 @@ SAMPLES = [
                        noise_cv=0.25, ar1_phi=0.7, sway_amplitude_deg=0.0, mean_tilt_deg=1.5,
                        mean_tilt_azimuth_deg=200.0, radius_mm=1.8, radius_variation=0.06,
                        dome_height_mm=0.7, groove_depth_mm=0.07, groove_width_fraction=0.4,
-                       scanner_noise_mm=0.006, rings_per_lamina=3.0, pose="random", units="mm",
-                       sampling="isotropic", seed=1212),
+                       scanner_noise_mm=0.006, rings_per_lamina=4.5, ring_vertices=36, pose="random",
+                       units="mm", sampling="isotropic", seed=1212),
     },
     {
         "file": "KRB-31_anisotropic.ply", "sheet": "KRB-31.sheet.toml", "specimen_id": "KRB-31",

@@ -140,6 +140,16 @@ def test_bad_parameters_give_one_line_errors(kw, word):
     assert word in message and "\n" not in message and "but got" in message or "give" in message
 
 
+def test_oversized_mesh_is_refused_before_any_work():
+    p = SynthParams(years=50, radius_mm=40.0)
+    assert p.estimated_faces > 80_000_000
+    with pytest.raises(ParameterError, match="faces"):
+        simulate(p)
+    # The estimate is close to what is built (analytic ring count; caps add a little).
+    small = SynthParams(**SMALL)
+    assert simulate(small).n_faces == pytest.approx(small.estimated_faces, rel=0.1)
+
+
 def test_unknown_extension_is_refused(tmp_path):
     spec = simulate(SynthParams(**SMALL))
     with pytest.raises(ParameterError, match="ply"):

@@ -79,3 +79,13 @@ def test_annual_sample_has_a_cycle_and_null_sample_has_none():
     assert _annual_amplitude(_truth("KRB-12_null")) < 0.05
     null = _truth("KRB-12_null")
     assert null["params"]["sway_amplitude_deg"] == 0 and np.ptp(null["laminae"]["sway_deg"]) == 0
+
+
+@pytest.mark.parametrize("stem", sorted(STEMS))
+def test_sample_grooves_match_its_truth(stem):
+    """Grooves counted on the re-read sample (see test_synth_truth.py) per mm = 1 / mean thickness, 5%."""
+    from test_synth_truth import count_grooves
+
+    truth = _truth(stem)
+    found, length, _, _, _ = count_grooves(SAMPLES / f"{stem}.ply", truth)
+    assert found / length == pytest.approx(1.0 / np.mean(truth["laminae"]["thickness_mm"]), rel=0.05)

@@ -195,6 +195,19 @@ class SynthParams:
         """Laminae a year laid down before any loss: days_per_year * laminae_per_day."""
         return float(self.days_per_year * self.laminae_per_day)
 
+    @property
+    def estimated_faces(self) -> int:
+        """Approximate number of mesh faces (side wall; caps add a few per cent)."""
+        n_rings = self.n_nominal * self.rings_per_lamina
+        if self.ring_vertices is not None:
+            around = self.ring_vertices
+        elif self.sampling == "anisotropic":
+            around = 24
+        else:
+            edge = self.mean_thickness_mm / self.rings_per_lamina * 2.0 / math.sqrt(3.0)
+            around = max(8.0, 2.0 * math.pi * self.radius_mm / edge)
+        return int(2 * n_rings * around)
+
     def to_dict(self) -> dict:
         """All parameters as a plain dict (JSON-ready)."""
         return dataclasses.asdict(self)

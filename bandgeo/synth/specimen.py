@@ -12,6 +12,9 @@ from .geometry import ColumnMesh, build_column, tangent_at
 from .laminae import LaminaRecord, simulate_laminae
 from .params import SynthParams
 
+#: Largest mesh simulate() will build (about 8 GB of working memory on this kind of machine).
+MAX_FACES = 80_000_000
+
 #: Carbonate tan of a light lamina, RGB.
 BASE_RGB = np.array([200.0, 182.0, 152.0])
 
@@ -110,6 +113,11 @@ def simulate(params: SynthParams, progress=None) -> SynthSpecimen:
     if not isinstance(params, SynthParams):
         from ..errors import ParameterError
         raise ParameterError(f"expected SynthParams but got {type(params).__name__}")
+    if params.estimated_faces > MAX_FACES:
+        from ..errors import ParameterError
+        raise ParameterError(f"the mesh would have about {params.estimated_faces:,} faces, more than "
+                             f"{MAX_FACES:,}; lower years, radius_mm or rings_per_lamina, or raise "
+                             f"mean_thickness_mm")
     report(progress, "simulating laminae", 0, 4)
     record = simulate_laminae(params)
     gens = _streams(params.seed)
