@@ -170,3 +170,31 @@ def test_f_test_finds_the_line_nitime_finds_and_is_calibrated_on_noise():
     assert np.min(np.abs(np.asarray(lines[0]) / (2 * np.pi) - f0)) < 1.0 / n or \
         np.min(np.abs(np.asarray(lines[0]) - f0)) < 1.0 / n
     assert abs(mt["line_amplitude"][i] - 0.5) < 0.1
+
+
+def test_asymptotic_null_matches_simulated_series_on_the_fourier_grid():
+    # Brockwell & Davis (1991) Thm 10.3.2: periodogram ordinates of a linear process at the Fourier
+    # frequencies are asymptotically independent exponentials about the spectrum. The large-series null
+    # must therefore give the same maximum-ratio quantiles as simulating and transforming each series.
+    from bandgeo.spectral.significance import max_ratio_null_asymptotic
+
+    n = 4096
+    fr = np.arange(n // 2 + 1) / n
+    mask = band_mask(fr, 3.0 / n, 0.25)
+    sim = max_ratio_null(n, 0.6, 1.0, mask, n, 400, np.random.default_rng(10))
+    asym = max_ratio_null_asymptotic(n, 0.6, 1.0, 3.0 / n, 0.25, 400, np.random.default_rng(11))
+    for q in (0.5, 0.95):
+        assert abs(np.quantile(asym, q) / np.quantile(sim, q) - 1) < 0.08, q
+
+
+def test_large_series_path_recovers_a_known_period():
+    # Analytic sinusoid (period 365.25 bands) in scipy AR(1) noise, 30,000 bands: above LARGE_N.
+    from bandgeo.series import series_from_thickness
+    from bandgeo.spectral import test_periodicity as run_periodicity
+
+    rng = np.random.default_rng(12)
+    n = 30_000
+    h = 1.0 + 0.02 * np.cos(2 * np.pi * np.arange(n) / 365.25) + 0.05 * ar1(rng, n, 0.5)
+    d = run_periodicity(series_from_thickness(h), n_sim=199, methods=("spectrum", "cycle_count")).days_per_year
+    assert d["significant"]
+    assert d["ci95"][0] <= 365.25 <= d["ci95"][1]
