@@ -65,6 +65,17 @@ def test_degenerate_duplicate_and_unreferenced(sphere):
     assert trimesh.Trimesh(res.vertices, res.faces, process=False).is_watertight
 
 
+@pytest.mark.parametrize("which", [0, 17, 400, 1279])
+def test_repeated_face_inside_closed_mesh(sphere, which):
+    # a copy of one face of a closed surface: its edges become non-manifold; whichever face heads the
+    # sorted run, the copy is found (trimesh: the result is watertight again)
+    v, f = sphere
+    g = np.vstack([f, f[which][[2, 0, 1]]])
+    res = clean_mesh(v, g)
+    assert res.counts["duplicate_faces_removed"] == 1 and res.stats["non_manifold_edges"] == 0
+    assert trimesh.Trimesh(res.vertices, res.faces, process=False).is_watertight
+
+
 def test_pieces_keep_largest(sphere):
     v, f = sphere
     small = trimesh.creation.icosphere(subdivisions=1, radius=2.0)

@@ -237,30 +237,32 @@ def clean_mesh(vertices: np.ndarray, faces: np.ndarray, progress=None) -> CleanR
     if len(f) == 0:
         raise InputError("no usable faces are left after removing degenerate ones (all have zero area or repeat "
                          "a vertex); the mesh is broken, re-export the scan")
-    # 3. edges (one packed sort), and repeated faces, which always share an edge
+    # 3. edges (one packed sort), and repeated faces. Two faces with the same three vertices share all
+    # three edges, so each of those edges is non-manifold unless the pair touches nothing else (an
+    # isolated two-face piece, which the piece step removes): only non-manifold runs need a look.
     report(progress, "cleaning: edges", 2, 6)
     counts["duplicate_faces_removed"] = 0
     while True:
         m = len(f)
         edges = _edge_runs(f, n)
-        fsum = f[:, 0] + f[:, 1] + f[:, 2]
-        multi = np.flatnonzero(edges.runlen == 2)
-        fh, fm = edges.order[edges.starts[multi]] // 3, edges.order[edges.starts[multi] + 1] // 3
         nm = np.flatnonzero(edges.runlen > 2)
-        if len(nm):
-            head, member = _run_members(edges, nm)
-            fh = np.concatenate([fh, edges.order[head] // 3])
-            fm = np.concatenate([fm, edges.order[member] // 3])
+        if not len(nm):
+            break
+        _, member = _run_members(edges, nm)
+        run_id = np.repeat(np.arange(len(nm)), edges.runlen[nm])
+        face = (edges.order[member] // 3).astype(np.int64)
         # two faces sharing an edge have the same three vertices exactly when their index sums agree
-        same = (fh != fm) & (fsum[fh] == fsum[fm])
+        fsum = f[face, 0] + f[face, 1] + f[face, 2]
+        srt = np.lexsort((face, fsum, run_id))
+        run_id, fsum, face = run_id[srt], fsum[srt], face[srt]
+        same = (run_id[1:] == run_id[:-1]) & (fsum[1:] == fsum[:-1]) & (face[1:] != face[:-1])
         if not same.any():
             break
         dup = np.zeros(m, dtype=bool)
-        dup[np.maximum(fh[same], fm[same])] = True
+        dup[face[1:][same]] = True  # the later of each equal pair (faces sorted ascending within ties)
         counts["duplicate_faces_removed"] += int(np.count_nonzero(dup))
         keep = ~dup
         f, area2, vol = f[keep], area2[keep], vol[keep]
-    del fsum, fh, fm, same
     referenced = np.zeros(n, dtype=bool)
     referenced[f.ravel()] = True
     counts["unreferenced_vertices_removed"] = int(n - np.count_nonzero(referenced | merged) - n_bad)
