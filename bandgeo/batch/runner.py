@@ -168,8 +168,8 @@ def run_batch(jobs: Sequence[SpecimenJob], out_dir, *, workers: Optional[int] = 
         The per-specimen function, default ``bandgeo.pipeline.analyze``; must be picklable (a
         module-level function) for process or cluster runs.
     threads_per_worker : int, optional
-        BLAS/OpenMP threads in each worker (default for local processes: cores // workers, at least
-        1; on a Dask cluster: 1, since each Dask worker thread runs one specimen).
+        BLAS/OpenMP threads for each specimen's analysis (default 1: the workers give the
+        parallelism, and oversubscribed BLAS threads slow everything down).
 
     Returns
     -------
@@ -191,10 +191,10 @@ def run_batch(jobs: Sequence[SpecimenJob], out_dir, *, workers: Optional[int] = 
     n_workers = int(workers) if workers else (cores if local else None)
     if scheduler == "inline":
         n_workers = 1
-    # Local workers share this machine's cores. On a cluster a worker with --nthreads k runs k
-    # specimens at once, so each specimen gets one BLAS/OpenMP thread unless told otherwise
-    # (measured: unlimited threads made segmentation 2x slower on a 2-core LocalCluster).
-    threads = threads_per_worker or (max(1, cores // n_workers) if local else 1)
+    # One BLAS/OpenMP thread per specimen unless told otherwise: parallelism comes from the workers.
+    # Measured on the 2-core machine under load (benchmarks/bench_batch.py): one local worker with 2
+    # threads ran 8x slower than with 1; unlimited threads halved a Dask LocalCluster's speed.
+    threads = threads_per_worker or 1
     out_dir.mkdir(parents=True, exist_ok=True)
     report(progress, "batch: reading inputs (SHA-256)", 0, max(len(jobs), 1))
     tasks = _make_tasks(jobs, out_dir, params, seed, _analyzer_name(analyze_fn), threads)
