@@ -9,8 +9,10 @@ from __future__ import annotations
 
 import numpy as np
 
-#: A spectral peak must stand this many times above the median spectral level to count.
-PEAK_TO_NOISE_MIN = 2.0
+#: A spectral peak must stand this many times above the local median level (within a factor 1.5 in
+#: frequency) to count. Noise-only cylinders reach at most about 1.4 (tests/test_features.py), a
+#: forward-model specimen with 0.01 mm noise on 0.026 mm grooves about 2.1.
+PEAK_TO_NOISE_MIN = 1.6
 
 #: A lower-frequency peak at least this fraction of the strongest is taken as the fundamental.
 FUNDAMENTAL_FRACTION = 0.2
@@ -117,22 +119,31 @@ def estimate_spacing_from_profile(prof: dict):
         return float("nan"), info
     k = max(3, int(round(0.05 * band.sum() / 10)) | 1)
     smooth = np.convolve(power, np.ones(k) / k, mode="same")
-    floor = float(np.median(smooth[band]))
-    if floor <= 0:
-        return float("nan"), info
+    # local floor: the median level within a factor 1.5 in frequency (the curvature spectrum of a
+    # noisy surface is coloured, so a global median would let broad noise humps pass as peaks)
     idx = np.flatnonzero(band)
-    ps = smooth[idx]
-    is_max = np.r_[False, (ps[1:-1] >= ps[:-2]) & (ps[1:-1] >= ps[2:]), False]
+    fb = freq[idx]
+    sb = smooth[idx]
+    grid = np.geomspace(fb[0], fb[-1], 200)
+    lo_i = np.searchsorted(fb, grid / 1.5)
+    hi_i = np.searchsorted(fb, grid * 1.5, side="right")
+    floor_grid = np.array([np.median(sb[a:max(b, a + 1)]) for a, b in zip(lo_i, hi_i)])
+    floor_loc = np.exp(np.interp(np.log(fb), np.log(grid), np.log(np.maximum(floor_grid, 1e-300))))
+    if not np.all(floor_loc > 0):
+        return float("nan"), info
+    ratio_all = sb / floor_loc
+    is_max = np.r_[False, (sb[1:-1] >= sb[:-2]) & (sb[1:-1] >= sb[2:]), False]
     peaks = idx[is_max]
     if len(peaks) == 0:
         return float("nan"), info
-    strongest = peaks[np.argmax(smooth[peaks])]
-    ratio = float(smooth[strongest] / floor)
+    pr = ratio_all[is_max]
+    strongest = peaks[np.argmax(pr)]
+    ratio = float(pr.max())
     info["peak_to_noise"] = ratio
     if ratio < PEAK_TO_NOISE_MIN:
         return float("nan"), info
-    cand = peaks[(smooth[peaks] >= FUNDAMENTAL_FRACTION * smooth[strongest])
-                 & (smooth[peaks] >= PEAK_TO_NOISE_MIN * floor)]
+    floor = float(np.interp(freq[strongest], fb, floor_loc))
+    cand = peaks[(smooth[peaks] >= FUNDAMENTAL_FRACTION * smooth[strongest]) & (pr >= PEAK_TO_NOISE_MIN)]
     fund = int(cand.min()) if len(cand) else int(strongest)
     # power-weighted frequency within +-25% of the fundamental peak
     sel = (freq >= 0.75 * freq[fund]) & (freq <= 1.25 * freq[fund]) & band

@@ -185,8 +185,9 @@ class BandSegmenter:
             refuse = "the curvature features form a single class (BIC): no groove class to trace"
         elif not np.isfinite(features.info.get("spacing_estimate_mm") or np.nan) and \
                 features.band_spacing_method.startswith("fallback"):
-            refuse = ("no periodic relief stands out of the noise along the axis "
-                      f"(spectral peak/noise {features.info.get('peak_to_noise', 0):.1f})")
+            refuse = (f"no periodic relief stands out of the scanner noise ({features.noise_mm:.4f} mm rms) "
+                      f"along the axis (spectral peak/noise {features.info.get('peak_to_noise', 0):.2f}); "
+                      f"the groove relief is below what this scan resolves")
         if refuse is None:
             bin_mm = min(samp / 4.0, spacing / 8.0)
             centres, prof, counts, share = relief_profile(sw, np.linalg.norm(rw, axis=1), p_groove, bin_mm,
