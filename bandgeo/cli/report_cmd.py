@@ -19,11 +19,12 @@ def report(ctx, folder, formats):
     """Rebuild report.html, report.pdf, bands.csv, spectra.csv and labelled_mesh.ply in FOLDER.
 
     FOLDER is a result folder written by 'bandgeo analyze'. The saved segmentation (with any review
-    edits) is measured and tested again with the saved parameters and seed, then the report is
-    written. The scan, result.json and the review file are not modified.
+    edits) is measured and tested again with the saved parameters and seed, then result.json and the
+    report are rewritten so that they agree. The scan and the review file are not modified.
     """
     from .. import progress
     from ..errors import InputError
+    from ..atomic import write_json
     from ..pipeline import load_state
     from ..report import write_report
 
@@ -36,5 +37,7 @@ def report(ctx, folder, formats):
     with progress.bar("writing the report") as cb:
         paths = write_report(state, folder, formats=tuple(f.lower() for f in formats) or _FORMATS,
                              progress=cb)
+    write_json(folder / "result.json", state.result)
+    echo(ctx, f"wrote {folder / 'result.json'}")
     for name, path in paths.items():
         echo(ctx, f"wrote {path}")
