@@ -123,3 +123,37 @@ def test_fixed_height_sections_blur_the_grooves_of_a_swaying_column(tmp_path):
     # At fixed height the grooves of a tilted ring smear over several laminae, and the minima no longer
     # count the laminae (off by more than 20%).
     assert abs(found_flat / length_flat * p.mean_thickness_mm - 1.0) > 0.2
+
+
+def test_colour_bands_match_the_laminae(tmp_path):
+    """Per-vertex colour read back by trimesh: one dark film per lamina, just below each boundary."""
+    p = SynthParams(days_per_year=100, years=2, radius_mm=3.0, sampling="anisotropic", ring_vertices=32,
+                    rings_per_lamina=8, annual_amplitude=0.3, sway_amplitude_deg=5.0, units="mm", seed=8)
+    written = write_specimen(simulate(p), tmp_path / "colour.ply")
+    truth = json.loads(written["truth"].read_text())
+    mesh = trimesh.load(written["mesh"], process=False)
+    m = np.array(truth["frames"]["specimen_from_file"])
+    b = truth["boundaries"]
+    h = np.array(b["heights_mm"])
+    n = np.array(b["normals_file"]) @ m[:3, :3].T
+    s, _ = lamina_coordinates(_to_specimen(np.asarray(mesh.vertices, float), m),
+                              _to_specimen(np.array(b["centres_file"]), m), n / np.linalg.norm(n, axis=1)[:, None], h)
+    rgb = np.asarray(mesh.visual.vertex_colors)[:, :3].astype(float)
+    # Rec. 601 luma weights (common practice).
+    luma = rgb @ [0.299, 0.587, 0.114]
+    wall = (s > 0.5) & (s < h[-1] - 0.5)
+    step = truth["mesh"]["ring_spacing_mm"]
+    edges = np.arange(s[wall].min(), s[wall].max(), step)
+    idx = np.digitize(s[wall], edges)
+    cnt = np.bincount(idx, minlength=edges.size + 1)[1:-1]
+    prof = np.bincount(idx, weights=luma[wall], minlength=edges.size + 1)[1:-1] / np.maximum(cnt, 1)
+    x = np.arange(prof.size)
+    prof = np.interp(x, x[cnt > 0], prof[cnt > 0])
+    dark, _ = find_peaks(-prof, prominence=20.0)
+    length = edges[-1] - edges[0]
+    thickness = np.array(truth["laminae"]["thickness_mm"])
+    assert dark.size / length == pytest.approx(1.0 / thickness.mean(), rel=0.05)
+    # The darkest point of each lamina lies in its upper part, within a quarter thickness of its top.
+    pos = edges[dark] + 0.5 * step
+    above = h[np.searchsorted(h, pos)]
+    assert np.median((above - pos) / thickness.mean()) < 0.25
