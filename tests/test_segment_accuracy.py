@@ -21,7 +21,9 @@ CASES = {
     "tilted-swaying-random-pose": dict(mean_tilt_deg=10.0, sway_amplitude_deg=5.0, pose="random", seed=11),
     "noisy-holed": dict(scanner_noise_mm=0.008, holes=2, seed=12),
     "anisotropic-cm-open": dict(sampling="anisotropic", units="cm", base="open", top="open", seed=13),
-    "flat-top-strong-annual": dict(top="flat", dome_height_mm=0.8, annual_amplitude=0.5, seed=14),
+    # half a year of strong annual modulation: the thinnest laminae are two to three samples thick
+    "flat-top-half-year-annual": dict(years=0.5, radius_mm=2.0, top="flat", dome_height_mm=0.8,
+                                      annual_amplitude=0.4, annual_phase_rad=3.1, seed=14),
 }
 
 
