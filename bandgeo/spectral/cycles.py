@@ -96,14 +96,15 @@ def count_cycles(x: np.ndarray, f0: float, n_fft: int) -> dict:
     -------
     dict
         ``mean_period_bands`` (phase slope), ``per_cycle_counts`` (bands between successive whole-cycle
-        phase crossings in the interior), ``t`` and ``phase`` (for figures), ``phase_residual_rad``
+        phase crossings, half a cycle trimmed at each end), ``t`` and ``phase`` (for figures), ``phase_residual_rad``
         (phase minus its straight line) and ``amplitude``.
     """
     n = x.size
     X = _fft.rfft(x, n=n_fft)[None, :]
     t, phase, amp = demodulate(X, np.array([f0]), n_fft, n)
     mean_period = float(phase_slope_period(t, phase, f0, n)[0])
-    sel = _interior(t, f0, n)
+    # Per-cycle counts use all but half a cycle at each end (the band-pass response is half a cycle long).
+    sel = (t >= 0.5 / f0) & (t <= n - 1 - 0.5 / f0)
     ti, ph = t[sel], phase[0, sel]
     ph_mono = np.maximum.accumulate(ph)
     k0 = np.ceil(ph_mono[0] / (2 * np.pi))
