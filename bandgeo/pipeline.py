@@ -214,6 +214,7 @@ def _downstream(folder: Path, specimen, auto, parameters: dict, timer: _Timer, r
     from . import measure as _measure
     from . import series as _series
     from . import spectral as _spectral
+    from . import uncertainty as _uncertainty
 
     warnings: list[str] = []
     seg, review_info = timer.run("review", _apply_review, folder, specimen, auto, warnings)
@@ -224,6 +225,8 @@ def _downstream(folder: Path, specimen, auto, parameters: dict, timer: _Timer, r
                             max_period_bands=parameters.get("max_period_bands"),
                             n_sim=parameters.get("n_sim", 1000), seed=parameters.get("seed", DEFAULT_SEED))
     per = periodicity.to_dict()
+    counting = _uncertainty.count_uncertainty(seg)
+    per["days_per_year"] = _uncertainty.widen_days_per_year(per.get("days_per_year") or {}, counting)
     astronomy = timer.run("astronomy", _astronomy_block, _astro, per)
 
     seconds = dict(stage_seconds or {})

@@ -1,0 +1,78 @@
+"""Counting uncertainty of the segmentation, carried into the days-per-year interval.
+
+The spectral interval says how well the annual period (in bands) is determined *given the bands that
+were found*. It says nothing about boundaries the segmentation may have missed or invented. Those change
+the count of bands per year in proportion. This module turns the segmentation's own evidence into a
+relative count uncertainty and widens the interval with it:
+
+* every boundary carries a confidence ``c`` in 0..1; taken as the probability that the boundary is real,
+  the number of real boundaries has variance ``sum c (1 - c)`` (a sum of independent Bernoulli
+  variables: Poisson-binomial variance; e.g. Wang 1993, Statistica Sinica 3:295-312);
+* each stretch flagged "possible missed boundary" may hide boundaries: the expected number hidden is the
+  stretch's length over the local spacing, minus one; they can only raise the count, so they widen the
+  upper end alone.
+
+The widened interval is the spectral half-width and the count half-width added in quadrature
+(independent errors), with the one-sided missed-boundary term added to the upper end. The method string
+of the result says so. Confidences are the segmenter's heuristics, not calibrated probabilities; the
+forward-model calibration in the tests is what checks that the widened interval covers the truth.
+"""
+from __future__ import annotations
+
+import math
+
+import numpy as np
+
+Z95 = 1.959963984540054  # two-sided 95% normal quantile (scipy.stats.norm.ppf(0.975))
+
+
+def count_uncertainty(segmentation) -> dict:
+    """Relative uncertainty of the band count from boundary confidences and flagged gaps.
+
+    Returns
+    -------
+    dict
+        ``n_boundaries``, ``sd_boundaries`` (Poisson-binomial standard deviation), ``relative_sd``,
+        ``possibly_missed`` (expected hidden boundaries), ``relative_missed`` and ``method``.
+    """
+    boundaries = list(segmentation.boundaries)
+    n = len(boundaries)
+    conf = np.clip(np.array([float(getattr(b, "confidence", 1.0)) for b in boundaries], float), 0.0, 1.0)
+    conf = np.where(np.isfinite(conf), conf, 0.5)
+    sd = float(math.sqrt(float(np.sum(conf * (1.0 - conf))))) if n else 0.0
+    spacing = float((segmentation.resolution or {}).get("band_spacing_mm") or 0.0)
+    missed = 0.0
+    for s0, s1, reason in (segmentation.resolution or {}).get("flagged", []) or []:
+        if "missed" in str(reason) and spacing > 0:
+            missed += max(0.0, (float(s1) - float(s0)) / spacing - 1.0)
+    n_bands = max(n - 1, 1)
+    return {
+        "n_boundaries": n,
+        "sd_boundaries": sd,
+        "relative_sd": sd / n_bands,
+        "possibly_missed": missed,
+        "relative_missed": missed / n_bands,
+        "method": "boundary confidences taken as probabilities (Poisson-binomial variance) and "
+                  "flagged gaps over the local spacing (possible missed boundaries)",
+    }
+
+
+def widen_days_per_year(block: dict, counting: dict) -> dict:
+    """Return a copy of a ``days_per_year`` block with the counting uncertainty added to its interval.
+
+    The spectral interval is kept as ``ci95_spectral``; ``ci95`` becomes the widened one.
+    """
+    out = dict(block)
+    est, ci = block.get("estimate"), block.get("ci95")
+    if est is None or not ci or ci[0] is None:
+        return out
+    lo, hi = float(ci[0]), float(ci[1])
+    count_half = Z95 * counting["relative_sd"] * est
+    new_lo = est - math.hypot(est - lo, count_half)
+    new_hi = est + math.hypot(hi - est, count_half) + counting["relative_missed"] * est
+    out["ci95_spectral"] = [lo, hi]
+    out["ci95"] = [new_lo, new_hi]
+    out["counting_uncertainty"] = dict(counting)
+    out["interval_method"] = ("spectral interval and band-count uncertainty added in quadrature; upper end "
+                              "raised by possibly missed boundaries")
+    return out
