@@ -53,6 +53,7 @@ def folder(tmp_path_factory):
     # BANDGEO_REVIEW_REAL=0 runs the page on the small fixture folder instead (quicker, for page work).
     if os.environ.get("BANDGEO_REVIEW_REAL", "1") == "1":
         real = _real_folder(tmp)
+        print(f"review browser test on {'the analysed forward-model specimen' if real else 'the fixture folder'}")
         if real is not None:
             return real, None, _rerun_without_report
     path, seg, _ = make_folder(tmp / "KRB-12 fixture", n_bounds=14)
@@ -114,7 +115,17 @@ def test_delete_add_save_reload(folder, browser):
         y = 8 + (v1 - target) / (v1 - v0) * (box["height"] - 8 - 22)
         page.mouse.dblclick(box["x"] + box["width"] / 2, box["y"] + y)
         expect(page.locator("#band-count")).to_have_text(str(n0 - 1))
+        page.keyboard.press("Control+z")                      # undo the add, then redo it
+        expect(page.locator("#band-count")).to_have_text(str(n0 - 2))
+        page.keyboard.press("Control+y")
+        expect(page.locator("#band-count")).to_have_text(str(n0 - 1))
         _shot(page, "review-2-edited.png")
+        # The 3-D view drew the specimen: a good share of its pixels differ from the background.
+        drawn = page.evaluate("""() => {
+            const c = document.getElementById('view3d'), d = c.getContext('2d').getImageData(0, 0, c.width, c.height).data;
+            let n = 0; for (let i = 0; i < d.length; i += 4) if (d[i] !== 0xfb || d[i + 1] !== 0xfb || d[i + 2] !== 0xfa) n++;
+            return n / (c.width * c.height); }""")
+        assert drawn > 0.03, drawn
 
         page.keyboard.press("Control+s")
         expect(page.locator("#status")).to_contain_text("saved", timeout=30000)

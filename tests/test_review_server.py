@@ -176,7 +176,8 @@ def test_body_size_limit(served):
 @pytest.mark.parametrize("raw", [
     b'{"edit": {"op": "reject", "id": 999}}', b'{"edit": {"op": "reject", "id": "1; rm -rf /"}}',
     b'{"edit": {"op": "move", "id": 1, "height_mm": 1e400}}', b'{"edit": [1, 2]}', b'not json',
-    b'[1, 2, 3]', b'{"edit": {"op": "add", "height_mm": -50}}', b'\xff\xfe',
+    b'[1, 2, 3]', b'{"edit": {"op": "add", "height_mm": -50}}', b'\xff\xfe', b'[' * 8000,
+    b'{"edit": {"op": "note", "text": {"nested": [1]}}}',
 ])
 def test_malformed_edit_gets_400_and_changes_nothing(served, raw):
     server, folder, *_ = served
@@ -341,3 +342,35 @@ def test_saves_and_edits_hammered_over_http_leave_a_consistent_file(served):
     assert all(a["edits_after"] == b["edits_before"] for a, b in zip(review["history"], review["history"][1:]))
     # one re-run at a time: saves during a run ask for one more, they do not start a second worker
     assert 1 <= rec.calls <= 30
+
+
+def test_connections_beyond_the_limit_are_refused_not_queued_forever(served):
+    server, *_ = served
+    host, port = server.server_address[:2]
+
+    def probe():
+        with socket.create_connection((host, port), timeout=10) as extra:
+            extra.sendall(f"GET /api/state HTTP/1.0\r\nHost: {host}:{port}\r\n"
+                          f"X-Review-Token: {server.app.token}\r\n\r\n".encode())
+            return extra.recv(100)
+
+    idle = [socket.create_connection((host, port), timeout=10) for _ in range(server.max_connections)]
+    try:
+        # Each idle connection holds a slot until its 30 s read timeout; the server may take a moment
+        # to accept them all, so probe a bounded number of times.
+        replies = []
+        for _ in range(40):
+            replies.append(probe())
+            if replies[-1].startswith(b"HTTP/1.0 503"):
+                break
+            time.sleep(0.25)
+        assert replies[-1].startswith(b"HTTP/1.0 503"), replies[-1]
+    finally:
+        for sock in idle:
+            sock.close()
+    for _ in range(40):                                                   # and it recovers
+        if probe().startswith(b"HTTP/1.0 200"):
+            break
+        time.sleep(0.25)
+    else:
+        pytest.fail("the server did not recover after the idle connections closed")

@@ -121,6 +121,9 @@ class Handler(BaseHTTPRequestHandler):
         except (UnicodeDecodeError, json.JSONDecodeError) as exc:
             self._error(HTTPStatus.BAD_REQUEST, f"the request body is not valid JSON ({exc}); send a JSON object")
             return None
+        except RecursionError:
+            self._error(HTTPStatus.BAD_REQUEST, "the request body nests too deeply; send one flat edit object")
+            return None
         if not isinstance(body, dict):
             self._error(HTTPStatus.BAD_REQUEST, "expected a JSON object as the request body")
             return None
@@ -199,14 +202,34 @@ class ReviewServer(ThreadingHTTPServer):
     allow_reuse_address = os.name != "nt"  # restart on the same port at once (POSIX semantics)
     request_queue_size = 16
 
+    #: Connections served at once; more are refused with 503 rather than given a thread each.
+    max_connections = 32
+
     def __init__(self, address, app: ReviewApp):
         handler = type("BoundHandler", (Handler,), {"app": app})
         super().__init__(address, handler)
+        self._slots = threading.BoundedSemaphore(self.max_connections)
         self.app = app
         host, port = self.server_address[:2]
         shown = f"[{host}]" if ":" in host else host
         self.url = f"http://{shown}:{port}/?token={app.token}"
         self.thread: threading.Thread | None = None
+
+    def process_request(self, request, client_address):
+        if not self._slots.acquire(blocking=False):
+            try:
+                request.sendall(b"HTTP/1.0 503 Service Unavailable\r\nContent-Length: 0\r\n\r\n")
+            except OSError:
+                pass
+            self.shutdown_request(request)
+            return
+        super().process_request(request, client_address)
+
+    def process_request_thread(self, request, client_address):
+        try:
+            super().process_request_thread(request, client_address)
+        finally:
+            self._slots.release()
 
     def stop(self, wait_rerun: float = 30.0) -> None:
         """Stop serving, close the socket, and let a running re-run finish (up to ``wait_rerun`` s)."""
