@@ -179,3 +179,16 @@ def test_forward_model_with_hiatuses_counts_are_minima_and_flagged():
     assert d["days_per_year"]["ci95"][0] <= 380
     assert d["hiatus"]["evidence"] == "strong"
     assert len(d["hiatus"]["flagged_bands"]) == int(rec.hiatus_after.sum())
+
+
+def test_hiatus_evidence_finds_inserted_thin_bands_only():
+    # Robust z-score rule (Rousseeuw & Croux 1993 MAD scale): bands 100x thinner than their
+    # neighbours are flagged; log-normal noise alone is not.
+    from bandgeo.spectral.hiatus import hiatus_evidence
+
+    rng = np.random.default_rng(16)
+    h = 0.25 * np.exp(0.2 * rng.standard_normal(2000))
+    assert hiatus_evidence(h, None, None, None)["evidence"] == "none"
+    h[[300, 1200]] = 0.0025
+    ev = hiatus_evidence(h, None, None, None)
+    assert ev["thin_bands"] == [300, 1200] and ev["positions_band"] == [300, 1200]

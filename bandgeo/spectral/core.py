@@ -210,7 +210,7 @@ def _days_per_year(blocks, est_t, est_s, p_t, p_s, n_tests, searched, thick, war
     ps = [p for p in (p_t, p_s) if p is not None]
     p_all = float(min(1.0, n_tests * min(ps)))
     out = {"estimate": None, "ci95": None, "significant": False, "p_value": p_all,
-           "method": None, "searched_band_bands_per_cycle": searched, "is_minimum": True,
+           "method": "not estimated: no significant annual cycle (test: " + SPEC_METHOD + ")", "searched_band_bands_per_cycle": searched, "is_minimum": True,
            "units": "bands per annual cycle (solar days per year if each band is a day)",
            "selection": "longest-period significant cycle in the searched band",
            "methods": blocks, "consistency": None,
