@@ -38,8 +38,11 @@ class Centreline:
         """
         s_arr = np.atleast_1d(np.asarray(s, dtype=float))
         h, p, t = self.heights_mm, self.points_mm, self.tangents
-        pts = np.column_stack([np.interp(s_arr, h, p[:, j]) for j in range(3)])
-        tan = np.column_stack([np.interp(s_arr, h, t[:, j]) for j in range(3)])
+        # one search, shared weights for the six coordinates (linear interpolation, clamped)
+        i = np.clip(np.searchsorted(h, s_arr), 1, len(h) - 1)
+        w = np.clip((s_arr - h[i - 1]) / (h[i] - h[i - 1]), 0.0, 1.0)[:, None]
+        pts = p[i - 1] * (1.0 - w) + p[i] * w
+        tan = t[i - 1] * (1.0 - w) + t[i] * w
         lo, hi = s_arr < h[0], s_arr > h[-1]
         pts[lo] = p[0] + (s_arr[lo] - h[0])[:, None] * t[0]
         pts[hi] = p[-1] + (s_arr[hi] - h[-1])[:, None] * t[-1]
@@ -48,7 +51,7 @@ class Centreline:
             return pts[0], tan[0]
         return pts, tan
 
-    def project(self, vertices: np.ndarray, iterations: int = 4):
+    def project(self, vertices: np.ndarray, iterations: int = 3):
         """Arc length of the normal plane through each vertex, and the radial offset vector.
 
         Parameters

@@ -1,9 +1,24 @@
 """Curvature clustering: a Gaussian mixture fitted on a subsample, its size chosen by BIC, then
-predicted for every vertex (PERF-NOTES: fitting 4 M x 6 takes 23 s, a 250 k subsample 3 s)."""
+predicted for every vertex (PERF-NOTES: fitting 4 M x 6 takes 23 s, a 250 k subsample 3 s).
+
+The mixture's linear algebra is made of many tiny (6 x 6) BLAS calls, which a second BLAS thread only
+slows down on a shared 2-core machine (PERF-NOTES), so the fits run with BLAS limited to one thread.
+"""
 from __future__ import annotations
+
+import contextlib
 
 import numpy as np
 from sklearn.mixture import GaussianMixture
+
+
+def one_blas_thread():
+    """Context limiting BLAS/OpenMP pools to one thread (threadpoolctl ships with scikit-learn)."""
+    try:
+        from threadpoolctl import threadpool_limits
+    except ImportError:  # pragma: no cover - scikit-learn depends on threadpoolctl
+        return contextlib.nullcontext()
+    return threadpool_limits(limits=1)
 
 #: Vertices per block when predicting class probabilities (bounds memory on 10 M-vertex meshes).
 PREDICT_BLOCK = 1 << 20

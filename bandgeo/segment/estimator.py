@@ -125,13 +125,14 @@ class BandSegmenter:
         wall_idx = np.flatnonzero(wall)
         Z, _, _ = cluster.robust_scale(X, wall_idx)
         Zw = Z[wall_idx]
-        if self.n_classes == "bic":
-            k, bic, init = cluster.choose_classes(Zw, range(1, self.max_classes + 1), rng, self.bic_subsample,
-                                                  self.covariance_type, self.random_state)
-        else:
-            k, bic, init = int(self.n_classes), {}, None
-        gm = cluster.fit_mixture(Zw, k, rng, self.subsample, self.covariance_type, self.random_state, init)
-        proba = cluster.predict_proba(gm, Zw)
+        with cluster.one_blas_thread():
+            if self.n_classes == "bic":
+                k, bic, init = cluster.choose_classes(Zw, range(1, self.max_classes + 1), rng, self.bic_subsample,
+                                                      self.covariance_type, self.random_state)
+            else:
+                k, bic, init = int(self.n_classes), {}, None
+            gm = cluster.fit_mixture(Zw, k, rng, self.subsample, self.covariance_type, self.random_state, init)
+            proba = cluster.predict_proba(gm, Zw)
         mixture_info = {"n_iter": int(gm.n_iter_), "converged": bool(gm.converged_),
                         "fit_rows": int(min(self.subsample, len(Zw))), "bic_rows": int(min(self.bic_subsample, len(Zw)))}
         mid = features.groove_scale_index
