@@ -65,3 +65,11 @@ def test_power_bad_options_are_exit_2(tmp_path, args, fragment):
     code, _, err = run("power", *args, "--out", tmp_path / "p")
     _one_line_error(code, err)
     assert fragment in err
+
+
+def test_batch_malformed_scheduler_address_is_exit_2_and_writes_nothing(tmp_path):
+    (tmp_path / "a.ply").write_bytes(b"ply\n")
+    code, _, err = run("batch", tmp_path, "--out", tmp_path / "out", "--scheduler", "not an address")
+    _one_line_error(code, err)
+    assert "tcp://host:8786" in err
+    assert not (tmp_path / "out").exists()

@@ -8,7 +8,7 @@ from ..errors import InputError
 from .runner import one_line_error, run_specimen
 
 
-def _client(scheduler):
+def connect(scheduler):
     """A ``dask.distributed.Client`` for an address, a cluster object or a client; and whether we own it."""
     from dask.distributed import Client
 
@@ -17,9 +17,18 @@ def _client(scheduler):
     address = scheduler if isinstance(scheduler, str) else getattr(scheduler, "scheduler_address", None)
     if not address:
         raise InputError(f"expected a Dask scheduler address like tcp://host:8786 but got {scheduler!r}")
+    try:  # check the form first: a malformed address would leave a half-built client behind
+        from distributed.comm.addressing import parse_address, parse_host_port
+
+        scheme, location = parse_address(address)
+        if scheme in ("tcp", "tls"):
+            parse_host_port(location)
+    except ValueError as exc:
+        raise InputError(f"expected a Dask scheduler address like tcp://host:8786 but got {address!r} "
+                         f"({exc})") from None
     try:
         return Client(address, timeout="20s", set_as_default=False), True
-    except (OSError, TimeoutError) as exc:
+    except (OSError, TimeoutError, ValueError) as exc:
         raise InputError(f"cannot reach the Dask scheduler at {address} ({exc}); start it with "
                          "'dask scheduler' and check the address") from None
 
@@ -35,7 +44,7 @@ def run_dask(analyze_fn: Callable, tasks: list, scheduler, workers: Optional[int
     """
     from dask.distributed import as_completed
 
-    client, owned = _client(scheduler)
+    client, owned = connect(scheduler)
     pending = deque(tasks)
     limit = workers or len(tasks)
     futures: dict = {}

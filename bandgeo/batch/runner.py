@@ -186,17 +186,31 @@ def run_batch(jobs: Sequence[SpecimenJob], out_dir, *, workers: Optional[int] = 
     if workers is not None and int(workers) < 1:
         raise ParameterError(f"expected workers >= 1 but got {workers}")
     analyze_fn = analyze_fn or default_analyze()
-    cores = os.cpu_count() or 1
     local = scheduler is None or scheduler == "inline"
-    n_workers = int(workers) if workers else (cores if local else None)
+    n_workers = int(workers) if workers else ((os.cpu_count() or 1) if local else None)
     if scheduler == "inline":
         n_workers = 1
+    client, owned = None, False
+    if not local:  # connect first: an unreachable scheduler is a one-line error before anything is written
+        from ._dask import connect
+
+        client, owned = connect(scheduler)
+    try:
+        return _run(jobs, out_dir, analyze_fn, scheduler, client, n_workers, params, seed, progress,
+                    threads_per_worker)
+    finally:
+        if owned:
+            client.close()
+
+
+def _run(jobs, out_dir, analyze_fn, scheduler, client, n_workers, params, seed, progress,
+         threads_per_worker) -> BatchSummary:
+    out_dir.mkdir(parents=True, exist_ok=True)
+    report(progress, "batch: reading inputs (SHA-256)", 0, max(len(jobs), 1))
     # One BLAS/OpenMP thread per specimen unless told otherwise: parallelism comes from the workers.
     # Measured on the 2-core machine under load (benchmarks/bench_batch.py): one local worker with 2
     # threads ran 8x slower than with 1; unlimited threads halved a Dask LocalCluster's speed.
     threads = threads_per_worker or 1
-    out_dir.mkdir(parents=True, exist_ok=True)
-    report(progress, "batch: reading inputs (SHA-256)", 0, max(len(jobs), 1))
     tasks = _make_tasks(jobs, out_dir, params, seed, _analyzer_name(analyze_fn), threads)
     summary = BatchSummary(out_dir=out_dir, seed=int(seed), params=params,
                            scheduler=_describe(scheduler, n_workers), workers=n_workers,
@@ -237,7 +251,7 @@ def run_batch(jobs: Sequence[SpecimenJob], out_dir, *, workers: Optional[int] = 
         else:
             from ._dask import run_dask
 
-            run_dask(analyze_fn, todo, scheduler, n_workers, finished)
+            run_dask(analyze_fn, todo, client, n_workers, finished)
     except BaseException:
         summary.interrupted = True
         for outcome in summary.outcomes:
