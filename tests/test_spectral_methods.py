@@ -198,3 +198,21 @@ def test_large_series_path_recovers_a_known_period():
     d = run_periodicity(series_from_thickness(h), n_sim=199, methods=("spectrum", "cycle_count")).days_per_year
     assert d["significant"]
     assert d["ci95"][0] <= 365.25 <= d["ci95"][1]
+
+
+def test_background_follows_a_broad_excess_but_not_a_line():
+    # A broad hump (white noise smoothed by a band-pass, scipy.signal.butter) added to AR(1) noise must
+    # raise the background over the hump; a narrow line must not raise it (robust fit, Mann & Lees 1996).
+    rng = np.random.default_rng(13)
+    n = 4000
+    base = ar1(rng, n, 0.5)
+    b, a = signal.butter(4, [0.3, 0.5], btype="band")
+    hump = 3.0 * signal.lfilter(b, a, rng.standard_normal(n))
+    n_fft = ls.n_fft_for(n)
+    fr = ls.fft_frequencies(n_fft)
+    _, _, corr = rednoise.fit_background(ls.fft_power(ls.detrend(base + hump), n_fft), fr, n)
+    assert np.median(corr[0, (fr > 0.17) & (fr < 0.23)]) > 2.0
+    assert np.median(corr[0, fr < 0.05]) < 1.2
+    line = base + 2.0 * np.cos(2 * np.pi * 0.1 * np.arange(n))
+    _, _, corr = rednoise.fit_background(ls.fft_power(ls.detrend(line), n_fft), fr, n)
+    assert corr[0, np.argmin(np.abs(fr - 0.1))] < 1.3

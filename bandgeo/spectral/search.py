@@ -18,7 +18,7 @@ import numpy as np
 
 from .lomb_scargle import detrend, fft_frequencies, fft_power, n_fft_for
 from .peaks import estimate_in_window, find_peaks, fit_sinusoids, local_window
-from .rednoise import ar1_spectrum, fit_ar1_spectrum
+from .rednoise import ar1_spectrum, fit_background
 from .significance import LARGE_N, band_mask, levels, max_ratio_null, max_ratio_null_asymptotic, \
     mc_p_value
 
@@ -44,12 +44,16 @@ def search_series(values: np.ndarray, band: tuple[float, float], n_sim: int, rng
     fr = fft_frequencies(n_fft)
     P = fft_power(x, n_fft)
     large = n > LARGE_N
+    fF = np.arange(n // 2 + 1) / n
     if large:   # fit on the Fourier grid, as the asymptotic null does
-        phi, ve = fit_ar1_spectrum(fft_power(x, n), np.arange(n // 2 + 1) / n, n)
+        phi, ve, corrF = fit_background(fft_power(x, n), fF, n)
+        corrF = corrF[0]
+        corr = np.interp(fr, fF, corrF)
     else:
-        phi, ve = fit_ar1_spectrum(P, fr, n)
+        phi, ve, corr = fit_background(P, fr, n)
+        corr = corr[0]
     phi, ve = float(phi[0]), float(ve[0])
-    S = ar1_spectrum(fr, phi, ve)
+    S = ar1_spectrum(fr, phi, ve) * corr
     mask = band_mask(fr, band[0], band[1])
     label = f"{label}: red-noise Monte Carlo"
     if large:
@@ -64,8 +68,7 @@ def search_series(values: np.ndarray, band: tuple[float, float], n_sim: int, rng
         ratio of the two Fourier frequencies around it."""
         if not large:
             return power_fine / S
-        fF = np.arange(n // 2 + 1) / n
-        RF = fft_power(series, n) / ar1_spectrum(fF, phi, ve)
+        RF = fft_power(series, n) / (ar1_spectrum(fF, phi, ve) * corrF)
         k = np.minimum(np.floor(fr * n).astype(int), n // 2)
         return np.maximum(RF[k], RF[np.minimum(k + 1, n // 2)])
 

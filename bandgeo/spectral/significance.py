@@ -21,7 +21,7 @@ import numpy as np
 
 from ..progress import report
 from .lomb_scargle import detrend, fft_frequencies, fft_power
-from .rednoise import ar1_spectrum, fit_ar1_spectrum, simulate_ar1
+from .rednoise import ar1_spectrum, fit_background, simulate_ar1
 
 #: Samples (surrogates x bands) generated per block; bounds memory at a few hundred MB.
 BLOCK_SAMPLES = 2_000_000
@@ -65,8 +65,8 @@ def max_ratio_null(n: int, phi: float, var_e: float, mask: np.ndarray, n_fft: in
         size = min(block, n_sim - start)
         x = detrend(simulate_ar1(rng, size, n, phi, var_e))
         P = fft_power(x, n_fft)
-        ph, ve = fit_ar1_spectrum(P, freq, n)
-        S = ar1_spectrum(freq[mask], ph, ve)
+        ph, ve, corr = fit_background(P, freq, n)
+        S = ar1_spectrum(freq[mask], ph, ve) * corr[:, mask]
         out[start:start + size] = (P[:, mask] / S).max(axis=1)
         report(progress, label, start + size, n_sim)
     return out
@@ -92,8 +92,8 @@ def max_ratio_null_asymptotic(n: int, phi: float, var_e: float, f_low: float, f_
     for start in range(0, n_sim, block):
         size = min(block, n_sim - start)
         P = rng.standard_exponential((size, freq.size)) * S_true
-        ph, ve = fit_ar1_spectrum(P, freq, n)
-        S = ar1_spectrum(freq[mask], ph, ve)
+        ph, ve, corr = fit_background(P, freq, n)
+        S = ar1_spectrum(freq[mask], ph, ve) * corr[:, mask]
         out[start:start + size] = (P[:, mask] / S).max(axis=1)
         report(progress, label, start + size, n_sim)
     return out

@@ -8,7 +8,7 @@ from __future__ import annotations
 import numpy as np
 from scipy.signal import hilbert
 
-from .rednoise import ar1_spectrum, fit_ar1_spectrum
+from .rednoise import ar1_spectrum, fit_background
 
 
 def slow_periodogram(x: np.ndarray, frequency: np.ndarray) -> np.ndarray:
@@ -24,15 +24,15 @@ def slow_periodogram(x: np.ndarray, frequency: np.ndarray) -> np.ndarray:
 
 
 def slow_max_ratio(series: np.ndarray, frequency: np.ndarray, mask: np.ndarray) -> np.ndarray:
-    """Maximum periodogram / fitted AR(1) background over ``mask``, one series (row) at a time."""
+    """Maximum periodogram / fitted background over ``mask``, one series (row) at a time."""
     out = []
     for x in np.atleast_2d(series):
         xd = x - x.mean()
         t = np.arange(x.size) - 0.5 * (x.size - 1)
         xd = xd - (xd @ t) / (t @ t) * t
         P = slow_periodogram(xd, frequency)
-        phi, ve = fit_ar1_spectrum(P, frequency, x.size)
-        out.append(np.max(P[mask] / ar1_spectrum(frequency[mask], phi[0], ve[0])))
+        phi, ve, corr = fit_background(P, frequency, x.size)
+        out.append(np.max(P[mask] / (ar1_spectrum(frequency[mask], phi[0], ve[0]) * corr[0, mask])))
     return np.array(out)
 
 
