@@ -131,6 +131,10 @@ def test_save_load_round_trip(tmp_path):
     assert back.resolution["flagged"] == [[4.0, 7.0, "test stretch"]]
     assert np.allclose(back.axis.points_mm, seg.axis.points_mm)
     assert [b.origin for b in back.boundaries] == ["auto"] * 4
+    # a reload reproduces the run bit for bit (JSON floats round-trip exactly; unit vectors are kept)
+    assert all(np.array_equal(a.normal, b.normal) and np.array_equal(a.center_mm, b.center_mm)
+               for a, b in zip(seg.boundaries, back.boundaries))
+    assert np.array_equal(back.axis.tangents, seg.axis.tangents)
 
 
 @pytest.mark.parametrize("damage", ["schema", "json", "labels", "missing", "count"])

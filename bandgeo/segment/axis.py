@@ -98,7 +98,9 @@ class Centreline:
         t = np.asarray(d["tangents"], float).reshape(-1, 3)
         if len(h) < 2 or len(p) != len(h) or len(t) != len(h) or np.any(np.diff(h) <= 0):
             raise ValueError("centreline needs >= 2 samples with increasing heights")
-        return cls(h, p, t / np.linalg.norm(t, axis=1, keepdims=True))
+        norm = np.linalg.norm(t, axis=1, keepdims=True)
+        # keep stored unit vectors bit for bit (a reload must reproduce the run exactly)
+        return cls(h, p, np.where(np.abs(norm - 1.0) > 1e-9, t / norm, t))
 
 
 def circle_centres(u: np.ndarray, x: np.ndarray, y: np.ndarray, n_bins: int, min_count: int = 12):

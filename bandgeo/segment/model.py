@@ -54,7 +54,8 @@ class Boundary:
         norm = np.linalg.norm(n)
         if not np.isfinite(norm) or norm == 0:
             raise ReviewError(f"boundary {self.id}: the normal must be a non-zero vector but got {n.tolist()}")
-        self.normal = n / norm
+        # normalise only when needed, so that a saved and reloaded unit normal stays bit for bit
+        self.normal = n / norm if abs(norm - 1.0) > 1e-9 else n
         self.height_mm = float(self.height_mm)
         if self.origin not in ORIGINS:
             raise ReviewError(f"boundary origin must be one of {', '.join(ORIGINS)} but got {self.origin!r}")
