@@ -222,3 +222,20 @@ def test_estimator_convention_and_parameter_errors():
             BandSegmenter(**bad).fit(spec, feats)
     with pytest.raises(InputError):
         BandSegmenter().fit(spec, SimpleNamespace(mean=np.zeros((5, 3))))
+
+
+def test_non_column_shapes_report_no_bands():
+    # a sphere has no periodic relief along any axis: no boundaries, and the result says why
+    import trimesh
+
+    from bandgeo.features import compute_features
+
+    m = trimesh.creation.icosphere(subdivisions=4, radius=5.0)
+    spec = SimpleNamespace(vertices_mm=np.asarray(m.vertices), faces=np.asarray(m.faces), colors=None)
+    seg = BandSegmenter().fit(spec, compute_features(spec)).segmentation_
+    assert seg.boundaries == [] and seg.warnings[0].startswith("bands not resolved")
+    assert np.all(seg.vertex_band == -1)
+    tiny = trimesh.creation.icosphere(subdivisions=1, radius=5.0)
+    spec = SimpleNamespace(vertices_mm=np.asarray(tiny.vertices), faces=np.asarray(tiny.faces), colors=None)
+    with pytest.raises(InputError):
+        BandSegmenter().fit(spec, compute_features(spec))

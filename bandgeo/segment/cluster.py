@@ -12,13 +12,23 @@ import numpy as np
 from sklearn.mixture import GaussianMixture
 
 
+@contextlib.contextmanager
 def one_blas_thread():
-    """Context limiting BLAS/OpenMP pools to one thread (threadpoolctl ships with scikit-learn)."""
+    """Limit BLAS/OpenMP pools to one thread (threadpoolctl ships with scikit-learn) and keep
+    scikit-learn's convergence chatter out of the user's console: the segmenter records the mixture's
+    iterations and convergence in its parameters instead."""
+    import warnings
+
+    from sklearn.exceptions import ConvergenceWarning
+
     try:
         from threadpoolctl import threadpool_limits
+        limits = threadpool_limits(limits=1)
     except ImportError:  # pragma: no cover - scikit-learn depends on threadpoolctl
-        return contextlib.nullcontext()
-    return threadpool_limits(limits=1)
+        limits = contextlib.nullcontext()
+    with limits, warnings.catch_warnings():
+        warnings.simplefilter("ignore", ConvergenceWarning)
+        yield
 
 #: Vertices per block when predicting class probabilities (bounds memory on 10 M-vertex meshes).
 PREDICT_BLOCK = 1 << 20
