@@ -108,6 +108,14 @@ def test_folder_manifest_finds_scans_and_sheets(scans):
     assert all(j.sheet_path is None for j in jobs if j.specimen_id != "KRB-12")
 
 
+def test_a_bad_sheet_does_not_stop_reading_the_batch(scans):
+    # The analysis re-reads the sheet and fails that specimen alone (bandgeo.scan.read_sheet's message).
+    (scans / "KRB-31.sheet.toml").write_text('colour = "red"\n')
+    jobs = {j.specimen_id: j for j in read_manifest(scans)}
+    assert jobs["KRB-31"].sheet_path.name == "KRB-31.sheet.toml" and jobs["KRB-31"].age_ma is None
+    assert jobs["KRB-12"].age_ma == 1100.0
+
+
 def test_csv_manifest_relative_paths_and_fields(scans, tmp_path):
     manifest = tmp_path / "batch.csv"
     manifest.write_text("scan,specimen_id,units,up,strike_deg,dip_deg,age_ma,horizon,locality\n"

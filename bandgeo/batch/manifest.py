@@ -167,32 +167,23 @@ def _read_folder(folder: Path) -> list[SpecimenJob]:
 def _fill_from_sheet(job: SpecimenJob) -> None:
     """Copy age, horizon and locality from the sheet (for grouping in the compilation only).
 
-    The sheet itself is handed to the analysis (``bandgeo.scan.read_sheet`` validates it); this reads
-    the few fields the compilation groups by, so that a batch folder needs no CSV.
+    The sheet itself is handed to the analysis, which applies the rest of it; these few fields are
+    read here so that a batch folder needs no CSV.
     """
     if job.sheet_path is None:
         return
+    from ..scan import read_sheet
+
     try:
-        import tomllib
-    except ModuleNotFoundError:  # Python 3.10
-        import tomli as tomllib
-    try:
-        with open(job.sheet_path, "rb") as fh:
-            data = tomllib.load(fh)
-    except (OSError, ValueError):
-        # Not this module's call: the analysis reads the sheet and fails this one specimen with the
-        # sheet reader's message, while the rest of the batch goes on.
+        sheet = read_sheet(job.sheet_path)
+    except InputError:
+        # The analysis reads the sheet again and fails this one specimen with the same message,
+        # while the rest of the batch goes on.
         return
-    flat = dict(data)
-    for value in data.values():  # accept one level of tables, e.g. [specimen] or [age]
-        if isinstance(value, dict):
-            flat.update({k: v for k, v in value.items() if k not in flat})
-    for key in ("age_ma", "age_err_ma"):
-        if isinstance(flat.get(key), (int, float)):
-            setattr(job, key, float(flat[key]))
-    for key in ("horizon", "locality"):
-        if isinstance(flat.get(key), str) and flat[key].strip():
-            setattr(job, key, flat[key].strip())
+    for key in ("age_ma", "age_err_ma", "horizon", "locality"):
+        value = getattr(sheet, key, None)
+        if value is not None and value != "":
+            setattr(job, key, float(value) if key.startswith("age") else str(value))
 
 
 def _read_csv(path: Path) -> list[SpecimenJob]:
