@@ -40,17 +40,13 @@ def _interval(value: Any) -> tuple[Optional[float], Optional[float]]:
 
 
 def input_sha256(result: dict) -> Optional[str]:
-    """The scan's SHA-256 recorded in a result, wherever the schema keeps it (None if absent)."""
-    candidates = [result.get("input"), result.get("provenance"), result.get("scan"), result]
-    for block in candidates:
-        if not isinstance(block, dict):
-            continue
-        for key in ("sha256", "input_sha256", "scan_sha256"):
-            if isinstance(block.get(key), str):
-                return block[key]
-        nested = block.get("input") if block is not result else None
-        if isinstance(nested, dict) and isinstance(nested.get("sha256"), str):
-            return nested["sha256"]
+    """The scan's SHA-256 recorded in a result (``provenance.input_sha256`` or
+    ``specimen.scan.sha256``, docs/result-schema.md), or None if absent."""
+    provenance = result.get("provenance") if isinstance(result.get("provenance"), dict) else {}
+    scan = (result.get("specimen") or {}).get("scan") if isinstance(result.get("specimen"), dict) else None
+    for value in (provenance.get("input_sha256"), (scan or {}).get("sha256") if isinstance(scan, dict) else None):
+        if isinstance(value, str):
+            return value
     return None
 
 
@@ -90,18 +86,16 @@ def digest(result: dict) -> dict:
 
 
 def sheet_block(result: dict) -> dict:
-    """Age, horizon and locality recorded in a result's sheet block (keys absent when unknown)."""
+    """Age, horizon and locality recorded in a result's ``specimen`` block or its ``sheet``
+    (keys absent when unknown)."""
+    specimen = result.get("specimen") if isinstance(result.get("specimen"), dict) else {}
+    sources = [specimen] + ([specimen["sheet"]] if isinstance(specimen.get("sheet"), dict) else [])
     out: dict = {}
-    for name in ("sheet", "specimen", "metadata"):
-        block = result.get(name)
-        if not isinstance(block, dict):
-            continue
-        inners = [block] + ([block["sheet"]] if isinstance(block.get("sheet"), dict) else [])
-        for inner in inners:
-            for key in ("age_ma", "age_err_ma"):
-                if key not in out and _number(inner.get(key)) is not None:
-                    out[key] = _number(inner[key])
-            for key in ("horizon", "locality", "specimen_id"):
-                if key not in out and isinstance(inner.get(key), str) and inner[key]:
-                    out[key] = inner[key]
+    for block in sources:
+        for key in ("age_ma", "age_err_ma"):
+            if key not in out and _number(block.get(key)) is not None:
+                out[key] = _number(block[key])
+        for key in ("horizon", "locality"):
+            if key not in out and isinstance(block.get(key), str) and block[key]:
+                out[key] = block[key]
     return out
