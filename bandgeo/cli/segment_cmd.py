@@ -6,7 +6,7 @@ from pathlib import Path
 import click
 
 from ._common import echo, out_dir_option, seed_option
-from ._scan_options import prepare_kwargs, scan_options
+from ._scan_options import prepare_from_options, scan_options
 
 
 def summary_line(seg, table) -> str:
@@ -45,7 +45,6 @@ def segment(ctx, scan, out, seed, n_classes, band_spacing, **opts):
     from ..errors import InputError, ParameterError
     from ..features import compute_features
     from ..measure import measure_bands
-    from ..scan import load_scan, prepare
     from ..segment import BandSegmenter
 
     if n_classes != "bic":
@@ -55,9 +54,8 @@ def segment(ctx, scan, out, seed, n_classes, band_spacing, **opts):
             raise ParameterError(f"--classes must be 'bic' or a whole number but got {n_classes!r}") from None
     if out.exists() and not out.is_dir():
         raise InputError(f"the output {str(out)!r} exists and is not a folder; give a folder for --out")
-    kwargs = prepare_kwargs(**opts)
     with progress.bar("loading") as cb:
-        specimen = prepare(load_scan(scan), progress=cb, **kwargs)
+        specimen = prepare_from_options(scan, progress=cb, **opts)
     with progress.bar("curvature") as cb:
         feats = compute_features(specimen, band_spacing_mm=band_spacing, progress=cb)
     with progress.bar("segmenting") as cb:
