@@ -103,6 +103,7 @@ def test_figures_and_page_are_self_contained(batch_folder):
     # Published points, cited (reference-values.md).
     assert "Williams (2000)" in html and "Meyers &amp; Malinverno (2018)" in html
     assert "How outliers are flagged" in html
+    assert "No age given" not in html  # every specimen here has an age
 
 
 def test_empty_folder_is_input_error(tmp_path):

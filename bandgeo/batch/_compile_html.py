@@ -23,6 +23,8 @@ tr.flag td { background: #fde8d7; } tr.none td { color: #666; } tr.failed td { b
 <code>{{ out_dir }}</code>. Intervals are 95%. Band counts are minima (missing days are not counted), so
 days per year are minima too.</p>
 {% if flagged %}<p><strong>Disagree with their horizon:</strong> {{ flagged|join(", ") }}.</p>{% endif %}
+{% if no_age %}<p class="note">No age given, so not in the figure (listed in the table):
+{{ no_age|join(", ") }}. Add <code>age_ma</code> to their sheets or to the manifest.</p>{% endif %}
 <h2>Against age</h2>
 <figure>{{ svg|safe }}<figcaption class="note">Coloured circles: this study, by horizon, with 95% intervals
 (vertical) and age uncertainties as given in the sheets (horizontal). Grey: published points
@@ -93,5 +95,6 @@ def write_html(comp, refs, svg: str, path: Path) -> Path:
     html = env.from_string(_TEMPLATE).render(
         n=len(comp.rows), when=_dt.datetime.now(_dt.timezone.utc).strftime("%Y-%m-%d %H:%M UTC"),
         version=__version__, out_dir=str(comp.out_dir), flagged=comp.flagged, svg=svg, rows=rows,
-        horizons=horizons, rule=comp.rule, refs=ref_rows, ref_source=comp.references_source)
+        horizons=horizons, rule=comp.rule, refs=ref_rows, ref_source=comp.references_source,
+        no_age=[r["specimen_id"] for r in comp.rows if r["status"] == "analysed" and r["age_ma"] is None])
     return write_text(path, html)
