@@ -4,6 +4,11 @@ The column may lean and sway, so the axis is a curve. Each slab cut across the c
 with a circle (Kasa 1976, "A circle fitting procedure and its error analysis", IEEE Trans. Instrum.
 Meas. 25:8-14), which stays centred where a hole or a missing arc would drag a plain centroid aside.
 The centres are smoothed along the axis; the tangent is the derivative of the smoothed curve.
+
+The slabs are one band spacing thick, so the curve passes through the centre of every ring-shaped slice
+of the column, the traced boundary rings included; it is fitted before the rings are traced because
+the tracing needs it. The segmenter reports how far the fitted ring centres lie from it
+(``resolution['axis_ring_offset_mm']``) as a check.
 """
 from __future__ import annotations
 

@@ -232,6 +232,13 @@ class BandSegmenter:
         # --- resolution honesty
         report(progress, "segment: resolution checks", 3, 5)
         res = resolution.assess(sw, rw, angle, boundaries, features, spacing, samp, gaps, warnings)
+        if boundaries:
+            # check of the axis: distance of the full rings' circle-fit centres from the centreline
+            full = [b for b in boundaries if b.coverage >= 0.75]
+            if full:
+                cs = np.array([b.center_mm for b in full])
+                _, off = axis.project(cs)
+                res["axis_ring_offset_mm"] = float(np.median(np.linalg.norm(off, axis=1)))
         if refuse is not None:
             warnings.insert(0, f"bands not resolved: {refuse}; no boundaries are reported")
             res["flagged"].append([float(sw.min()), float(sw.max()), "bands not resolved: " + refuse])
