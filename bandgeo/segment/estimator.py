@@ -52,6 +52,25 @@ class BandSegmenter:
     class_names_ : list of str
     repair_log_ : list of str
         One line per repair rule applied (see :mod:`bandgeo.segment.repair`).
+    mixture_ : sklearn.mixture.GaussianMixture
+
+    Notes
+    -----
+    1. Cluster the side-wall vertices (normal within 60 deg of horizontal to the axis) on their
+       robustly scaled curvature features with a Gaussian mixture: the number of classes by BIC on
+       ``bic_subsample`` rows, the chosen mixture refined on ``subsample`` rows (warm start), then every
+       wall vertex predicted. Classes are named by their mean curvature at the groove scale; the
+       groove class is the set of most concave classes whose membership is most periodic along the axis.
+    2. Fit the growth axis (:mod:`bandgeo.segment.axis`).
+    3. Trace the rings: boundaries are the minima of the side-wall relief averaged around each ring of
+       the axis (:func:`bandgeo.segment.rings.relief_profile`), each fitted by a plane and a circle
+       from the groove-deficit weights of its vertices. The per-vertex groove class alone loses
+       bands only two or three samples thick (its features blur there), so it enters each boundary's
+       confidence as ``class_support`` rather than gating it.
+    4. Repair (rules R1-R4 of :mod:`bandgeo.segment.repair`), confidence per boundary.
+    5. Resolution honesty (:mod:`bandgeo.segment.resolution`): sampling along the axis, noise, relief;
+       flagged stretches, and no boundaries at all when there is no periodic relief above the noise
+       or the relief is below ``min_relief_to_noise`` x the noise.
     """
 
     def __init__(self, n_classes="bic", max_classes=6, subsample=250_000, random_state=DEFAULT_SEED,
@@ -249,12 +268,12 @@ class BandSegmenter:
             res["flagged"].append([float(sw.min()), float(sw.max()), "groove relief below scanner noise"])
             boundaries = []
         band = assign_bands(v, boundaries, axis, s=s_all)
-        band[~wall] = np.where(band[~wall] >= 0, band[~wall], -1)
 
         params = dict(self.get_params())
         params.update({"n_classes_chosen": int(k), "bic": bic, "mixture": mixture_info,
                        "groove_classes": [class_names[int(rank[c])] for c in groove_set],
-                       "groove_set_periodic_contrast": {int(j): float(c) for j, c in contrast.items()}, "band_spacing_mm": spacing,
+                       "groove_set_periodic_contrast": {int(j): float(c) for j, c in contrast.items()},
+                       "band_spacing_mm": spacing,
                        "band_spacing_method": features.band_spacing_method,
                        "scales_mm": np.asarray(features.scales_mm).tolist(), "repair_log": log})
         report(progress, "segment: done", 5, 5)
