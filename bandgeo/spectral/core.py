@@ -236,10 +236,13 @@ def _days_per_year(blocks, est_t, est_s, p_t, p_s, n_tests, searched, thick, war
     if comb["p_value"] is not None:
         out["consistency"] = {"chi2": comb["chi2"], "dof": comb["dof"], "p_value": comb["p_value"],
                               "estimates": {p["name"]: p["estimate"] for p in parts},
-                              "method": "chi-square of the differences with their Monte Carlo covariance"}
+                              "method": "chi-square of the differences with their Monte Carlo variances "
+                                        "(correlation ignored: conservative)"}
         if comb["p_value"] < 0.05:
-            groups = {p["group"] for p in parts}
-            best = min(groups, key=lambda g: min(p["p"] for p in parts if p["group"] == g))
+            groups = [g for g in ("thickness", "sway") if any(p["group"] == g for p in parts)]
+            # Most significant series; on a tie (both at the Monte Carlo floor) the more precise one.
+            best = min(groups, key=lambda g: (min(p["p"] for p in parts if p["group"] == g),
+                                              min(p["sd"] for p in parts if p["group"] == g)))
             used = [p for p in parts if p["group"] == best]
             sub = _annual.combine([p["estimate"] for p in used], _annual.covariance(used))
             if len(groups) > 1 and (sub["p_value"] is None or sub["p_value"] >= 0.05):

@@ -15,7 +15,7 @@ import numpy as np
 
 from ..progress import report
 from .lomb_scargle import detrend, fft_frequencies, fft_power, fft_transform, parabolic_peak, \
-    refine_frequency
+    refine_frequency, refine_ls
 from .rednoise import fit_ar1_spectrum, simulate_ar1
 from .significance import LARGE_N
 
@@ -67,7 +67,7 @@ def estimate_in_window(x: np.ndarray, P: np.ndarray, frequency: np.ndarray, n_ff
     f0 = parabolic_peak(P, k, n_fft)
     # Newton refinement costs O(n) per row and step; beyond LARGE_N bands the parabola on the
     # oversampled grid is used alone (the same on data and replicates, so the interval is unaffected).
-    f = refine_frequency(x, f0) if x.shape[1] <= LARGE_N else f0
+    f = refine_ls(x, refine_frequency(x, f0)) if x.shape[1] <= LARGE_N else f0
     return np.clip(f, lo, hi)
 
 
