@@ -61,3 +61,21 @@ def echo(ctx, message: str) -> None:
     root = ctx.find_root()
     if not (root.obj or {}).get("quiet"):
         click.echo(message)
+
+
+def analysis_options(func):
+    """The options of the analysis itself, shared by ``analyze`` and ``batch``: the searched annual band,
+    the Monte Carlo size and what to do with an existing review."""
+    options = [
+        click.option("--min-period", "min_period", type=float, default=None,
+                     help="Shortest annual period searched, in bands (default: a few bands)."),
+        click.option("--max-period", "max_period", type=float, default=None,
+                     help="Longest annual period searched, in bands (default: about a third of the record)."),
+        click.option("--simulations", "n_sim", type=click.IntRange(100, 100000), default=1000,
+                     show_default=True, help="Monte Carlo replicates for significance and intervals."),
+        click.option("--discard-review", is_flag=True,
+                     help="Start from the automatic segmentation: an existing review.json is renamed aside."),
+    ]
+    for option in reversed(options):
+        func = option(func)
+    return func

@@ -5,7 +5,7 @@ from pathlib import Path
 
 import click
 
-from ._common import echo, out_dir_option, seed_option
+from ._common import analysis_options, echo, out_dir_option, seed_option
 from ._scan_options import prepare_kwargs, scan_options
 
 
@@ -47,14 +47,7 @@ def summary_lines(result: dict, folder: Path) -> list[str]:
 @out_dir_option()
 @scan_options
 @seed_option()
-@click.option("--min-period", "min_period", type=float, default=None,
-              help="Shortest annual period searched, in bands (default: a few bands).")
-@click.option("--max-period", "max_period", type=float, default=None,
-              help="Longest annual period searched, in bands (default: about a third of the record).")
-@click.option("--simulations", "n_sim", type=click.IntRange(100, 100000), default=1000, show_default=True,
-              help="Monte Carlo replicates for significance and intervals.")
-@click.option("--discard-review", is_flag=True,
-              help="Start from the automatic segmentation: an existing review.json is renamed aside.")
+@analysis_options
 @click.option("--no-report", is_flag=True, help="Write result.json and bands.csv only.")
 @click.pass_context
 def analyze(ctx, scan, out, seed, min_period, max_period, n_sim, discard_review, no_report, **opts):

@@ -3,7 +3,7 @@ from __future__ import annotations
 
 import click
 
-from ._common import echo, existing_path, out_dir_option, seed_option
+from ._common import analysis_options, echo, existing_path, out_dir_option, seed_option
 
 
 @click.command("batch")
@@ -15,14 +15,7 @@ from ._common import echo, existing_path, out_dir_option, seed_option
               help="Dask scheduler address (e.g. tcp://10.0.0.5:8786); the cluster runs the specimens. "
                    "The --out folder must be on a file system every worker sees.")
 @seed_option()
-@click.option("--min-period", "min_period", type=float, default=None,
-              help="Shortest annual period searched, in bands (default: a few bands).")
-@click.option("--max-period", "max_period", type=float, default=None,
-              help="Longest annual period searched, in bands (default: about a third of the record).")
-@click.option("--simulations", "n_sim", type=click.IntRange(100, 100000), default=1000, show_default=True,
-              help="Monte Carlo replicates for significance and intervals, per specimen.")
-@click.option("--discard-review", is_flag=True,
-              help="Start each specimen from its automatic segmentation (review.json renamed aside).")
+@analysis_options
 @click.option("--no-report", is_flag=True, help="Skip each specimen's HTML/PDF report (faster).")
 @click.option("--no-compile", is_flag=True, help="Do not write the compilation across specimens.")
 @click.pass_context
