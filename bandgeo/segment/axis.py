@@ -15,7 +15,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.ndimage import gaussian_filter1d
+from scipy.signal import savgol_filter
 
 
 @dataclass
@@ -148,7 +148,7 @@ def _straight(vertices: np.ndarray, axis: np.ndarray) -> Centreline:
 
 
 def fit_centreline(vertices: np.ndarray, wall: np.ndarray, axis0: np.ndarray, slab_mm: float,
-                   smooth_mm: float, passes: int = 2, noise_mm: float = 0.0) -> Centreline:
+                   smooth_mm: float, passes: int = 2, noise_mm: float = 0.0, faces=None) -> Centreline:
     """Centreline through circle centres of slabs of the side wall.
 
     Parameters
@@ -165,8 +165,9 @@ def fit_centreline(vertices: np.ndarray, wall: np.ndarray, axis0: np.ndarray, sl
     passes : int
         Each pass cuts the slabs across the previous pass's curve.
     noise_mm : float
-        Scanner noise (rms); the base is the median of the vertices within 6 noise of the lowest one,
-        so that noise does not pull the origin below the true base.
+        Scanner noise (rms), so that noise does not pull the origin below the true base.
+    faces : (m, 3) int, optional
+        With faces, an open base is found as the mesh's lowest boundary loop.
 
     Returns
     -------
@@ -192,8 +193,7 @@ def fit_centreline(vertices: np.ndarray, wall: np.ndarray, axis0: np.ndarray, sl
         base, _ = line.at(ms[ok])
         be1, be2 = line.frame(ms[ok])
         pts = base + cx[ok, None] * be1 + cy[ok, None] * be2
-        sig = max(smooth_mm / slab_mm, 0.5)
-        pts = gaussian_filter1d(pts, sig, axis=0, mode="nearest")
+        pts = _smooth(pts, smooth_mm / slab_mm)
         seg = np.linalg.norm(np.diff(pts, axis=0), axis=1)
         keep = np.r_[True, seg > 1e-9]
         pts = pts[keep]
@@ -204,8 +204,47 @@ def fit_centreline(vertices: np.ndarray, wall: np.ndarray, axis0: np.ndarray, sl
             pts, tan, arc = pts[::-1], -tan[::-1], arc[-1] - arc[::-1]
         line = Centreline(arc, pts, tan)
     # arc length 0 at the lowest point of the whole mesh along the curve
-    s_all, _ = line.project(vertices)
-    low = float(s_all.min())
-    tol = 6.0 * noise_mm if np.isfinite(noise_mm) and noise_mm > 0 else 0.0
-    shift = float(np.median(s_all[s_all <= low + tol])) if tol > 0 else low
+    shift = _base_height(line, vertices, wall, noise_mm, faces)
     return Centreline(line.heights_mm - shift, line.points_mm, line.tangents)
+
+
+def _smooth(pts: np.ndarray, sigma_samples: float) -> np.ndarray:
+    """Smooth a sampled curve: local quadratic fits (Savitzky & Golay 1964, Anal. Chem. 36:1627) over
+    about four sigma, which, unlike padding, keep the curve's bend right up to its ends."""
+    n = len(pts)
+    win = int(2 * np.ceil(2.0 * max(sigma_samples, 0.5)) + 1)
+    win = min(win, n if n % 2 else n - 1)
+    if win < 5:
+        return pts
+    return savgol_filter(pts, win, 2, axis=0, mode="interp")
+
+
+def _base_height(line: Centreline, vertices: np.ndarray, wall: np.ndarray, noise_mm: float, faces=None) -> float:
+    """Arc length of the column's base on ``line``.
+
+    A cut base is a cap across the axis: its vertices near the axis (within a third of the radius)
+    give the base where the axis meets it, even when the cut is not square to the axis. An open base
+    has no such vertices; then the lowest boundary loop of the mesh (the rim of the open end) is used,
+    or without faces the lowest side-wall vertices. Medians keep scanner noise from pulling the base
+    below the surface (common practice).
+    """
+    s_all, radial = line.project(vertices)
+    rho = np.linalg.norm(radial, axis=1)
+    r_wall = float(np.median(rho[wall])) if wall.any() else float(np.median(rho))
+    s_wall = s_all[wall] if wall.any() else s_all
+    low_wall = float(s_wall.min())
+    tol = 6.0 * noise_mm if np.isfinite(noise_mm) and noise_mm > 0 else 0.0
+    # cap vertices near the axis, below the lowest part of the side wall plus a tilt allowance
+    near = (rho < r_wall / 3.0) & (s_all < low_wall + 0.2 * r_wall)
+    if near.sum() >= 3:
+        cap = s_all[near]
+        lo = float(cap.min())
+        return float(np.median(cap[cap <= lo + tol + 0.1 * r_wall]))
+    if faces is not None and len(faces):
+        from ..features.curvature import boundary_vertices
+
+        rim = boundary_vertices(np.asarray(faces), len(vertices)) & (s_all < low_wall + 0.2 * r_wall)
+        if rim.sum() >= 3:
+            return float(np.median(s_all[rim]))
+    ring = s_wall[s_wall <= low_wall + max(tol, 1e-9)]
+    return float(np.median(ring))

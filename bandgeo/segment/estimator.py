@@ -187,7 +187,7 @@ class BandSegmenter:
             drop = rng.choice(wall_idx, size=int(wall.sum()) - AXIS_SUBSAMPLE, replace=False)
             wall_axis[drop] = False
         axis = fit_centreline(v, wall_axis, axis0, slab_mm=max(spacing, 2 * samp), smooth_mm=2.0 * spacing,
-                              noise_mm=float(features.noise_mm))
+                              noise_mm=float(features.noise_mm), faces=getattr(specimen, "faces", None))
         s_all, radial = axis.project(v)
         e1, e2 = axis.frame(s_all[wall_idx])
         rw = radial[wall_idx]
