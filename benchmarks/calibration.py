@@ -22,8 +22,16 @@ from bandgeo.series import series_from_thickness
 from bandgeo.spectral import test_periodicity
 from bandgeo.synth import SynthParams, simulate_laminae
 
-#: Tilt measurement noise added to the forward model's (noise-free) growth direction, degrees.
+#: Tilt measurement noise added to the forward model's (noise-free) growth direction, degrees: an
+#: isotropic error of each tilt component (east, north), as a measured growth direction would have.
 TILT_NOISE_DEG = 0.5
+
+
+def _noisy_tilt(rec, rng):
+    """Inclination and azimuth of the forward model's tilt vector plus isotropic measurement noise."""
+    east = rec.tilt_east_deg + rng.normal(0, TILT_NOISE_DEG, rec.n_laminae)
+    north = rec.tilt_north_deg + rng.normal(0, TILT_NOISE_DEG, rec.n_laminae)
+    return np.hypot(east, north), np.degrees(np.arctan2(east, north)) % 360.0
 
 
 def signal_case(i: int, with_sway: bool = True):
@@ -37,8 +45,8 @@ def signal_case(i: int, with_sway: bool = True):
     rec = simulate_laminae(p)
     if not with_sway:
         return series_from_thickness(rec.thickness_mm, source="synth"), dpy
-    inc = rec.inclination_deg + rng.normal(0, TILT_NOISE_DEG, rec.n_laminae)
-    return series_from_thickness(rec.thickness_mm, inc, rec.azimuth_deg, source="synth"), dpy
+    inc, az = _noisy_tilt(rec, rng)
+    return series_from_thickness(rec.thickness_mm, inc, az, source="synth"), dpy
 
 
 def null_case(i: int, with_sway: bool = True):
@@ -50,8 +58,8 @@ def null_case(i: int, with_sway: bool = True):
     rec = simulate_laminae(p)
     if not with_sway:
         return series_from_thickness(rec.thickness_mm, source="synth")
-    inc = rec.inclination_deg + rng.normal(0, TILT_NOISE_DEG, rec.n_laminae)
-    return series_from_thickness(rec.thickness_mm, inc, rec.azimuth_deg, source="synth")
+    inc, az = _noisy_tilt(rec, rng)
+    return series_from_thickness(rec.thickness_mm, inc, az, source="synth")
 
 
 def coverage(n_series: int, n_sim: int, methods=("spectrum", "cycle_count", "sway"), with_sway=True):
