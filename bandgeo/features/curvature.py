@@ -136,11 +136,26 @@ def sampling_along(vertices: np.ndarray, faces: np.ndarray, axis: np.ndarray) ->
     For each vertex the longest projection on the axis of its incident edges is the distance to the
     next row of samples along the axis; the median over vertices is robust to anisotropic meshes
     (rings of few vertices) where the median edge length is dominated by the long circumferential edges.
+
+    Parameters
+    ----------
+    vertices : (n, 3) float, mm
+    faces : (m, 3) int
+    axis : (3,) unit vector, or (n, 3) unit tangents of the growth axis at each vertex (a leaning,
+        swaying column: long edges around a ring must not pick up the local tilt)
     """
     n = len(vertices)
+    axis = np.asarray(axis, dtype=float)
+    local = axis.ndim == 2
     proj = np.zeros(n)
     for a_col, b_col in ((0, 1), (1, 2), (2, 0)):
-        d = np.abs((vertices[faces[:, b_col]] - vertices[faces[:, a_col]]) @ axis)
+        e = vertices[faces[:, b_col]] - vertices[faces[:, a_col]]
+        if local:
+            t = axis[faces[:, a_col]] + axis[faces[:, b_col]]
+            t /= np.linalg.norm(t, axis=1, keepdims=True)
+            d = np.abs(np.einsum("ij,ij->i", e, t))
+        else:
+            d = np.abs(e @ axis)
         np.maximum.at(proj, faces[:, a_col], d)
         np.maximum.at(proj, faces[:, b_col], d)
     used = proj > 0

@@ -185,7 +185,11 @@ def fit_centreline(vertices: np.ndarray, wall: np.ndarray, axis0: np.ndarray, sl
         nb = max(2, int(np.ceil((s.max() - s0) / slab_mm)))
         u = np.minimum(((s - s0) / slab_mm).astype(np.int64), nb - 1)
         cx, cy, _ = circle_centres(u, x, y, nb)
-        ok = np.isfinite(cx)
+        # end slabs cut obliquely through the last rings hold a partial circle that pulls the centre
+        # (and so the end tangents) aside: only slabs with most of a full slab's vertices count
+        counts = np.bincount(u, minlength=nb)
+        full = counts >= 0.7 * np.median(counts[counts > 0])
+        ok = np.isfinite(cx) & full
         if ok.sum() < 2:
             break
         # centre of each slab in 3-D: point on the old curve at the slab's mean s, plus the offset

@@ -115,7 +115,7 @@ class BandSegmenter:
     # ------------------------------------------------------------------ fit
     def fit(self, specimen, features, progress=None) -> "BandSegmenter":
         """Segment ``specimen`` using its ``features`` (from :func:`bandgeo.features.compute_features`)."""
-        from ..features import rough_axis
+        from ..features import rough_axis, sampling_along
 
         self._validate()
         try:
@@ -189,6 +189,10 @@ class BandSegmenter:
         axis = fit_centreline(v, wall_axis, axis0, slab_mm=max(spacing, 2 * samp), smooth_mm=2.0 * spacing,
                               noise_mm=float(features.noise_mm), faces=getattr(specimen, "faces", None))
         s_all, radial = axis.project(v)
+        faces = getattr(specimen, "faces", None)
+        if faces is not None and len(faces):
+            # the sampling interval along the fitted (leaning, swaying) axis, not the rough one
+            samp = sampling_along(v, np.asarray(faces), axis.at(s_all)[1])
         e1, e2 = axis.frame(s_all[wall_idx])
         rw = radial[wall_idx]
         angle = np.arctan2(np.einsum("ij,ij->i", rw, e2), np.einsum("ij,ij->i", rw, e1))
