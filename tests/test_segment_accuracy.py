@@ -138,3 +138,22 @@ def test_coarse_sampling_is_flagged():
     assert res["spacing_to_sampling"] < 3.0
     assert any("sampling interval" in w for w in seg.warnings)
     assert any("sampling interval" in str(f[2]) or "not resolved" in str(f[2]) for f in res["flagged"])
+
+
+def test_fixed_class_count_progress_and_untouched_options():
+    # scikit-learn convention (common practice): fit sets trailing-underscore results and leaves the
+    # options as given; progress reports go through the callback
+    p = SynthParams(**{**BASE, "years": 0.04, "seed": 18})
+    sp = simulate(p)
+    scan = Scan(vertices=sp.vertices, faces=sp.faces, colors=sp.colors, path="s.ply", sha256="0",
+                file_format="ply-binary-le")
+    spec = prepare(scan, units=p.units, up=np.asarray(sp.truth["frames"]["paleo_up_file"]))
+    feat = compute_features(spec)
+    calls = []
+    est = BandSegmenter(n_classes=3, random_state=5)
+    before = est.get_params()
+    est.fit(spec, feat, progress=lambda d, done, total: calls.append((d, done, total)))
+    assert est.get_params() == before and est.n_classes_ == 3 and est.bic_ == {}
+    assert est.segmentation_.class_names == ["groove", "flank", "ridge"]
+    assert calls and calls[-1][1] == calls[-1][2]
+    assert len(est.segmentation_.boundaries) >= 5
