@@ -113,9 +113,10 @@ def format_inspection(info: dict) -> str:
         f"holes        {info['holes']} boundary loops ({info['boundary_edges']} boundary edges)",
         f"units        {u} (from {info['units_source']}; {info['mm_per_unit']:g} mm per file unit)",
         f"size         height {size['height']:.4g} {u}, width {size['width']:.4g} {u}, column diameter "
-        f"{size['diameter']:.4g} {u} (height {smm['height']:.4g} mm, width {smm['width']:.4g} mm, diameter "
-        f"{smm['diameter']:.4g} mm)",
-        f"median edge  {info['median_edge']['value']:.4g} {u} ({info['median_edge_mm']:.4g} mm)",
+        f"{size['diameter']:.4g} {u}" + ("" if u == "mm" else f" (height {smm['height']:.4g} mm, width "
+                                        f"{smm['width']:.4g} mm, diameter {smm['diameter']:.4g} mm)"),
+        f"median edge  {info['median_edge']['value']:.4g} {u}"
+        + ("" if u == "mm" else f" ({info['median_edge_mm']:.4g} mm)"),
         f"up (scan)    {_vec(up['scan_frame'])} from {up['source']}, confidence {up['confidence']:.2f} (0..1)",
         f"estimated up {_vec(est['scan_frame'])}, confidence {est['confidence']:.2f} (0..1), "
         f"95% within {est['ci95_deg'][1]:.2f} deg ({est['method']})",
