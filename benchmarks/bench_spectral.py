@@ -48,7 +48,7 @@ def main(n: int = 100_000, n_sim: int = 1000) -> int:
     d = res.days_per_year
     print(f"test_periodicity with the sway series too (two nulls, two interval Monte Carlos): {full:.2f} s; "
           f"ratio to thickness only {full / np.median(times):.2f}")
-    print(f"  estimate {d['estimate']:.2f} bands, 95% interval {d['ci95'][0]:.2f}-{d['ci95'][1]:.2f} "
+    print(f"  estimate {d['estimate']:.3f} bands, 95% interval {d['ci95'][0]:.3f}-{d['ci95'][1]:.3f} "
           f"(truth 400)")
 
     tracemalloc.start()

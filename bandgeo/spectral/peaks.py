@@ -15,7 +15,7 @@ import numpy as np
 
 from ..progress import report
 from .lomb_scargle import detrend, fft_frequencies, fft_power, fft_transform, parabolic_peak, \
-    refine_frequency, refine_ls
+    refine_ls
 from .rednoise import fit_ar1_spectrum, simulate_ar1
 from .significance import LARGE_N
 
@@ -50,7 +50,7 @@ def local_window(f_hat: float, n: int) -> tuple[float, float]:
 def estimate_in_window(x: np.ndarray, P: np.ndarray, frequency: np.ndarray, n_fft: int,
                        lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
     """Peak frequency of each row inside its own window ``[lo, hi]``: grid maximum of the periodogram,
-    parabolic interpolation, then Newton refinement on the exact periodogram.
+    parabolic interpolation, then least-squares refinement (:func:`~bandgeo.spectral.lomb_scargle.refine_ls`).
 
     Parameters
     ----------
@@ -65,9 +65,9 @@ def estimate_in_window(x: np.ndarray, P: np.ndarray, frequency: np.ndarray, n_ff
     inside = (frequency[None, :] >= np.asarray(lo)[:, None]) & (frequency[None, :] <= np.asarray(hi)[:, None])
     k = np.argmax(np.where(inside, P, -np.inf), axis=1)
     f0 = parabolic_peak(P, k, n_fft)
-    # Newton refinement costs O(n) per row and step; beyond LARGE_N bands the parabola on the
-    # oversampled grid is used alone (the same on data and replicates, so the interval is unaffected).
-    f = refine_ls(x, refine_frequency(x, f0)) if x.shape[1] <= LARGE_N else f0
+    # The least-squares refinement costs O(n) per row and step; beyond LARGE_N bands the parabola on
+    # the oversampled grid is used alone (the same on data and replicates, so the interval is unaffected).
+    f = refine_ls(x, f0, n_iter=4) if x.shape[1] <= LARGE_N else f0
     return np.clip(f, lo, hi)
 
 
@@ -100,7 +100,7 @@ def peak_monte_carlo(x: np.ndarray, f_hat: float, other_freqs, n_fft: int, n_boo
 
     The data are modelled as the fitted sinusoid at ``f_hat`` (plus any other significant sinusoids) and
     an AR(1) residual fitted robustly; each replicate adds a new AR(1) series to the model and
-    re-estimates the peak exactly as on the data (window search, parabola, Newton).
+    re-estimates the peak exactly as on the data (window search, parabola, least-squares refinement).
 
     Parameters
     ----------
