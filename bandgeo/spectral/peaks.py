@@ -50,7 +50,7 @@ def local_window(f_hat: float, n: int) -> tuple[float, float]:
 def estimate_in_window(x: np.ndarray, P: np.ndarray, frequency: np.ndarray, n_fft: int,
                        lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
     """Peak frequency of each row inside its own window ``[lo, hi]``: grid maximum of the periodogram,
-    parabolic interpolation, then least-squares refinement (:func:`~bandgeo.spectral.lomb_scargle.refine_ls`).
+    parabolic interpolation, then least-squares refinement (:func:`refine_ls`).
 
     Parameters
     ----------
