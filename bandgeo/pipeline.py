@@ -265,9 +265,9 @@ def _astronomy_block(astro, per: dict) -> dict:
                                        days_per_year_ci95=dpy.get("ci95"),
                                        days_per_month_ci95=tidal.get("ci95"))
         block["synodic_months_per_year"] = months
-        est = months.get("estimate") if isinstance(months, dict) else months
         block["earth_moon_distance"] = astro.earth_moon_distance(
-            synodic_months_per_year=est, days_per_year=dpy["estimate"])
+            synodic_months_per_year=months["estimate"], days_per_year=dpy["estimate"],
+            months_ci95=months.get("ci95"), days_per_year_ci95=dpy.get("ci95"))
     return block
 
 

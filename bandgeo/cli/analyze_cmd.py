@@ -19,7 +19,7 @@ def _fmt_interval(block, unit, digits=1):
     return text
 
 
-def summary_lines(result: dict, folder: Path) -> list[str]:
+def summary_lines(result: dict, folder: Path, report: bool = True) -> list[str]:
     """The lines ``analyze`` and ``report`` print: what was found, with units and intervals."""
     bands = result.get("bands", {})
     dpy = result.get("days_per_year") or {}
@@ -38,7 +38,14 @@ def summary_lines(result: dict, folder: Path) -> list[str]:
                      + (f" (p = {p:.3g})" if p is not None else "") + "; no estimate given")
     for warning in result.get("warnings", []):
         lines.append(f"warning: {warning}")
-    lines.append(f"wrote {folder}/result.json and the report {folder}/report.html")
+    tidal = ((result.get("tidal") or {}).get("days_per_synodic_month") or {})
+    if tidal.get("significant"):
+        lines.append(f"days per synodic month: {_fmt_interval(tidal, 'days', 2)}")
+        distance = ((result.get("earth_moon_distance") or {}).get("angular_momentum") or {})
+        if distance.get("distance_km"):
+            lines.append("Earth-Moon distance (angular momentum): "
+                         f"{_fmt_interval(distance['distance_km'], 'km', 0)}")
+    lines.append(f"wrote {folder}/result.json" + (f" and the report {folder}/report.html" if report else ""))
     return lines
 
 
@@ -64,5 +71,5 @@ def analyze(ctx, scan, out, seed, min_period, max_period, n_sim, discard_review,
         state = pipeline.analyze(scan, out, seed=seed, keep_review=not discard_review,
                                  report=not no_report, min_period_bands=min_period,
                                  max_period_bands=max_period, n_sim=n_sim, progress=cb, **kwargs)
-    for line in summary_lines(state.result, out):
+    for line in summary_lines(state.result, out, report=not no_report):
         echo(ctx, line)
