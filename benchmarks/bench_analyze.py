@@ -17,11 +17,11 @@ import numpy as np
 def make_scan(folder: Path, faces: int):
     from bandgeo.synth import SynthParams, simulate, write_specimen
 
-    # Choose the number of years so that the mesh has about the requested faces at the default density.
-    probe = simulate(SynthParams(years=1.0, seed=1))
-    per_year = len(probe.faces)
-    years = max(1.0, faces / per_year)
-    spec = simulate(SynthParams(years=years, seed=1))
+    # Three years of record (so that an annual cycle is testable: the search runs to a third of the
+    # record), with the vertices per ring chosen to give about the requested number of faces.
+    probe = simulate(SynthParams(years=3.0, ring_vertices=32, seed=1))
+    ring_vertices = max(16, int(round(32 * faces / len(probe.faces))))
+    spec = simulate(SynthParams(years=3.0, ring_vertices=ring_vertices, seed=1))
     path = folder / "bench.ply"
     write_specimen(spec, path)
     truth = json.loads((folder / "bench.truth.json").read_text())
