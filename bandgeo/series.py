@@ -144,7 +144,9 @@ def _hiatus_from_flags(flags, n: int) -> np.ndarray:
     if arr.dtype == bool:
         return arr.reshape(-1)[:n].copy()
     if arr.dtype.kind in "US O".replace(" ", ""):
-        return np.array([("hiatus" in str(f).lower()) or ("gap" in str(f).lower()) for f in arr.reshape(-1)])
+        # Only stretches marked as hiatuses (by review, "hiatus: note") count; repair notes such as
+        # "gap filled" describe the ring tracing, not missing time.
+        return np.array(["hiatus" in str(f).lower() for f in arr.reshape(-1)])
     return np.zeros(n, bool)
 
 

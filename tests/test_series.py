@@ -99,3 +99,21 @@ def test_missing_file_is_input_error(tmp_path):
 def test_series_from_thickness_checks_lengths():
     with pytest.raises(SeriesError):
         series_from_thickness(np.ones(50), inclination_deg=np.ones(49))
+
+
+def test_only_hiatus_marks_count_as_hiatus_flags():
+    # A ring-tracing repair note ("gap filled") is not evidence of missing days; a review mark is.
+    from types import SimpleNamespace
+
+    from bandgeo.series import build_series
+
+    n = 40
+    rng = np.random.default_rng(0)
+    flags = [""] * n
+    flags[3] = "gap filled; low confidence"
+    flags[7] = "hiatus: missing days after a storm layer"
+    table = SimpleNamespace(index=np.arange(n), thickness_axis_mm=rng.uniform(0.2, 0.3, n),
+                            thickness_median_mm=rng.uniform(0.2, 0.3, n), inclination_deg=np.full(n, 2.0),
+                            azimuth_deg=np.full(n, 30.0), flags=flags)
+    series = build_series(table)
+    assert np.flatnonzero(series.hiatus_flags).tolist() == [7]
