@@ -63,7 +63,7 @@ def folder(tmp_path_factory):
 @pytest.fixture(scope="module")
 def browser():
     if not Path(CHROMIUM).exists():
-        pytest.skip("Debian chromium is not installed (bash setup.sh installs it)")
+        pytest.skip(reason="Debian chromium is not installed (bash setup.sh installs it)")
     from playwright.sync_api import sync_playwright
 
     with sync_playwright() as p:
@@ -163,7 +163,7 @@ def test_fresh_server_shows_saved_edits(folder, browser):
 
     path, seg, rerun = folder
     if read_review(path) is None:
-        pytest.skip("runs after test_delete_add_save_reload")
+        pytest.skip(reason="runs after test_delete_add_save_reload")
     server = serve(path, open_browser=False, segmentation=seg, rerun=rerun)
     try:
         page = browser.new_page(viewport={"width": 1366, "height": 768})

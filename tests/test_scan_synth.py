@@ -76,7 +76,7 @@ def _samples():
 def test_bundled_samples(path):
     truth_file = path.with_name(path.stem + ".truth.json")
     if not truth_file.exists():
-        pytest.skip("no truth file beside the sample")
+        pytest.skip(reason="no truth file beside the sample")
     truth = json.loads(truth_file.read_text())
     frames = truth["frames"]
     info = inspect_scan(path)
