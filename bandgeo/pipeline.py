@@ -150,6 +150,7 @@ def analyze(scan_path, out_dir, *, units=None, up=None, north=None, strike_dip=N
     scan = timer.run("load", _scan.load_scan, scan_path)
     specimen = timer.run("orient", _scan.prepare, scan, units=units, up=up, north=north,
                          strike_dip=strike_dip, sheet=sheet, scale=scale)
+    specimen.warnings.extend(orientation_warnings(specimen))
     feats = timer.run("features", _features.compute_features, specimen)
     segmenter = _segment.BandSegmenter(random_state=seed)
     auto = timer.run("segment", lambda: segmenter.fit(specimen, feats).segmentation_)
@@ -174,6 +175,32 @@ def analyze(scan_path, out_dir, *, units=None, up=None, north=None, strike_dip=N
     }
     state = _downstream(out_dir, specimen, auto, parameters, timer, report=report)
     return state
+
+
+#: Angle between the column's own long axis and the paleo-vertical given, above which a warning is
+#: raised. Heliotropic leans reported for fossil columns are a few degrees to some tens of degrees
+#: (common practice: treat a lean beyond 30 degrees as a probable way-up or bedding mistake).
+AXIS_VERTICAL_WARN_DEG = 30.0
+
+
+def orientation_warnings(specimen) -> list[str]:
+    """Warn when a given way-up disagrees with the column's own long axis (a likely input mistake)."""
+    summary = getattr(specimen, "summary", None) or {}
+    given, estimated = summary.get("paleo_up_scan"), summary.get("estimated_up_scan")
+    if specimen.up_source == "estimated" or given is None or estimated is None:
+        return []
+    if (summary.get("estimated_up_confidence") or 0.0) < 0.8:
+        return []
+    g, e = np.asarray(given, float), np.asarray(estimated, float)
+    angle = float(np.degrees(np.arccos(np.clip(g @ e / (np.linalg.norm(g) * np.linalg.norm(e)), -1, 1))))
+    if angle >= 180.0 - AXIS_VERTICAL_WARN_DEG:
+        return [f"the way-up given ({specimen.up_source}) points to the end of the column that looks like its "
+                f"base ({180 - angle:.0f} deg from the base-to-top axis); check that the way-up is not reversed"]
+    if angle <= AXIS_VERTICAL_WARN_DEG:
+        return []
+    return [f"the column's long axis lies {min(angle, 180 - angle):.0f} deg from the paleo-vertical given "
+            f"({specimen.up_source}); tilt and sway are measured against that vertical, so check the way-up "
+            "vector and the bedding"]
 
 
 def _set_review_aside(folder: Path) -> Optional[Path]:

@@ -96,3 +96,23 @@ def test_cli_bad_scan_is_one_line(tmp_path):
     assert proc.returncode == 2
     assert proc.stderr.count("\n") == 1 and "Traceback" not in proc.stderr
     assert bad.read_text() == "this is not a mesh\n"  # input untouched
+
+
+def test_way_up_far_from_the_column_axis_is_warned(tmp_path):
+    # A column's lean from paleo-vertical is a few degrees (the forward model's 1.5 deg here); a given
+    # way-up 60 deg off the long axis is an input mistake the user must hear about (common practice).
+    from types import SimpleNamespace
+
+    from bandgeo.pipeline import orientation_warnings
+
+    axis = np.array([0.0, 0.0, 1.0])
+    off = np.array([np.sin(np.radians(60)), 0.0, np.cos(np.radians(60))])
+    def spec(up):
+        return SimpleNamespace(up_source="cli", summary={"paleo_up_scan": up, "estimated_up_scan": axis,
+                                                        "estimated_up_confidence": 0.99})
+    assert orientation_warnings(spec(axis)) == []
+    (warning,) = orientation_warnings(spec(off))
+    assert "60 deg" in warning and "way-up" in warning
+    # a way-up pointing at the end that looks like the base is reported as a reversal
+    (reversed_,) = orientation_warnings(spec(-axis))
+    assert "reversed" in reversed_
