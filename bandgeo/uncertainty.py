@@ -58,10 +58,19 @@ def count_uncertainty(segmentation) -> dict:
 
 
 def widen_days_per_year(block: dict, counting: dict) -> dict:
-    """Return a copy of a ``days_per_year`` block with the counting uncertainty added to its interval.
+    """Return a copy of a ``days_per_year`` block with the counting uncertainty added to its interval,
+    and to the interval of each method in ``block["methods"]`` (all count the same bands).
 
     The spectral interval is kept as ``ci95_spectral``; ``ci95`` becomes the widened one.
     """
+    out = _widen(block, counting)
+    if isinstance(block.get("methods"), dict):
+        out["methods"] = {name: _widen(m, counting) if isinstance(m, dict) else m
+                          for name, m in block["methods"].items()}
+    return out
+
+
+def _widen(block: dict, counting: dict) -> dict:
     out = dict(block)
     est, ci = block.get("estimate"), block.get("ci95")
     if est is None or not ci or ci[0] is None:

@@ -55,3 +55,15 @@ def test_no_estimate_is_left_untouched():
     block = widen_days_per_year({"estimate": None, "ci95": None, "significant": False},
                                 count_uncertainty(_seg([0.5, 0.5])))
     assert block == {"estimate": None, "ci95": None, "significant": False}
+
+
+def test_each_method_interval_is_widened_alike():
+    counting = count_uncertainty(_seg(np.full(401, 0.5)))
+    block = {"estimate": 400.0, "ci95": [396.0, 404.0],
+             "methods": {"cycle_count": {"estimate": 400.0, "ci95": [396.0, 404.0]},
+                         "sway": {"estimate": None, "ci95": None}}}
+    out = widen_days_per_year(block, counting)
+    assert out["methods"]["cycle_count"]["ci95"] == pytest.approx(out["ci95"])
+    assert out["methods"]["cycle_count"]["ci95_spectral"] == [396.0, 404.0]
+    assert out["methods"]["sway"] == {"estimate": None, "ci95": None}
+    assert block["methods"]["cycle_count"]["ci95"] == [396.0, 404.0]  # input not modified
