@@ -105,9 +105,50 @@ def first_of_equal_rows(rows: np.ndarray) -> np.ndarray:
     return rep
 
 
+try:  # the traversal behind connected_components(connection="weak"), without its float64 copies
+    from scipy.sparse.csgraph._traversal import _connected_components_undirected as _cc_undirected
+except ImportError:  # pragma: no cover - other scipy versions: the public function (same labels, slower)
+    _cc_undirected = None
+
+
+def _cc_arrays(n: int, indices, indptr, indices_t, indptr_t) -> np.ndarray | None:
+    """Component labels of a graph given as CSR rows and CSR columns (int32), or None if unavailable."""
+    if _cc_undirected is None or n >= np.iinfo(np.int32).max or len(indices) >= np.iinfo(np.int32).max:
+        return None
+    labels = np.empty(n, dtype=np.int32)
+    try:
+        _cc_undirected(np.asarray(indices, np.int32), np.asarray(indptr, np.int32),
+                       np.asarray(indices_t, np.int32), np.asarray(indptr_t, np.int32), labels)
+    except (TypeError, ValueError):  # pragma: no cover - a changed private signature
+        return None
+    return labels
+
+
 def _components(n: int, a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Labels (0..k-1, numbered by lowest node) of the weakly connected components of edges a -> b."""
     graph = coo_matrix((np.ones(len(a), dtype=np.int8), (a, b)), shape=(n, n)).tocsr()
+    if _cc_undirected is not None:
+        gt = graph.T.tocsr()
+        labels = _cc_arrays(n, graph.indices, graph.indptr, gt.indices, gt.indptr)
+        if labels is not None:
+            return labels
     return connected_components(graph, directed=True, connection="weak")[1]
+
+
+def _face_components(m: int, ea: np.ndarray, eb: np.ndarray) -> np.ndarray:
+    """Pieces of faces joined by manifold edges, from the paired directed-edge positions ``ea``, ``eb``.
+
+    Each face lists its three neighbours across its edges (itself across a boundary edge): a
+    symmetric CSR graph built without sorting, whose transpose is itself.
+    """
+    nbr = np.repeat(np.arange(m, dtype=np.int32), 3)
+    nbr[ea] = eb // 3
+    nbr[eb] = ea // 3
+    indptr = np.arange(0, 3 * m + 1, 3, dtype=np.int32) if 3 * m < np.iinfo(np.int32).max else None
+    labels = None if indptr is None else _cc_arrays(m, nbr, indptr, nbr, indptr)
+    if labels is None:
+        return _components(m, ea // 3, eb // 3)
+    return labels
 
 
 @dataclass
@@ -272,7 +313,6 @@ def clean_mesh(vertices: np.ndarray, faces: np.ndarray, progress=None) -> CleanR
     fa, fb = ea // 3, eb // 3
     flat = f.ravel()  # flat[pos] is the first vertex of directed edge ``pos``
     same_dir = flat[ea] == flat[eb]  # the shared edge is walked the same way: the windings disagree
-    del ea, eb, pair_pos
     nm_runs = np.flatnonzero(runlen > 2)
     stats["non_manifold_edges"] = int(len(nm_runs))
     # 4. pieces (faces joined through edges)
@@ -281,7 +321,7 @@ def clean_mesh(vertices: np.ndarray, faces: np.ndarray, progress=None) -> CleanR
         head, member = _run_members(edges, nm_runs)
         piece = _components(m, np.concatenate([fa, order[head] // 3]), np.concatenate([fb, order[member] // 3]))
     else:
-        piece = _components(m, fa, fb)
+        piece = _face_components(m, ea, eb)
     area = 0.5 * area2
     piece_area = np.bincount(piece, weights=area)
     n_pieces = len(piece_area)
@@ -313,7 +353,7 @@ def clean_mesh(vertices: np.ndarray, faces: np.ndarray, progress=None) -> CleanR
         patch = piece if not len(nm_runs) else _components(m, pa, pb)
         flip = None
         stats["non_orientable_faces"] = 0
-    del fa, fb, same_dir, pa, pb, pd
+    del ea, eb, pair_pos, fa, fb, same_dir, pa, pb, pd
     # vol: each face's share of (enclosed volume x 6) about the vertex mean; the sum over a closed patch
     # does not depend on that reference point
     if flip is not None:
