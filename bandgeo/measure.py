@@ -10,7 +10,13 @@ For band ``k`` between boundaries ``k`` (base) and ``k+1`` (top), each fitted by
   distance taken from ``N_AROUND`` points around the base ring at the side wall (median radius of the
   band's wall vertices), so wedge-shaped laminae show their spread;
 - ``inclination_deg`` is the angle of ``g`` from the paleo-vertical ``z``; ``azimuth_deg`` is its
-  direction clockwise from north, ``atan2(x, y)`` (common practice for azimuths), 0..360.
+  direction clockwise from north, ``atan2(x, y)`` (common practice for azimuths), 0..360;
+- ``base_inclination_deg`` and ``base_azimuth_deg`` are the same angles of the base boundary's normal
+  alone. Neighbouring bands share a boundary, so the series of ``g`` is a moving average of the
+  boundary normals (white fit noise ``e_k`` becomes ``(e_k + e_{k+1}) / 2``, an MA(1) process whose
+  spectrum is red at short periods and reads as a broad excess at 4-7 bands against an AR(1)
+  background); the base normals share no data between bands, so their fit noise stays white. This is
+  the tilt series for the periodicity tests (:func:`bandgeo.series.build_series`).
 """
 from __future__ import annotations
 
@@ -34,7 +40,11 @@ LOW_CONFIDENCE = 0.5
 COLUMNS = (("band_index", "index"), ("base_mm", "base_mm"), ("top_mm", "top_mm"),
            ("thickness_axis_mm", "thickness_axis_mm"), ("thickness_median_mm", "thickness_median_mm"),
            ("thickness_iqr_mm", "thickness_iqr_mm"), ("inclination_deg", "inclination_deg"),
-           ("azimuth_deg", "azimuth_deg"), ("confidence", "confidence"), ("flags", "flags"))
+           ("azimuth_deg", "azimuth_deg"), ("base_inclination_deg", "base_inclination_deg"),
+           ("base_azimuth_deg", "base_azimuth_deg"), ("confidence", "confidence"), ("flags", "flags"))
+
+#: Columns that older tables may lack; read as missing (NaN) when absent.
+OPTIONAL_COLUMNS = ("base_inclination_deg", "base_azimuth_deg")
 
 
 @dataclass
@@ -62,6 +72,10 @@ class BandTable:
     warnings : list of str
     north_known : bool
         When False, azimuths are relative to the specimen's arbitrary y axis.
+    base_inclination_deg, base_azimuth_deg : (N,) float or None
+        Inclination and azimuth (degrees, same conventions) of the band's base boundary normal alone:
+        one boundary per band, so no two bands share data (the tilt series for the periodicity tests).
+        None (or NaN on reading an older CSV) when not measured.
     """
 
     index: np.ndarray
@@ -77,6 +91,8 @@ class BandTable:
     growth_direction: np.ndarray = None
     warnings: list = field(default_factory=list)
     north_known: bool = True
+    base_inclination_deg: np.ndarray = None
+    base_azimuth_deg: np.ndarray = None
 
     def __len__(self) -> int:
         return int(len(self.index))
@@ -87,7 +103,8 @@ class BandTable:
         for i in range(len(self)):
             row = {}
             for col, attr in COLUMNS:
-                val = getattr(self, attr)[i]
+                arr = getattr(self, attr)
+                val = float("nan") if arr is None else arr[i]
                 row[col] = val if isinstance(val, str) else (int(val) if col == "band_index" else float(val))
             out.append(row)
         return out
@@ -112,7 +129,7 @@ class BandTable:
             header = next(csv.reader(io.StringIO(path.read_text(encoding="utf-8-sig"))), [])
         except (UnicodeDecodeError, csv.Error) as exc:
             raise InputError(f"{path} is not a readable CSV ({exc}); re-export it") from None
-        missing = [c for c, _ in COLUMNS if c not in header]
+        missing = [c for c, _ in COLUMNS if c not in header and c not in OPTIONAL_COLUMNS]
         if missing:
             raise InputError(f"{path} lacks column(s) {', '.join(missing)}; expected the header "
                              f"{','.join(c for c, _ in COLUMNS)}")
@@ -120,6 +137,9 @@ class BandTable:
         for ln, row in enumerate(rows, start=2):
             for col, attr in COLUMNS:
                 raw = row.get(col)
+                if col not in header:
+                    data[attr].append(float("nan"))
+                    continue
                 if attr == "flags":
                     data[attr].append(raw or "")
                     continue
@@ -131,7 +151,8 @@ class BandTable:
         return cls(index=arr["index"].astype(int), base_mm=arr["base_mm"], top_mm=arr["top_mm"],
                    thickness_axis_mm=arr["thickness_axis_mm"], thickness_median_mm=arr["thickness_median_mm"],
                    thickness_iqr_mm=arr["thickness_iqr_mm"], inclination_deg=arr["inclination_deg"],
-                   azimuth_deg=arr["azimuth_deg"], confidence=arr["confidence"], flags=data["flags"])
+                   azimuth_deg=arr["azimuth_deg"], confidence=arr["confidence"], flags=data["flags"],
+                   base_inclination_deg=arr["base_inclination_deg"], base_azimuth_deg=arr["base_azimuth_deg"])
 
 
 def _fmt(v):
@@ -187,7 +208,7 @@ def measure_bands(specimen, segmentation) -> BandTable:
         if segmentation.boundaries is not None:
             warnings.append("fewer than two boundaries: no bands to measure")
         return BandTable(np.zeros(0, int), empty, empty, empty, empty, empty, empty, empty, empty, [],
-                         np.zeros((0, 3)), warnings, north_known)
+                         np.zeros((0, 3)), warnings, north_known, empty, empty)
     # median wall radius per band (from the labelled vertices), for the circumference samples
     s, radial = axis.project(v)
     r = np.linalg.norm(radial, axis=1)
@@ -245,11 +266,12 @@ def measure_bands(specimen, segmentation) -> BandTable:
             fl.append("boundaries cross")
         flags.append("; ".join(fl))
     inc, az = direction_angles(gdir)
+    base_inc, base_az = direction_angles(np.array([b.normal for b in bs[:-1]], dtype=float))
     return BandTable(index=np.arange(nb), base_mm=rows["base"], top_mm=rows["top"],
                      thickness_axis_mm=rows["tax"], thickness_median_mm=rows["tmed"],
                      thickness_iqr_mm=rows["tiqr"], inclination_deg=inc, azimuth_deg=az,
                      confidence=rows["conf"], flags=flags, growth_direction=gdir, warnings=warnings,
-                     north_known=north_known)
+                     north_known=north_known, base_inclination_deg=base_inc, base_azimuth_deg=base_az)
 
 
 def mean_growth_direction(table: BandTable) -> np.ndarray:

@@ -32,7 +32,9 @@ class BandSeries:
     thickness_mm : (N,) float
         Band thickness along the growth axis, mm.
     inclination_deg : (N,) float or None
-        Tilt of the growth direction from the paleo-vertical, degrees.
+        Tilt of the growth direction from the paleo-vertical, degrees. From a band table this is the
+        tilt of each band's base boundary normal (one boundary per band, so white measurement noise
+        stays white; see :mod:`bandgeo.measure`), unless the table lacks it.
     sway_deg : (N,) float or None
         Component of the tilt vector along the fitted sway plane, degrees (mean tilt included).
     depth_height_mm : (M,) float or None
@@ -157,7 +159,8 @@ def build_series(band_table, segmentation=None, specimen=None) -> BandSeries:
     ----------
     band_table : bandgeo.measure.BandTable
         Uses ``thickness_axis_mm`` (``thickness_median_mm`` where the axis value is missing),
-        ``inclination_deg``, ``azimuth_deg`` and ``flags``.
+        ``base_inclination_deg`` and ``base_azimuth_deg`` for the tilt (``inclination_deg`` and
+        ``azimuth_deg``, with a warning, when the table lacks them) and ``flags``.
     segmentation : bandgeo.segment.Segmentation, optional
         Its centreline gives the height of each vertex for the relief profile.
     specimen : bandgeo.scan.Specimen, optional
@@ -182,8 +185,8 @@ def build_series(band_table, segmentation=None, specimen=None) -> BandSeries:
         h[still] = float(np.median(h[~still]))
         warnings.append(f"{int(still.sum())} band(s) had no positive thickness (e.g. crossing boundaries); "
                         f"the median thickness was used for them - check them in review")
-    series = series_from_thickness(h, getattr(band_table, "inclination_deg", None),
-                                   getattr(band_table, "azimuth_deg", None), source="band table",
+    inc, az = _tilt_columns(band_table, h.size, warnings)
+    series = series_from_thickness(h, inc, az, source="band table",
                                    hiatus_flags=_hiatus_from_flags(getattr(band_table, "flags", None), h.size))
     series.warnings = warnings + series.warnings
     if segmentation is not None and specimen is not None:
@@ -193,6 +196,25 @@ def build_series(band_table, segmentation=None, specimen=None) -> BandSeries:
         except (ValueError, AttributeError) as exc:
             series.warnings.append(f"no relief profile along the height ({exc})")
     return series
+
+
+def _tilt_columns(band_table, n: int, warnings: list):
+    """The per-band tilt to analyse: the base boundary normals when measured, else the growth direction.
+
+    The growth direction averages a band's two boundary normals, which neighbouring bands share, so its
+    series is a moving average (MA(1)) of the boundary fit noise; the base normals are independent.
+    """
+    inc = getattr(band_table, "base_inclination_deg", None)
+    az = getattr(band_table, "base_azimuth_deg", None)
+    if inc is not None and az is not None:
+        inc, az = np.asarray(inc, dtype=float).reshape(-1), np.asarray(az, dtype=float).reshape(-1)
+        if inc.size == n and az.size == n and np.all(np.isfinite(inc)) and np.all(np.isfinite(az)):
+            return inc, az
+    inc, az = getattr(band_table, "inclination_deg", None), getattr(band_table, "azimuth_deg", None)
+    if inc is not None:
+        warnings.append("the band table has no base-boundary tilt; the growth direction (mean of two boundary "
+                        "normals shared with the neighbours) was used, whose noise is smoothed over two bands")
+    return inc, az
 
 
 def relief_profile(vertices_mm: np.ndarray, axis, spacing_mm: float, max_vertices: int = 2_000_000):
