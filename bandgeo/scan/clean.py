@@ -6,6 +6,7 @@ index in the low bits, which is several times faster than ``np.argsort`` on this
 """
 from __future__ import annotations
 
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -265,6 +266,19 @@ def clean_mesh(vertices: np.ndarray, faces: np.ndarray, progress=None) -> CleanR
             raise InputError(f"{n_bad} vertices have NaN or infinite coordinates (the first is vertex {first}) "
                              f"and {int(used_bad.sum())} faces use them; repair or re-export the scan")
     counts["nonfinite_vertices_removed"] = n_bad
+    # The edge sort, the largest single cost, does not depend on steps 1-2 when they change nothing (the
+    # usual case): start it on a second thread (numpy releases the GIL) and use it only in that case.
+    pool = ThreadPoolExecutor(max_workers=1) if faces.dtype == np.int64 and len(faces) >= 1 << 16 else None
+    try:
+        early = pool.submit(_edge_runs, faces, n) if pool is not None else None
+        return _clean_rest(vertices, faces, n, finite, n_bad, counts, stats, early, progress)
+    finally:
+        if pool is not None:
+            pool.shutdown(wait=True)
+
+
+def _clean_rest(vertices, faces, n, finite, n_bad, counts, stats, early, progress) -> CleanResult:
+    """Steps 1-6 of :func:`clean_mesh`; ``early`` is a future of ``_edge_runs(faces, n)`` or None."""
     # 1. merge exactly coincident vertices (finite ones only)
     arange_n = np.arange(n, dtype=np.int64)
     if n_bad:
@@ -297,9 +311,13 @@ def clean_mesh(vertices: np.ndarray, faces: np.ndarray, progress=None) -> CleanR
     # isolated two-face piece, which the piece step removes): only non-manifold runs need a look.
     report(progress, "cleaning: edges", 2, 6)
     counts["duplicate_faces_removed"] = 0
+    reuse = early is not None and not n_merged and not counts["degenerate_faces_removed"]
+    if early is not None and not reuse:
+        early.result()  # finish (and drop) the speculative sort before the real one
     while True:
         m = len(f)
-        edges = _edge_runs(f, n)
+        edges = early.result() if reuse else _edge_runs(f, n)
+        reuse = False
         nm = np.flatnonzero(edges.runlen > 2)
         if not len(nm):
             break
