@@ -14,6 +14,7 @@ import hashlib
 import io
 import os
 import re
+from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
 
 import numpy as np
@@ -289,43 +290,50 @@ def load_scan(path) -> Scan:
         raise _fail(name, f"cannot be read ({exc.strerror}); check its permissions")
     if len(data) == 0:
         raise _fail(name, "is empty (0 bytes); copy or export the scan again")
-    digest = hashlib.sha256(data).hexdigest()
-    ext = path.suffix.lower()
-    file_type = EXTENSIONS[ext]
-    if file_type == "ply":
-        fmt = _check_ply(data, name)
-    elif file_type == "stl":
-        fmt = _check_stl(data, name)
-    elif file_type == "off":
-        fmt = _check_off(data, name)
-    else:
-        fmt = file_type
-    fast = _fast_binary_ply(data) if fmt in ("ply-binary-le", "ply-binary-be") else None
-    if fast is not None:
-        vertices, faces, colors = fast
-        mesh = None
-    else:
-        mesh = _parse(data, path, file_type, name)
-        vertices = np.ascontiguousarray(mesh.vertices, dtype=np.float64)
-        faces = np.ascontiguousarray(mesh.faces, dtype=np.int64).reshape(-1, 3)
-    if len(vertices) == 0:
-        raise _fail(name, "holds no vertices; is it really a mesh? Re-export the scan")
-    if len(faces) == 0:
-        raise _fail(name, f"holds points only ({len(vertices)} vertices, no faces); mesh the point cloud first "
-                          "and export the faces")
-    if faces.min() < 0 or faces.max() >= len(vertices):
-        bad = int(np.count_nonzero((faces < 0) | (faces >= len(vertices))))
-        raise _fail(name, f"{bad} face indices point outside the {len(vertices)} vertices (valid 0.."
-                          f"{len(vertices) - 1}); the file is corrupt or its counts are wrong, re-export it")
-    if mesh is not None:
-        colors = _colors(mesh, len(vertices))
-    hint = units_hint(data, fmt)
-    if mesh is not None:
-        del mesh
-        gc.collect(1)  # trimesh objects hold reference cycles: free their arrays now (young generations: ms)
-    del data
+    # hashing releases the GIL: it runs on a second thread while the file is parsed
+    with ThreadPoolExecutor(max_workers=1) as pool:
+        hashed = pool.submit(_sha256, data)
+        ext = path.suffix.lower()
+        file_type = EXTENSIONS[ext]
+        if file_type == "ply":
+            fmt = _check_ply(data, name)
+        elif file_type == "stl":
+            fmt = _check_stl(data, name)
+        elif file_type == "off":
+            fmt = _check_off(data, name)
+        else:
+            fmt = file_type
+        fast = _fast_binary_ply(data) if fmt in ("ply-binary-le", "ply-binary-be") else None
+        if fast is not None:
+            vertices, faces, colors = fast
+            mesh = None
+        else:
+            mesh = _parse(data, path, file_type, name)
+            vertices = np.ascontiguousarray(mesh.vertices, dtype=np.float64)
+            faces = np.ascontiguousarray(mesh.faces, dtype=np.int64).reshape(-1, 3)
+        if len(vertices) == 0:
+            raise _fail(name, "holds no vertices; is it really a mesh? Re-export the scan")
+        if len(faces) == 0:
+            raise _fail(name, f"holds points only ({len(vertices)} vertices, no faces); mesh the point cloud "
+                              "first and export the faces")
+        if faces.min() < 0 or faces.max() >= len(vertices):
+            bad = int(np.count_nonzero((faces < 0) | (faces >= len(vertices))))
+            raise _fail(name, f"{bad} face indices point outside the {len(vertices)} vertices (valid 0.."
+                              f"{len(vertices) - 1}); the file is corrupt or its counts are wrong, re-export it")
+        if mesh is not None:
+            colors = _colors(mesh, len(vertices))
+        hint = units_hint(data, fmt)
+        if mesh is not None:
+            del mesh
+            gc.collect(1)  # trimesh objects hold reference cycles: free their arrays now (young gens: ms)
+        del data
+        digest = hashed.result()
     return Scan(vertices=vertices, faces=faces, colors=colors, path=str(path), sha256=digest, file_format=fmt,
                 units_hint=hint)
+
+
+def _sha256(data: bytes) -> str:
+    return hashlib.sha256(data).hexdigest()
 
 
 _UNITS_RE = re.compile(r"\bunits?\s*(?:[:=]|in)?\s*(um|mm|cm|m|in)\b", re.IGNORECASE)
