@@ -271,14 +271,15 @@ def clean_mesh(vertices: np.ndarray, faces: np.ndarray, progress=None) -> CleanR
     pool = ThreadPoolExecutor(max_workers=1) if faces.dtype == np.int64 and len(faces) >= 1 << 16 else None
     try:
         early = pool.submit(_edge_runs, faces, n) if pool is not None else None
-        return _clean_rest(vertices, faces, n, finite, n_bad, counts, stats, early, progress)
+        return _clean_rest(vertices, faces, n, finite, n_bad, counts, stats, pool, early, progress)
     finally:
         if pool is not None:
             pool.shutdown(wait=True)
 
 
-def _clean_rest(vertices, faces, n, finite, n_bad, counts, stats, early, progress) -> CleanResult:
-    """Steps 1-6 of :func:`clean_mesh`; ``early`` is a future of ``_edge_runs(faces, n)`` or None."""
+def _clean_rest(vertices, faces, n, finite, n_bad, counts, stats, pool, early, progress) -> CleanResult:
+    """Steps 1-6 of :func:`clean_mesh`; ``early`` is a future of ``_edge_runs(faces, n)`` on ``pool``
+    (a one-thread executor), or both are None."""
     # 1. merge exactly coincident vertices (finite ones only)
     arange_n = np.arange(n, dtype=np.int64)
     if n_bad:
@@ -297,7 +298,7 @@ def _clean_rest(vertices, faces, n, finite, n_bad, counts, stats, early, progres
     center = vertices[finite].mean(axis=0) if n_bad else vertices.mean(axis=0)
     area2, vol = _face_area_volume(vertices, f, center)
     sample = vertices[finite] if n_bad else vertices[:: max(1, n // 200_000)]
-    span = sample.max(axis=0) - sample.min(axis=0)  # sets the zero-area tolerance only
+    span = np.array([np.ptp(sample[:, k]) for k in range(3)])  # sets the zero-area tolerance only
     degenerate = repeated | (area2 <= 1e-13 * float(np.dot(span, span)))
     counts["degenerate_faces_removed"] = int(np.count_nonzero(degenerate))
     if degenerate.any():
@@ -336,16 +337,18 @@ def _clean_rest(vertices, faces, n, finite, n_bad, counts, stats, early, progres
         counts["duplicate_faces_removed"] += int(np.count_nonzero(dup))
         keep = ~dup
         f, area2, vol = f[keep], area2[keep], vol[keep]
-    referenced = np.zeros(n, dtype=bool)
-    referenced[f.ravel()] = True
-    counts["unreferenced_vertices_removed"] = int(n - np.count_nonzero(referenced | merged) - n_bad)
     order, starts, runlen = edges.order, edges.starts, edges.runlen
     pair_pos = starts[runlen == 2]
     ea, eb = order[pair_pos], order[pair_pos + 1]
+    nm_runs = np.flatnonzero(runlen > 2)
+    # pieces of a mesh without non-manifold edges: on the second thread, while the rest is counted
+    later = pool.submit(_face_components, m, ea, eb) if pool is not None and not len(nm_runs) else None
+    referenced = np.zeros(n, dtype=bool)
+    referenced[f.ravel()] = True
+    counts["unreferenced_vertices_removed"] = int(n - np.count_nonzero(referenced | merged) - n_bad)
     fa, fb = ea // 3, eb // 3
     flat = f.ravel()  # flat[pos] is the first vertex of directed edge ``pos``
     same_dir = flat[ea] == flat[eb]  # the shared edge is walked the same way: the windings disagree
-    nm_runs = np.flatnonzero(runlen > 2)
     stats["non_manifold_edges"] = int(len(nm_runs))
     # 4. pieces (faces joined through edges)
     report(progress, "cleaning: pieces", 3, 6)
@@ -353,7 +356,7 @@ def _clean_rest(vertices, faces, n, finite, n_bad, counts, stats, early, progres
         head, member = _run_members(edges, nm_runs)
         piece = _components(m, np.concatenate([fa, order[head] // 3]), np.concatenate([fb, order[member] // 3]))
     else:
-        piece = _face_components(m, ea, eb)
+        piece = later.result() if later is not None else _face_components(m, ea, eb)
     area = 0.5 * area2
     piece_area = np.bincount(piece, weights=area)
     n_pieces = len(piece_area)

@@ -254,12 +254,21 @@ def prepare(scan: Scan, *, units=None, up=None, north=None, strike_dip=None, she
     report(progress, "orienting", 1, 1)
     return Specimen(
         vertices_mm=vertices_mm, faces=faces,
-        colors=None if scan.colors is None else scan.colors[clean.scan_index],
+        colors=_kept_colors(scan.colors, clean.scan_index),
         scan_to_specimen=scan_to_specimen, units=units_name, mm_per_unit=float(k), up_source=up_source,
         up_confidence=float(up_conf), north_known=bool(north_known), cleaning=dict(clean.counts),
         transforms=transforms, warnings=warnings, sheet=sheet,
         specimen_id=(sheet.specimen_id if sheet is not None and sheet.specimen_id else _stem(scan.path)),
         scan_path=scan.path, scan_sha256=scan.sha256, scan_vertex_index=clean.scan_index, summary=summary)
+
+
+def _kept_colors(colors, scan_index):
+    """Colours of the kept vertices (a copy; a plain copy when every vertex was kept, in order)."""
+    if colors is None:
+        return None
+    if len(scan_index) == len(colors) and scan_index[0] == 0 and scan_index[-1] == len(colors) - 1:
+        return colors.copy()  # scan_index is increasing, so this means it is 0..n-1
+    return colors[scan_index]
 
 
 def _stem(path: str) -> str:
