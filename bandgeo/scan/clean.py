@@ -90,6 +90,8 @@ def first_of_equal_rows(rows: np.ndarray) -> np.ndarray:
     start = np.empty(k, dtype=bool)
     start[0] = True
     np.not_equal(hs[1:], hs[:-1], out=start[1:])
+    if start.all():  # every hash distinct (the usual scan): no two rows are equal
+        return np.arange(k, dtype=np.int64)
     head = np.maximum.accumulate(np.where(start, np.arange(k), 0))
     rep_sorted = order[head]
     rep = np.empty(k, dtype=np.int64)

@@ -102,12 +102,30 @@ class UpEstimate:
 
 
 def _face_geometry(vertices, faces):
+    """Centroids (k, 3), areas (k,) and unit normals (k, 3) of the given faces.
+
+    The cross product and its length are written out component by component: the same operations,
+    in the same order, as ``np.cross`` and ``np.linalg.norm(axis=1)``, without their temporaries.
+    """
     v0 = vertices[faces[:, 0]]
-    cross = np.cross(vertices[faces[:, 1]] - v0, vertices[faces[:, 2]] - v0)
-    area2 = np.linalg.norm(cross, axis=1)
-    centroid = v0 + (vertices[faces[:, 1]] + vertices[faces[:, 2]] - 2 * v0) / 3.0
+    v1 = vertices[faces[:, 1]]
+    v2 = vertices[faces[:, 2]]
+    a = v1 - v0
+    b = v2 - v0
+    cross = np.empty_like(a)
+    np.multiply(a[:, 1], b[:, 2], out=cross[:, 0])
+    cross[:, 0] -= a[:, 2] * b[:, 1]
+    np.multiply(a[:, 2], b[:, 0], out=cross[:, 1])
+    cross[:, 1] -= a[:, 0] * b[:, 2]
+    np.multiply(a[:, 0], b[:, 1], out=cross[:, 2])
+    cross[:, 2] -= a[:, 1] * b[:, 0]
+    area2 = np.sqrt(cross[:, 0] * cross[:, 0] + cross[:, 1] * cross[:, 1] + cross[:, 2] * cross[:, 2])
+    v1 += v2
+    v1 -= 2 * v0
+    v1 /= 3.0
+    v1 += v0
     normal = cross / np.maximum(area2, 1e-300)[:, None]
-    return centroid, 0.5 * area2, normal
+    return v1, 0.5 * area2, normal
 
 
 def _weighted_axis(points, weights):
