@@ -348,7 +348,7 @@ def _clean_rest(vertices, faces, n, finite, n_bad, counts, stats, pool, early, p
     referenced = np.zeros(n, dtype=bool)
     referenced[f.ravel()] = True
     counts["unreferenced_vertices_removed"] = int(n - np.count_nonzero(referenced | merged) - n_bad)
-    fa, fb = ea // 3, eb // 3
+    fa = fb = None  # the faces of each pair, when a step below needs them
     flat = f.ravel()  # flat[pos] is the first vertex of directed edge ``pos``
     same_dir = flat[ea] == flat[eb]  # the shared edge is walked the same way: the windings disagree
     stats["non_manifold_edges"] = int(len(nm_runs))
@@ -356,6 +356,7 @@ def _clean_rest(vertices, faces, n, finite, n_bad, counts, stats, pool, early, p
     report(progress, "cleaning: pieces", 3, 6)
     if len(nm_runs):
         head, member = _run_members(edges, nm_runs)
+        fa, fb = ea // 3, eb // 3
         piece = _components(m, np.concatenate([fa, order[head] // 3]), np.concatenate([fb, order[member] // 3]))
     else:
         piece = later.result() if later is not None else _face_components(m, ea, eb)
@@ -371,6 +372,8 @@ def _clean_rest(vertices, faces, n, finite, n_bad, counts, stats, pool, early, p
     counts["faces_in_removed_pieces"] = int(m - np.count_nonzero(keep_face))
     # 5. winding: consistent and outward, per edge-connected patch of the kept piece
     report(progress, "cleaning: winding", 4, 6)
+    if fa is None and (n_pieces > 1 or same_dir.any()):
+        fa, fb = ea // 3, eb // 3
     if n_pieces > 1:
         in_piece = keep_face[fa]
         pa, pb, pd = fa[in_piece], fb[in_piece], same_dir[in_piece]
