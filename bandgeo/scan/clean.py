@@ -159,6 +159,7 @@ class _Edges:
     order: np.ndarray    # (3m,) directed-edge positions (face * 3 + corner), sorted by undirected key
     starts: np.ndarray   # start of each run of equal keys in ``order``
     runlen: np.ndarray   # length of each run (1 boundary, 2 manifold, > 2 non-manifold)
+    down: np.ndarray = None  # (3m,) bool, directed edge ``pos`` runs from its larger vertex to its smaller
 
 
 def _edge_runs(f: np.ndarray, n: int) -> _Edges:
@@ -167,6 +168,7 @@ def _edge_runs(f: np.ndarray, n: int) -> _Edges:
     e1[:, :2] = f[:, 1:]
     e1[:, 2] = f[:, 0]
     e1 = e1.ravel()
+    down = e0 > e1
     key = np.minimum(e0, e1)
     key *= n
     key += np.maximum(e0, e1, out=e1)
@@ -192,7 +194,7 @@ def _edge_runs(f: np.ndarray, n: int) -> _Edges:
     np.not_equal(ks[1:], ks[:-1], out=start[1:])
     del ks, key
     starts = np.flatnonzero(start).astype(small)
-    return _Edges(order, starts, np.diff(np.append(starts, small(k))))
+    return _Edges(order, starts, np.diff(np.append(starts, small(k))), down)
 
 
 def _edge_ends(f: np.ndarray, pos: np.ndarray):
@@ -350,7 +352,9 @@ def _clean_rest(vertices, faces, n, finite, n_bad, counts, stats, pool, early, p
     counts["unreferenced_vertices_removed"] = int(n - np.count_nonzero(referenced | merged) - n_bad)
     fa = fb = None  # the faces of each pair, when a step below needs them
     flat = f.ravel()  # flat[pos] is the first vertex of directed edge ``pos``
-    same_dir = flat[ea] == flat[eb]  # the shared edge is walked the same way: the windings disagree
+    # the shared edge is walked the same way (the windings disagree) when both start at the same vertex,
+    # that is when both run the same way between its smaller and larger vertex (a small bool gather)
+    same_dir = edges.down[ea] == edges.down[eb]
     stats["non_manifold_edges"] = int(len(nm_runs))
     # 4. pieces (faces joined through edges)
     report(progress, "cleaning: pieces", 3, 6)
