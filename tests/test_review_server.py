@@ -254,17 +254,10 @@ def test_sigint_stops_cleanly_and_frees_the_port(tmp_path):
         line = proc.stdout.readline()
         assert "http://127.0.0.1:" in line and "?token=" in line
         port = int(line.split("http://127.0.0.1:")[1].split("/")[0])
-        proc.send_signal(signal.SIGINT)
-        out, err = proc.communicate(timeout=60)
-    finally:
-        if proc.poll() is None:
-            proc.kill()
-    assert proc.returncode == 0, err
-    assert "stopped" in out and "Traceback" not in err
-    with socket.socket() as sock:                            # the port is free again
-        sock.setsockopt(socket.SOL_SOCKET, socket.SO_REUSEADDR, 1)
-        sock.bind(("127.0.0.1", port))
-        sock.listen()
+    except BaseException:
+        proc.kill()
+        raise
+    _stop_with_ctrl_c(proc, port)
 
 
 def test_cli_refuses_a_folder_that_was_not_analysed(tmp_path):
@@ -293,18 +286,10 @@ def test_cli_serves_a_saved_segmentation_and_stops_on_ctrl_c(tmp_path):
         state = json.loads(conn.getresponse().read())
         conn.close()
         assert state["n_bands"] == len(seg.boundaries) - 1 and state["specimen_id"] == "KRB-31"
-        proc.send_signal(signal.SIGINT)
-        out, err = proc.communicate(timeout=60)
-    finally:
-        if proc.poll() is None:
-            proc.kill()
-    assert proc.returncode == 0, err
-    assert "stopped" in out and "Traceback" not in err
-    with socket.socket() as sock:                            # no listener is left on the port
-        # SO_REUSEADDR lets the bind pass over connections in TIME_WAIT, never over a live listener.
-        sock.setsockopt(socket.SOL_SOCKET, socket.SO_REUSEADDR, 1)
-        sock.bind(("127.0.0.1", port))
-        sock.listen()
+    except BaseException:
+        proc.kill()
+        raise
+    _stop_with_ctrl_c(proc, port)
 
 
 def test_a_review_that_does_not_fit_is_a_one_line_error(tmp_path):
@@ -374,3 +359,20 @@ def test_connections_beyond_the_limit_are_refused_not_queued_forever(served):
         time.sleep(0.25)
     else:
         pytest.fail("the server did not recover after the idle connections closed")
+
+
+def _stop_with_ctrl_c(proc, port):
+    """Send Ctrl-C to a running server process; check it exits 0 with one line and leaves no listener."""
+    try:
+        proc.send_signal(signal.SIGINT)
+        out, err = proc.communicate(timeout=60)
+    finally:
+        if proc.poll() is None:
+            proc.kill()
+    assert proc.returncode == 0, err
+    assert "stopped" in out and "Traceback" not in err
+    with socket.socket() as sock:                            # no listener is left on the port
+        # SO_REUSEADDR lets the bind pass over connections in TIME_WAIT, never over a live listener.
+        sock.setsockopt(socket.SOL_SOCKET, socket.SO_REUSEADDR, 1)
+        sock.bind(("127.0.0.1", port))
+        sock.listen()
