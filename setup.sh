@@ -8,8 +8,8 @@ mode="${1:-demo}"
 case "$mode" in demo|test|install) ;; *) echo "usage: bash setup.sh demo|test|install" >&2; exit 2;; esac
 
 # System packages: open3d needs libusb and OpenGL/OpenMP runtimes; the browser tests need Chromium;
-# the PDF checks need pdftoppm (poppler-utils).
-SYSTEM_PACKAGES="libusb-1.0-0 libgl1 libgomp1 chromium poppler-utils"
+# the PDF checks need pdftoppm (poppler-utils); WeasyPrint (the PDF report) needs Pango, HarfBuzz and a font.
+SYSTEM_PACKAGES="libusb-1.0-0 libgl1 libgomp1 chromium poppler-utils libpango-1.0-0 libpangoft2-1.0-0 libharfbuzz-subset0 fonts-dejavu-core"
 if command -v apt-get >/dev/null 2>&1; then
   SUDO=""; [ "$(id -u)" = 0 ] || SUDO="sudo"
   missing=""
