@@ -33,3 +33,28 @@ class ReviewError(BandgeoError):
 
 class BandgeoWarning(UserWarning):
     """A soft problem that does not stop the work; recorded in results as a warning."""
+
+
+def shown(value) -> str:
+    """``value`` as a user reads it in a message: plain numbers (never ``np.float64(-0.2)``), plain lists
+    (never ``array([...])``), text quoted; long values shortened."""
+    import numbers
+
+    import numpy as np
+
+    if isinstance(value, np.ndarray):
+        value = value.tolist()
+    elif isinstance(value, np.generic):
+        value = value.item()
+    if isinstance(value, (list, tuple)):
+        inner = ", ".join(shown(v) for v in value[:8]) + (", ..." if len(value) > 8 else "")
+        text = f"[{inner}]" if isinstance(value, list) else f"({inner})"
+    elif isinstance(value, bool) or value is None:
+        text = str(value).lower() if isinstance(value, bool) else "nothing"
+    elif isinstance(value, numbers.Real):
+        text = f"{float(value):.6g}" if isinstance(value, float) else str(value)
+    elif isinstance(value, str):
+        text = repr(value)
+    else:
+        text = repr(value)
+    return text if len(text) <= 120 else text[:117] + "..."

@@ -10,10 +10,10 @@ import numpy as np
 import pytest
 
 from bandgeo.cli import main
-from bandgeo.errors import InputError
+from bandgeo.errors import InputError, ParameterError
 from bandgeo.scan import load_scan, prepare, read_sheet
 
-trimesh = pytest.importorskip("trimesh")
+import trimesh  # a hard dependency (pyproject.toml): imported, never skipped
 
 
 def _binary_ply(verts, faces, n_vertex=None, n_face=None):
@@ -43,7 +43,7 @@ def _make(case, tmp, good):
         (tmp / "a folder.ply").mkdir()
         return tmp / "a folder.ply"
     path = tmp / {"unknown_ext": "scan.xyz", "stl_truncated": "scan.stl", "off_garbage": "scan.off",
-                  "obj_garbage": "scan.obj"}.get(case, f"{case}.ply")
+                  "obj_garbage": "scan.obj"}.get(case, f"{case}.obj" if case.startswith("obj") else f"{case}.ply")
     if case == "empty":
         path.write_bytes(b"")
     elif case == "unknown_ext":
@@ -86,7 +86,38 @@ def _make(case, tmp, good):
         path.write_text("this is not an OFF file\n")
     elif case == "obj_garbage":
         path.write_text("hello\nworld\n")
+    elif case in ("scaled_1e-30", "coords_1e308", "coords_1e20"):
+        factor = {"scaled_1e-30": 1e-30, "coords_1e308": 1e306, "coords_1e20": 1e20}[case]
+        path.write_text(_ascii_ply(v * factor, f))
+    elif case.startswith("obj_short_v"):
+        path.write_text(_obj(v, f, short=(5, int(case[-1]))))
+    elif case == "obj_ragged":
+        path.write_text(_obj(v, f, short=(5, 4)))
+    elif case == "obj_inf":
+        w = v.copy()
+        w[3, 0] = np.inf
+        path.write_text(_obj(w, f))
     return path
+
+
+def _ascii_ply(verts, faces):
+    head = (f"ply\nformat ascii 1.0\nelement vertex {len(verts)}\nproperty double x\nproperty double y\n"
+            f"property double z\nelement face {len(faces)}\nproperty list uchar int vertex_indices\nend_header\n")
+    return head + "".join("%r %r %r\n" % tuple(map(float, p)) for p in verts) \
+        + "".join("3 %d %d %d\n" % tuple(q) for q in faces)
+
+
+def _obj(verts, faces, short=None):
+    """OBJ text; ``short=(k, c)`` writes vertex k with its first c values (c = 4 adds a w value)."""
+    lines = []
+    for i, p in enumerate(np.asarray(verts, float).tolist()):
+        if short is not None and i == short[0]:
+            vals = (p + [1.0])[:short[1]]
+            lines.append("v " + " ".join(repr(x) for x in vals))
+        else:
+            lines.append("v %r %r %r" % tuple(p))
+    lines += ["f %d %d %d" % tuple(q + 1) for q in np.asarray(faces)]
+    return "\n".join(lines) + "\n"
 
 
 CASES = [
@@ -109,6 +140,14 @@ CASES = [
     ("stl_truncated", "truncated"),
     ("off_garbage", "not an OFF file"),
     ("obj_garbage", "no vertices"),
+    # issue 15 F11-F13: each was an internal error or a misleading message with warnings printed first
+    ("scaled_1e-30", "4e-29 mm across"),
+    ("coords_1e308", "coordinates reach"),
+    ("coords_1e20", "coordinates reach"),
+    ("obj_short_v1", "OBJ line 6 is a vertex line with 1 number"),
+    ("obj_short_v2", "OBJ line 6 is a vertex line with 2 numbers"),
+    ("obj_ragged", "different numbers of values"),
+    ("obj_inf", "NaN or infinite"),
 ]
 
 
@@ -151,6 +190,11 @@ def test_real_process_for_truncated_file(tmp_path, good):
     ("strike_deg = 40\ndip_deg = 120\n", "dip_deg must be 0..90"),
     ("scale = { points = [[0, 0, 0], [0, 0, 0]], length = 5 }\n", "same point"),
     ("scale = -2\n", "positive"),
+    # issue 15 F14: angles, ages and scales are range-checked (strike is an azimuth, 0..360 degrees)
+    ("strike_deg = 400\ndip_deg = 10\n", "strike_deg must be 0..360"),
+    ("strike_deg = -720.5\ndip_deg = 10\n", "strike_deg must be 0..360"),
+    ("age_ma = 9000\n", "age_ma must be 0..4600"),
+    ("scale = 1e-30\n", "scale must be between"),
 ])
 def test_bad_sheet(tmp_path, good, text, expected, capsys):
     sheet = tmp_path / "KRB-07 sheet.toml"
@@ -170,3 +214,38 @@ def test_bad_sheet_line_number(tmp_path):
     sheet.write_text("specimen_id = 'KRB-12'\nformation = 'Karrabin Formation'\ndipdeg = 3\n")
     with pytest.raises(InputError, match="line 3"):
         read_sheet(sheet)
+
+
+@pytest.mark.parametrize("strike_dip, expected", [
+    ("400,10", "strike must be between 0 and 360 degrees"),
+    ("-720.5,10", "strike must be between 0 and 360 degrees"),
+    ("40,-0.2", "but got -0.2;"),
+])
+def test_bad_strike_dip_on_the_command_line(tmp_path, good, strike_dip, expected, capsys):
+    scan = tmp_path / "good.ply"
+    trimesh.Trimesh(*good, process=False).export(str(scan))
+    status = main(["inspect", str(scan), "--up", "0,0,1", "--north", "0,1,0", f"--strike-dip={strike_dip}"])
+    err = capsys.readouterr().err
+    assert status == 2 and err.count("\n") == 1 and expected in err
+
+
+def test_numpy_values_are_shown_as_plain_numbers(good):
+    # issue 15: a message printed "np.float64(-0.2)"
+    scan = load_scan_from_arrays(*good)
+    with pytest.raises(ParameterError) as err:
+        prepare(scan, scale=np.float64(-0.2))
+    assert "np.float64" not in str(err.value) and "-0.2" in str(err.value)
+
+
+def test_no_warning_leaks_before_the_error(tmp_path, good, capfd):
+    # issue 15 F13: numeric RuntimeWarnings were printed before the one-line error
+    path = _make("coords_1e308", tmp_path, good)
+    status = main(["inspect", str(path)])
+    err = capfd.readouterr().err
+    assert status == 2 and err.count("\n") == 1 and "Warning" not in err
+
+
+def load_scan_from_arrays(v, f):
+    from bandgeo.scan import Scan
+    return Scan(vertices=np.asarray(v, float), faces=np.asarray(f, np.int64), colors=None, path="arrays.ply",
+                sha256="0" * 64, file_format="ply-binary-le")

@@ -8,7 +8,7 @@ from bandgeo.scan import clean as clean_module
 from bandgeo.scan.clean import clean_mesh, first_of_equal_rows
 from test_scan_meshes import domed_column
 
-trimesh = pytest.importorskip("trimesh")
+import trimesh  # a hard dependency (pyproject.toml): imported, never skipped
 
 
 @pytest.fixture(scope="module")

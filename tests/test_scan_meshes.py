@@ -7,7 +7,7 @@ import numpy as np
 import pytest
 from scipy.spatial.transform import Rotation
 
-trimesh = pytest.importorskip("trimesh")
+import trimesh  # a hard dependency (pyproject.toml): imported, never skipped
 
 
 def domed_column(radius=10.0, height=60.0, dome=4.0, base="cut", sections=64, rings=40, grooves=0.0,

@@ -8,7 +8,7 @@ from bandgeo.scan import Scan, prepare
 from bandgeo.scan.orient import bed_pole, bedding_rotation, estimate_up, frame_rows, rotation_between
 from test_scan_meshes import domed_column, posed_column
 
-trimesh = pytest.importorskip("trimesh")
+import trimesh  # a hard dependency (pyproject.toml): imported, never skipped
 
 
 def _angle(a, b):

@@ -8,8 +8,8 @@ import pytest
 
 from bandgeo.scan import load_scan
 
-trimesh = pytest.importorskip("trimesh")
-o3d = pytest.importorskip("open3d")
+import trimesh  # a hard dependency (pyproject.toml): imported, never skipped
+import open3d as o3d  # a hard dependency (pyproject.toml)
 
 
 @pytest.fixture(scope="module")

@@ -237,6 +237,50 @@ def _run_members(edges: _Edges, runs: np.ndarray):
     return head, head + offs
 
 
+#: Largest coordinate magnitude accepted, in file units: 1e15 micrometres is a million km, so no unit
+#: makes a larger value part of a hand specimen, and squares of such numbers approach float overflow.
+MAX_COORDINATE = 1e15
+#: Smallest extent accepted, in file units (below it, areas underflow to zero in float64).
+MIN_EXTENT = 1e-60
+#: Largest ratio of coordinate magnitude to extent: beyond it float64 keeps under ~4 digits of the shape.
+MAX_OFFSET_RATIO = 1e12
+
+
+def _finite_rows(vertices: np.ndarray, faces: np.ndarray):
+    """(mask of vertices with finite coordinates, count of others), refusing non-finite vertices used by
+    faces and coordinates no length unit or float arithmetic can handle (each with one line)."""
+    n = len(vertices)
+    lo = np.array([vertices[:, k].min() for k in range(3)])  # NaN and inf propagate: one pass finds both
+    hi = np.array([vertices[:, k].max() for k in range(3)])
+    if np.isfinite(lo).all() and np.isfinite(hi).all():
+        finite = np.ones(n, dtype=bool)
+    else:
+        finite = np.isfinite(vertices).all(axis=1)
+    n_bad = int(n - np.count_nonzero(finite))
+    if n_bad:
+        used_bad = ~finite[faces].all(axis=1)
+        if used_bad.any():
+            first = int(np.flatnonzero(~finite)[0])
+            raise InputError(f"{n_bad} vertices have NaN or infinite coordinates (the first is vertex {first}) "
+                             f"and {int(used_bad.sum())} faces use them; repair or re-export the scan")
+        kept = vertices[finite]
+        lo, hi = kept.min(axis=0), kept.max(axis=0)
+    big = float(max(np.abs(lo).max(), np.abs(hi).max()))
+    extent = float((hi - lo).max())
+    if big > MAX_COORDINATE:
+        raise InputError(f"coordinates reach {big:.3g} file units, more than any length unit allows for a hand "
+                         "specimen (and too large for the arithmetic); check the export's unit and scale and "
+                         "re-export the scan in mm, cm or m")
+    if extent < MIN_EXTENT:
+        raise InputError(f"the mesh spans only {extent:.3g} file units (all vertices at nearly one point); check the "
+                         "export's unit and scale and re-export the scan at its real size in mm, cm or m")
+    if big > MAX_OFFSET_RATIO * extent:
+        raise InputError(f"the coordinates are about {big:.3g} file units from the origin but the mesh spans only "
+                         f"{extent:.3g}, so float precision has lost its shape; move the scan near the origin "
+                         "before exporting it")
+    return finite, n_bad
+
+
 def clean_mesh(vertices: np.ndarray, faces: np.ndarray, progress=None) -> CleanResult:
     """Clean a triangle mesh and report every change with counts.
 
@@ -258,17 +302,8 @@ def clean_mesh(vertices: np.ndarray, faces: np.ndarray, progress=None) -> CleanR
     stats: dict = {}
     n = len(vertices)
     report(progress, "cleaning: duplicates", 0, 6)
-    if np.isfinite(vertices).all():  # whole-array reduction: fast; rows only when something is wrong
-        finite = np.ones(n, dtype=bool)
-    else:
-        finite = np.isfinite(vertices).all(axis=1)
-    n_bad = int(n - np.count_nonzero(finite))
-    if n_bad:
-        used_bad = ~finite[faces].all(axis=1)
-        if used_bad.any():
-            first = int(np.flatnonzero(~finite)[0])
-            raise InputError(f"{n_bad} vertices have NaN or infinite coordinates (the first is vertex {first}) "
-                             f"and {int(used_bad.sum())} faces use them; repair or re-export the scan")
+    with np.errstate(all="ignore"):
+        finite, n_bad = _finite_rows(vertices, faces)
     counts["nonfinite_vertices_removed"] = n_bad
     # The edge sort, the largest single cost, does not depend on steps 1-2 when they change nothing (the
     # usual case): start it on a second thread (numpy releases the GIL) and use it only in that case.

@@ -11,18 +11,19 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from ..constants import DEFAULT_SEED
-from ..errors import ParameterError
+from ..errors import ParameterError, shown
 
 
 def unit(vector, name: str = "vector") -> np.ndarray:
     """Return ``vector`` as a unit (3,) float64 array; ParameterError when it is not a usable direction."""
     vec = np.asarray(vector, dtype=float).reshape(-1)
     if vec.shape != (3,) or not np.all(np.isfinite(vec)):
-        raise ParameterError(f"{name} must be three finite numbers like 0,0,1 but got {vector!r}")
-    norm = np.linalg.norm(vec)
-    if norm == 0:
+        raise ParameterError(f"{name} must be three finite numbers like 0,0,1 but got {shown(vector)}")
+    big = float(np.abs(vec).max())
+    if big == 0 or not np.isfinite(big):
         raise ParameterError(f"{name} has zero length; give a direction like 0,0,1")
-    return vec / norm
+    vec = vec / big  # scaled first, so that 1e200-long vectors do not overflow the norm
+    return vec / np.linalg.norm(vec)
 
 
 def rotation_between(a, b) -> np.ndarray:
@@ -55,12 +56,27 @@ def bed_pole(strike_deg: float, dip_deg: float) -> np.ndarray:
     return np.array([np.sin(dip) * np.sin(dd), np.sin(dip) * np.cos(dd), np.cos(dip)])
 
 
+def check_strike_dip(strike_deg, dip_deg, where: str = "") -> None:
+    """ParameterError unless strike is 0..360 degrees and dip 0..90 degrees (right-hand rule)."""
+    pre = f"{where}: " if where else ""
+    try:
+        strike, dip = float(strike_deg), float(dip_deg)
+    except (TypeError, ValueError):
+        raise ParameterError(f"{pre}strike and dip must be numbers but got {shown(strike_deg)}, {shown(dip_deg)}")
+    if not (np.isfinite(strike) and np.isfinite(dip)):
+        raise ParameterError(f"{pre}strike and dip must be finite numbers but got {shown(strike)}, {shown(dip)}")
+    if not 0.0 <= strike <= 360.0:
+        hint = f" ({shown(strike % 360.0)} is the same direction)" if abs(strike) < 1e6 else ""
+        raise ParameterError(f"{pre}strike must be between 0 and 360 degrees (azimuth clockwise from north) but "
+                             f"got {shown(strike)}{hint}; give the strike within 0..360")
+    if not 0.0 <= dip <= 90.0:
+        raise ParameterError(f"{pre}dip must be between 0 and 90 degrees (right-hand rule) but got {shown(dip)}; "
+                             "give the dip within 0..90 and the strike so that the bed dips to its right")
+
+
 def bedding_rotation(strike_deg: float, dip_deg: float) -> np.ndarray:
     """(3, 3) rotation about the strike line that brings the bed back to horizontal (pole to +z)."""
-    if not (np.isfinite(strike_deg) and np.isfinite(dip_deg)):
-        raise ParameterError(f"strike and dip must be finite numbers but got {strike_deg!r}, {dip_deg!r}")
-    if not 0.0 <= dip_deg <= 90.0:
-        raise ParameterError(f"dip must be between 0 and 90 degrees (right-hand rule) but got {dip_deg!r}")
+    check_strike_dip(strike_deg, dip_deg)
     return rotation_between(bed_pole(strike_deg, dip_deg), [0.0, 0.0, 1.0])
 
 

@@ -4,10 +4,10 @@ from __future__ import annotations
 import numpy as np
 
 from ..constants import UNIT_TO_MM
-from ..errors import InputError, ParameterError
+from ..errors import InputError, ParameterError, shown
 from ..progress import report
 from .clean import clean_mesh
-from .orient import bedding_rotation, estimate_up, frame_rows, unit
+from .orient import bedding_rotation, check_strike_dip, estimate_up, frame_rows, unit
 from .types import Scan, ScaleReference, Specimen, SpecimenSheet
 
 #: Faces needed for a mesh to be worth orienting at all.
@@ -15,6 +15,11 @@ MIN_FACES = 20
 #: Plausible overall size of a hand specimen, mm (USERS.md: columns 1-10 cm wide, 5-50 cm tall).
 PLAUSIBLE_MM = (10.0, 2000.0)
 TYPICAL_MM = (20.0, 1000.0)
+#: Sizes refused outright, mm: below 1 um or above 10 km no unit slip explains the scan (and later stages'
+#: grids and counts would overflow); between these and PLAUSIBLE_MM it is a warning.
+HARD_MM = (1e-3, 1e7)
+#: Range of a scale factor (file units to ``units``), given or from a reference length.
+SCALE_RANGE = (1e-6, 1e6)
 
 
 def _h(matrix3=None, translation=None, scale=None) -> np.ndarray:
@@ -32,17 +37,23 @@ def _as_scale(scale, where: str):
     if scale is None or isinstance(scale, ScaleReference):
         return scale
     if isinstance(scale, (tuple, list)) and len(scale) == 3:
-        ref = ScaleReference(p1=np.asarray(scale[0], float), p2=np.asarray(scale[1], float), length=float(scale[2]))
-        if ref.p1.shape != (3,) or ref.p2.shape != (3,) or not ref.length > 0 or ref.file_distance() == 0:
+        try:
+            ref = ScaleReference(p1=np.asarray(scale[0], float), p2=np.asarray(scale[1], float),
+                                 length=float(scale[2]))
+            ok = ref.p1.shape == (3,) and ref.p2.shape == (3,) and np.isfinite(ref.length) and ref.length > 0 \
+                and np.all(np.isfinite(ref.p1)) and np.all(np.isfinite(ref.p2)) and ref.file_distance() > 0
+        except (TypeError, ValueError):
+            ok = False
+        if not ok:
             raise ParameterError(f"{where} must be (point1, point2, length) with two distinct 3-D points and a "
-                                 f"positive length but got {scale!r}")
+                                 f"positive length but got {shown(scale)}")
         return ref
     try:
         factor = float(scale)
     except (TypeError, ValueError):
         factor = float("nan")
     if not (np.isfinite(factor) and factor > 0):
-        raise ParameterError(f"{where} must be a positive factor or (point1, point2, length) but got {scale!r}")
+        raise ParameterError(f"{where} must be a positive factor or (point1, point2, length) but got {shown(scale)}")
     return factor
 
 
@@ -107,13 +118,22 @@ def prepare(scan: Scan, *, units=None, up=None, north=None, strike_dip=None, she
     -------
     Specimen
     """
+    with np.errstate(all="ignore"):  # numbers out of range are refused with one line, never warned about
+        return _prepare(scan, units=units, up=up, north=north, strike_dip=strike_dip, sheet=sheet, scale=scale,
+                        progress=progress)
+
+
+def _prepare(scan: Scan, *, units, up, north, strike_dip, sheet, scale, progress) -> Specimen:
     if not isinstance(scan, Scan):
         raise ParameterError(f"expected a Scan from bandgeo.scan.load_scan but got {type(scan).__name__}")
     if sheet is not None and not isinstance(sheet, SpecimenSheet):
         from .sheet import read_sheet
         sheet = read_sheet(sheet)
     warnings: list = []
-    clean = clean_mesh(scan.vertices, scan.faces, progress=progress)
+    try:
+        clean = clean_mesh(scan.vertices, scan.faces, progress=progress)
+    except InputError as exc:  # say which file
+        raise InputError(f"'{scan.path}': {exc}") from None
     v, faces = clean.vertices, clean.faces
     if len(faces) < MIN_FACES:
         raise InputError(f"'{scan.path}': only {len(faces)} usable faces (a specimen scan needs at least "
@@ -159,7 +179,8 @@ def prepare(scan: Scan, *, units=None, up=None, north=None, strike_dip=None, she
         try:
             strike, dip = (float(x) for x in strike_dip)
         except (TypeError, ValueError):
-            raise ParameterError(f"strike/dip must be two numbers like 40,25 but got {strike_dip!r}")
+            raise ParameterError(f"strike/dip must be two numbers like 40,25 but got {shown(strike_dip)}")
+        check_strike_dip(strike, dip)
         if not north_known or up_source == "estimated":
             raise ParameterError("bedding correction needs the specimen's field vertical and north; give --up and "
                                  "--north (or up and north in the sheet), or drop the strike/dip")
@@ -183,6 +204,10 @@ def prepare(scan: Scan, *, units=None, up=None, north=None, strike_dip=None, she
     elif scale_ref is not None:
         factor = float(scale_ref)
         scale_note = f"scale factor {factor:g}"
+    if not SCALE_RANGE[0] <= factor <= SCALE_RANGE[1]:
+        raise ParameterError(f"the scale factor is {factor:.3g} ({scale_note}), outside {SCALE_RANGE[0]:g}.."
+                             f"{SCALE_RANGE[1]:g}; give the file's unit with --units (or units in the sheet) and "
+                             "use a scale only for a small correction")
     p = _rotate(v, rot)
     p_lo, p_hi = _col_range(p)
     extent_file = p_hi - p_lo
@@ -199,6 +224,11 @@ def prepare(scan: Scan, *, units=None, up=None, north=None, strike_dip=None, she
                             f"across); pass --units or set units in the specimen sheet")
     k = UNIT_TO_MM[units_name] * factor
     largest_mm = largest_file * k
+    if not HARD_MM[0] <= largest_mm <= HARD_MM[1]:
+        raise InputError(f"'{scan.path}': the specimen would be {largest_mm:.3g} mm across ({largest_file:.3g} file "
+                         f"units in '{units_name}', units from {units_source}), which no hand specimen is and no "
+                         "unit slip explains; check the export's unit and scale, then pass --units (or units and "
+                         "scale in the specimen sheet)")
     if not PLAUSIBLE_MM[0] <= largest_mm <= PLAUSIBLE_MM[1]:
         better = _guess_units(largest_file * factor)
         hint_txt = f"; if the file is in {better}, pass --units {better}" if better != units_name else ""

@@ -237,6 +237,49 @@ def _check_stl(data: bytes, name: str) -> str:
     raise _fail(name, "is neither an ASCII nor a binary STL file; export the scan again")
 
 
+_OBJ_V = re.compile(rb"(?m)^[ \t]*v[ \t]+([^\r\n#]*)")
+
+
+def _obj_line(data: bytes, k: int) -> int:
+    """1-based line number of the ``k``-th (0-based) ``v`` line of an OBJ file."""
+    for i, match in enumerate(_OBJ_V.finditer(data)):
+        if i == k:
+            return data.count(b"\n", 0, match.start()) + 1
+    return 0
+
+
+def _check_obj(data: bytes, name: str) -> str:
+    """Every ``v`` line must hold 3 coordinates (optionally w, or r g b) and all lines alike: trimesh
+    reads ragged lines as one flat list, which silently shifts every later coordinate."""
+    lines = _OBJ_V.findall(data)
+    if not lines:
+        return "obj"  # the parser says what is missing
+    counts = np.fromiter((len(line.split()) for line in lines), dtype=np.int64, count=len(lines))
+    short = np.flatnonzero(counts < 3)
+    if len(short):
+        k = int(short[0])
+        raise _fail(name, f"OBJ line {_obj_line(data, k)} is a vertex line with {counts[k]} number"
+                          f"{'' if counts[k] == 1 else 's'} ({lines[k].decode('latin-1').strip()[:40]!r}) but a "
+                          "vertex needs x y z; the file is corrupt or truncated, re-export the scan")
+    odd = np.flatnonzero(counts != counts[0])
+    if len(odd):
+        k = int(odd[0])
+        raise _fail(name, f"OBJ vertex lines hold different numbers of values ({counts[0]} on line "
+                          f"{_obj_line(data, 0)}, {counts[k]} on line {_obj_line(data, k)}); the file is corrupt, "
+                          "re-export the scan with the same fields on every vertex")
+    return "obj"
+
+
+def _obj_bad_number(data: bytes):
+    """(line number, text) of the first ``v`` line holding something that is not a number, or None."""
+    for match in _OBJ_V.finditer(data):
+        try:
+            [float(x) for x in match.group(1).split()]
+        except ValueError:
+            return data.count(b"\n", 0, match.start()) + 1, match.group(1).decode("latin-1").strip()[:40]
+    return None
+
+
 def _check_off(data: bytes, name: str) -> str:
     text = data.decode("latin-1")
     tokens_lines = [line.split("#", 1)[0].split() for line in text.splitlines()]
@@ -282,6 +325,11 @@ def load_scan(path) -> Scan:
     bandgeo.errors.InputError
         Missing, empty, truncated or malformed files; point clouds; face indices out of range.
     """
+    with np.errstate(all="ignore"):  # overflow in a parser's casts is found below, never printed
+        return _load_scan(path)
+
+
+def _load_scan(path) -> Scan:
     path = _check_path(path)
     name = str(path)
     try:
@@ -301,6 +349,8 @@ def load_scan(path) -> Scan:
             fmt = _check_stl(data, name)
         elif file_type == "off":
             fmt = _check_off(data, name)
+        elif file_type == "obj":
+            fmt = _check_obj(data, name)
         else:
             fmt = file_type
         fast = _fast_binary_ply(data) if fmt in ("ply-binary-le", "ply-binary-be") else None
@@ -309,8 +359,7 @@ def load_scan(path) -> Scan:
             mesh = None
         else:
             mesh = _parse(data, path, file_type, name)
-            vertices = np.ascontiguousarray(mesh.vertices, dtype=np.float64)
-            faces = np.ascontiguousarray(mesh.faces, dtype=np.int64).reshape(-1, 3)
+            vertices, faces = _mesh_arrays(mesh, name)
         if len(vertices) == 0:
             raise _fail(name, "holds no vertices; is it really a mesh? Re-export the scan")
         if len(faces) == 0:
@@ -356,6 +405,20 @@ def units_hint(data: bytes, fmt: str):
     return match.group(1).lower() if match else None
 
 
+def _mesh_arrays(mesh, name: str):
+    """(n, 3) float64 vertices and (m, 3) int64 faces of a parsed mesh, refusing any other shape."""
+    vertices = np.asarray(mesh.vertices)
+    faces = np.asarray(mesh.faces)
+    if vertices.ndim != 2 or (len(vertices) and vertices.shape[1] != 3):
+        raise _fail(name, f"the parser found vertices of shape {vertices.shape} instead of (n, 3); the file is "
+                          "corrupt, re-export the scan")
+    if faces.size and (faces.ndim != 2 or faces.shape[1] != 3):
+        raise _fail(name, f"the parser found faces of shape {faces.shape} instead of triangles; re-export the "
+                          "scan with triangular faces")
+    return (np.ascontiguousarray(vertices, dtype=np.float64).reshape(-1, 3),
+            np.ascontiguousarray(faces, dtype=np.int64).reshape(-1, 3))
+
+
 def _parse(data: bytes, path: Path, file_type: str, name: str):
     import trimesh
 
@@ -369,9 +432,13 @@ def _parse(data: bytes, path: Path, file_type: str, name: str):
             loaded = meshes[0] if len(meshes) == 1 else (trimesh.util.concatenate(meshes) if meshes else
                                                          trimesh.PointCloud(np.zeros((0, 3))))
     except Exception as exc:  # the parsers raise many kinds; give the user one line
+        bad = _obj_bad_number(data) if file_type == "obj" else None
+        if bad is not None:
+            raise _fail(name, f"OBJ line {bad[0]} is a vertex line holding something that is not a number "
+                              f"({bad[1]!r}); the file is corrupt, re-export the scan")
         detail = " ".join(str(exc).split())[:160] or type(exc).__name__
         raise _fail(name, f"could not be read as {file_type.upper()} ({detail}); the file is corrupt or not "
-                          f"a {file_type.upper()} file, export the scan again")
+                          f"a valid {file_type.upper()} file, export the scan again")
     if not hasattr(loaded, "faces"):
         n = len(getattr(loaded, "vertices", []))
         if n == 0:

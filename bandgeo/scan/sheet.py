@@ -20,6 +20,11 @@ try:
 except ModuleNotFoundError:  # Python 3.10
     import tomli as tomllib
 
+#: Oldest age accepted, Ma (the Earth is about 4540 Ma old; common knowledge, rounded up).
+AGE_MAX_MA = 4600.0
+#: Range of a plain scale factor (file units times it give the sheet's units); beyond it, a typo.
+SCALE_RANGE = (1e-6, 1e6)
+
 _TEXT = ("specimen_id", "locality", "horizon", "formation", "collector", "notes")
 _NUMBERS = ("strike_deg", "dip_deg", "age_ma", "age_err_ma")
 _FIELDS = _TEXT + _NUMBERS + ("units", "scale", "up", "north")
@@ -92,11 +97,17 @@ def read_sheet(path) -> SpecimenSheet:
         key = "dip_deg" if sheet.dip_deg is None else "strike_deg"
         raise InputError(f"'{label}': strike_deg and dip_deg go together but {key} is missing; give both "
                          "(right-hand rule) or neither")
+    if sheet.strike_deg is not None and not 0 <= sheet.strike_deg <= 360:
+        raise InputError(f"'{label}' {_line_of(text, 'strike_deg')}: strike_deg must be 0..360 (azimuth clockwise "
+                         f"from north, right-hand rule) but got {sheet.strike_deg:g}; give it within 0..360")
     if sheet.dip_deg is not None and not 0 <= sheet.dip_deg <= 90:
         raise InputError(f"'{label}' {_line_of(text, 'dip_deg')}: dip_deg must be 0..90 (right-hand rule) but got "
                          f"{sheet.dip_deg:g}")
-    if sheet.age_err_ma is not None and sheet.age_err_ma < 0:
-        raise InputError(f"'{label}' {_line_of(text, 'age_err_ma')}: age_err_ma must be >= 0 but got "
+    if sheet.age_ma is not None and not 0 <= sheet.age_ma <= AGE_MAX_MA:
+        raise InputError(f"'{label}' {_line_of(text, 'age_ma')}: age_ma must be 0..{AGE_MAX_MA:g} (millions of "
+                         f"years before present; the Earth is about 4540 Ma old) but got {sheet.age_ma:g}")
+    if sheet.age_err_ma is not None and not 0 <= sheet.age_err_ma <= AGE_MAX_MA:
+        raise InputError(f"'{label}' {_line_of(text, 'age_err_ma')}: age_err_ma must be 0..{AGE_MAX_MA:g} Ma but got "
                          f"{sheet.age_err_ma:g}")
     if "units" in data:
         units = str(data["units"]).strip().lower()
@@ -118,6 +129,10 @@ def _scale(value, where: str, label: str):
     if isinstance(value, (int, float)):
         if not (np.isfinite(value) and value > 0):
             raise InputError(f"'{label}' {where}: scale must be a positive number but got {value!r}")
+        if not SCALE_RANGE[0] <= value <= SCALE_RANGE[1]:
+            raise InputError(f"'{label}' {where}: scale must be between {SCALE_RANGE[0]:g} and {SCALE_RANGE[1]:g} "
+                             f"(file units times it give the sheet's units) but got {value:g}; set units to the "
+                             "file's unit and use scale only for a small correction")
         return float(value)
     if isinstance(value, dict):
         extra = [k for k in value if k not in ("points", "length")]
@@ -129,7 +144,7 @@ def _scale(value, where: str, label: str):
             except (TypeError, ValueError):
                 pts = np.zeros(0)
             if pts.shape == (2, 3) and np.all(np.isfinite(pts)) and isinstance(length, (int, float)) \
-                    and not isinstance(length, bool) and length > 0:
+                    and not isinstance(length, bool) and np.isfinite(length) and length > 0:
                 ref = ScaleReference(p1=pts[0], p2=pts[1], length=float(length))
                 if ref.file_distance() == 0:
                     raise InputError(f"'{label}' {where}: the two scale points are the same point; pick the "
