@@ -167,7 +167,8 @@ def test_body_size_limit(served):
     host, port = server.server_address[:2]
     with socket.create_connection((host, port), timeout=10) as sock:
         sock.sendall((f"POST /api/edit HTTP/1.1\r\nHost: {host}:{port}\r\nX-Review-Token: "
-                      f"{server.app.token}\r\nContent-Length: 999999999\r\n\r\n").encode())
+                      f"{server.app.token}\r\nContent-Type: application/json\r\n"
+                      f"Content-Length: 999999999\r\n\r\n").encode())
         reply = sock.recv(200)
     assert reply.startswith(b"HTTP/1.0 413") or reply.startswith(b"HTTP/1.1 413")
     assert server.app.session.edits == []
@@ -292,12 +293,17 @@ def test_cli_serves_a_saved_segmentation_and_stops_on_ctrl_c(tmp_path):
     _stop_with_ctrl_c(proc, port)
 
 
-def test_a_review_that_does_not_fit_is_a_one_line_error(tmp_path):
+def test_a_review_whose_edits_do_not_fit_is_set_apart_not_applied(tmp_path):
     folder, seg, _ = make_folder(tmp_path / "stale")
-    (folder / "review.json").write_text(json.dumps({"edits": [{"op": "reject", "id": 77}]}), encoding="utf-8")
-    with pytest.raises(ReviewError, match="does not fit the segmentation") as info:
-        serve(folder, open_browser=False, segmentation=seg)
-    assert "no boundary 77" in str(info.value) and "move the file aside" in str(info.value)
+    (folder / "review.json").write_text(json.dumps({"scan_sha256": "0" * 64, "edits": [{"op": "reject", "id": 77}]}),
+                                        encoding="utf-8")
+    server = serve(folder, open_browser=False, segmentation=seg)
+    try:
+        state = request(server, "GET", "/api/state")[1]
+        assert state["set_apart"] and any("no boundary 77" in r for r in state["set_apart"]["reasons"])
+        assert state["n_edits"] == 0 and all(b["status"] == "auto" for b in state["boundaries"])
+    finally:
+        server.stop()
 
 
 def test_saves_and_edits_hammered_over_http_leave_a_consistent_file(served):
@@ -327,38 +333,6 @@ def test_saves_and_edits_hammered_over_http_leave_a_consistent_file(served):
     assert all(a["edits_after"] == b["edits_before"] for a, b in zip(review["history"], review["history"][1:]))
     # one re-run at a time: saves during a run ask for one more, they do not start a second worker
     assert 1 <= rec.calls <= 30
-
-
-def test_connections_beyond_the_limit_are_refused_not_queued_forever(served):
-    server, *_ = served
-    host, port = server.server_address[:2]
-
-    def probe():
-        with socket.create_connection((host, port), timeout=10) as extra:
-            extra.sendall(f"GET /api/state HTTP/1.0\r\nHost: {host}:{port}\r\n"
-                          f"X-Review-Token: {server.app.token}\r\n\r\n".encode())
-            return extra.recv(100)
-
-    idle = [socket.create_connection((host, port), timeout=10) for _ in range(server.max_connections)]
-    try:
-        # Each idle connection holds a slot until its 30 s read timeout; the server may take a moment
-        # to accept them all, so probe a bounded number of times.
-        replies = []
-        for _ in range(40):
-            replies.append(probe())
-            if replies[-1].startswith(b"HTTP/1.0 503"):
-                break
-            time.sleep(0.25)
-        assert replies[-1].startswith(b"HTTP/1.0 503"), replies[-1]
-    finally:
-        for sock in idle:
-            sock.close()
-    for _ in range(40):                                                   # and it recovers
-        if probe().startswith(b"HTTP/1.0 200"):
-            break
-        time.sleep(0.25)
-    else:
-        pytest.fail("the server did not recover after the idle connections closed")
 
 
 def _stop_with_ctrl_c(proc, port):

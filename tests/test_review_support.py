@@ -97,7 +97,9 @@ def make_folder(folder, n_bounds=12, spacing=1.5, specimen_id="KRB-12"):
                            confidence=0.5 + 0.04 * k) for k, h in enumerate(heights)]
     specimen = FakeSpecimen(v, f)
     seg = FakeSegmentation(bounds, axis, np.zeros(len(v), np.int32)).with_boundaries(bounds, specimen)
-    meta = np.frombuffer(json.dumps({"specimen_id": specimen_id, "scan_sha256": "0" * 64}).encode(), np.uint8)
+    meta = np.frombuffer(json.dumps({"specimen_id": specimen_id, "scan_sha256": "0" * 64, "units": "mm",
+                                     "mm_per_unit": 1.0, "scan_to_specimen": np.eye(4).tolist(),
+                                     "scan_path": f"{specimen_id}.ply"}).encode(), np.uint8)
     np.savez(folder / "specimen.npz", vertices_mm=v.astype(np.float32), faces=f.astype(np.int32),
              colors=col, vertex_band=seg.vertex_band, meta_json=meta)
     write_json(folder / "result.json", {

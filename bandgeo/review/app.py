@@ -1,23 +1,47 @@
 """The review session behind the page: folder data, the edits in progress, saving, and the re-run
-worker that refreshes the analysis after each save (one run at a time; the last good result stays)."""
+worker that refreshes the analysis after each save (one run at a time; the last good result stays).
+
+A ``review.json`` that does not fit the folder (another scan, other units or scale, another
+segmentation, or edits that name boundaries this segmentation lacks) is never shown or applied: the
+session starts empty, the page says which scan the file belongs to, and saving is refused until the
+user sets the file aside (renamed, never deleted).
+"""
 from __future__ import annotations
 
+import datetime as _dt
+import inspect
+import os
 import sys
 import threading
+import time
 import traceback
 from pathlib import Path
 
 from ..errors import BandgeoError, ReviewError
+from .basis import check_fit, describe
 from .data import FolderData
 from .edits import ReviewSession, utc_now
-from .pagestate import page_state, result_summary
-from .store import read_review, save_review
+from .pagedata import page_state
+from .pagestate import result_summary
+from .store import REVIEW_FILE, clean_temp_files, inside, read_review, save_review
 
 
-def _default_rerun(folder):
+def _default_rerun(folder, progress=None):
     from ..pipeline import rerun
 
-    return rerun(folder)
+    try:
+        accepts = "progress" in inspect.signature(rerun).parameters
+    except (TypeError, ValueError):
+        accepts = False
+    return rerun(folder, progress=progress) if accepts else rerun(folder)
+
+
+def _takes_progress(fn) -> bool:
+    try:
+        params = inspect.signature(fn).parameters
+    except (TypeError, ValueError):
+        return False
+    return "progress" in params or any(p.kind is p.VAR_KEYWORD for p in params.values())
 
 
 class ReviewApp:
@@ -27,32 +51,87 @@ class ReviewApp:
         self.folder = Path(folder)
         self.token = token
         self.rerun = rerun or _default_rerun
+        self.removed_temp = clean_temp_files(self.folder)
         self.data = FolderData(self.folder, segmentation=segmentation)
-        review = read_review(self.folder) or {}
         base = [(b.id, b.height_mm) for b in self.data.segmentation.boundaries]
-        try:
-            self.session = ReviewSession(base, self.data.span, review.get("edits", []))
-        except ReviewError as exc:
-            raise ReviewError(f"{self.folder / 'review.json'} does not fit the segmentation in the folder "
-                              f"({exc}); move the file aside and review again") from None
-        self.saved_utc = review.get("updated_utc")
+        #: A review file kept out of the session because it does not fit (dict for the page) or None.
+        self.set_apart = None
+        #: A line the page shows once about the review file (e.g. a review from an older version).
+        self.notice = None
+        review = self._read_fitting(base)
+        self.session = ReviewSession(base, self.data.span, (review or {}).get("edits", []))
+        self.saved_utc = (review or {}).get("updated_utc")
         self._lock = threading.Lock()
         self._worker: threading.Thread | None = None
         self._pending = False
         self.last_result = result_summary(self.data.result())
         self.status = {"state": "idle", "error": None, "started_utc": None, "finished_utc": None,
-                       "runs": 0}
+                       "runs": 0, "stage": None, "done": 0, "total": 0, "seconds": None}
 
+    # -- the review file -------------------------------------------------------------------------
+    def _read_fitting(self, base):
+        """The folder's review if it fits this folder's scan, frame and segmentation; else None, with
+        ``set_apart`` saying why."""
+        inside(self.folder, REVIEW_FILE)  # a link out of the folder is refused outright
+        try:
+            review = read_review(self.folder)
+        except ReviewError as exc:
+            self.set_apart = {"reasons": [str(exc)], "belongs_to": "unknown (the file cannot be read)"}
+            return None
+        if review is None:
+            return None
+        reasons = check_fit(review, self.data.basis)
+        if not reasons:
+            try:
+                ReviewSession(base, self.data.span, review.get("edits", []))
+            except ReviewError as exc:
+                reasons.append(f"its edits do not fit this segmentation ({exc})")
+        if reasons:
+            self.set_apart = {"reasons": reasons, "belongs_to": describe(review.get("basis"), review),
+                              "n_edits": len(review.get("edits", [])),
+                              "updated_utc": review.get("updated_utc")}
+            return None
+        if not isinstance(review.get("basis"), dict) and review.get("edits"):
+            self.notice = ("review.json predates recorded units and segmentation ids; its scan matches and "
+                           "its edits fit, so they are shown; saving records the basis")
+        return review
+
+    def set_aside(self) -> str:
+        """Rename the folder's ``review.json`` to ``review.set-aside-<UTC>.json``; return the new name."""
+        path = inside(self.folder, REVIEW_FILE)
+        if not path.exists():
+            self.set_apart = None
+            raise ReviewError("there is no review.json to set aside")
+        stamp = _dt.datetime.now(_dt.timezone.utc).strftime("%Y%m%dT%H%M%SZ")
+        target = inside(self.folder, f"review.set-aside-{stamp}.json")
+        n = 1
+        while target.exists():
+            target = inside(self.folder, f"review.set-aside-{stamp}-{n}.json")
+            n += 1
+        os.replace(path, target)
+        self.set_apart = None
+        self.notice = f"the review that did not fit was renamed to {target.name}"
+        return target.name
+
+    # -- state, save, re-run ---------------------------------------------------------------------
     def state(self) -> dict:
         with self._lock:
             status = dict(self.status)
             summary = self.last_result
         return page_state(self, status, summary)
 
+    def rerun_status(self) -> dict:
+        with self._lock:
+            return dict(self.status)
+
     def save(self) -> dict:
+        if self.set_apart is not None:
+            raise ReviewError(f"review.json in this folder belongs to {self.set_apart['belongs_to']} and "
+                              f"does not fit this one; set it aside before saving")
         edits = self.session.edits
         state = self.session.state
         review = {"specimen_id": self.data.specimen_id, "scan_sha256": self.data.scan_sha256,
+                  "basis": self.data.basis,
                   "edits": edits,
                   "notes": "\n".join(n["text"] for n in state.notes),
                   "stretches": [[m["s0_mm"], m["s1_mm"], m["kind"], m["note"]]
@@ -60,6 +139,7 @@ class ReviewApp:
         written = save_review(self.folder, review)
         self.session.mark_saved(edits)
         self.saved_utc = written["updated_utc"]
+        self.notice = None
         self.schedule_rerun()
         return written
 
@@ -70,13 +150,22 @@ class ReviewApp:
                 self._pending = True
                 return
             self._worker = threading.Thread(target=self._work, name="bandgeo-review-rerun", daemon=True)
-            self.status.update(state="running", started_utc=utc_now(), error=None)
+            self.status.update(state="running", started_utc=utc_now(), error=None, stage="starting",
+                               done=0, total=0, seconds=None)
             self._worker.start()
+
+    def _progress(self, description, done, total) -> None:
+        with self._lock:
+            self.status.update(stage=str(description)[:80], done=int(done or 0), total=int(total or 0))
 
     def _work(self) -> None:
         while True:
+            start = time.perf_counter()
             try:
-                state = self.rerun(self.folder)
+                if _takes_progress(self.rerun):
+                    state = self.rerun(self.folder, progress=self._progress)
+                else:
+                    state = self.rerun(self.folder)
                 summary = result_summary(getattr(state, "result", None), getattr(state, "band_table", None))
                 with self._lock:
                     self.last_result = summary or self.last_result
@@ -88,12 +177,13 @@ class ReviewApp:
                 if not isinstance(exc, BandgeoError):
                     traceback.print_exc(file=sys.stderr)
             with self._lock:
-                self.status.update(finished_utc=utc_now(), runs=self.status["runs"] + 1)
+                self.status.update(finished_utc=utc_now(), runs=self.status["runs"] + 1,
+                                   seconds=round(time.perf_counter() - start, 3), stage=None)
                 if not self._pending:
                     self._worker = None
                     return
                 self._pending = False
-                self.status.update(state="running", started_utc=utc_now())
+                self.status.update(state="running", started_utc=utc_now(), stage="starting", done=0, total=0)
 
     def wait(self, timeout=None) -> None:
         """Block until the re-run worker (if any) is done."""

@@ -88,8 +88,12 @@ class FolderData:
             self.faces = np.asarray(data["faces"], np.int32)
             self.colors = np.asarray(data["colors"], np.uint8) if "colors" in data.files else None
             meta = json.loads(data["meta_json"].tobytes().decode("utf-8")) if "meta_json" in data.files else {}
+        self.meta = meta
         self.specimen_id = meta.get("specimen_id") or "specimen"
         self.scan_sha256 = meta.get("scan_sha256")
+        from .basis import basis_of
+
+        self.basis = basis_of(meta, segmentation)
         heights = np.asarray(segmentation.axis.heights_mm, float)
         self.span = (float(heights[0]), float(heights[-1]))
         self.s, self.az, self.r = unroll(self.vertices, segmentation.axis)
@@ -177,10 +181,19 @@ class FolderData:
         out = {"n_vertices": int(len(v)), "n_faces": int(len(f)), "n_faces_full": int(len(self.faces)),
                "centre_mm": centre.tolist(), "size_mm": float(np.ptp(v, axis=0).max()),
                "vertices": b64(v.astype(np.float32)), "faces": b64(f.astype(np.uint32)),
-               "height": b64(s_corr.astype(np.float32)), "colors": None}
+               "height": b64(s_corr.astype(np.float32)), "colors": None,
+               "radius_mm": float(np.median(self.r)) if self.r.size else 1.0,
+               "axis": self._axis_points(centre)}
         if col is not None:
             out["colors"] = b64(col.astype(np.uint8))
         return out
+
+    def _axis_points(self, centre, n=256) -> dict:
+        """The centreline at ``n`` heights (mm), its points moved by ``-centre`` like the mesh."""
+        h = np.linspace(self.span[0], self.span[1], n)
+        p, t, _, _ = axis_frames(self.segmentation.axis, h)
+        return {"heights_mm": np.round(h, 5).tolist(), "points_mm": np.round(p - centre, 5).tolist(),
+                "tangents": np.round(t, 5).tolist()}
 
     def _surface(self) -> dict:
         lo, hi = self.span

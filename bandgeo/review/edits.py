@@ -18,6 +18,7 @@ from ..errors import ReviewError
 #: op -> (required fields, optional fields) besides the common ones.
 OPS = {
     "accept": (("id",), ()),
+    "accept_stretch": (("s0_mm", "s1_mm"), ()),
     "reject": (("id",), ()),
     "merge": (("id",), ()),
     "move": (("id", "height_mm"), ("coalesce",)),
@@ -30,6 +31,8 @@ OPS = {
 }
 COMMON = ("time_utc", "seq", "note")
 MAX_TEXT = 2000
+#: Ids and counters above this are refused (a boundary id is a small whole number).
+MAX_ID = 2 ** 31 - 1
 #: Two boundaries closer than this along the axis are taken as one (mm).
 MIN_GAP_MM = 1e-3
 
@@ -48,14 +51,30 @@ def _fail(edit, message):
 def _int(edit, key):
     value = edit[key]
     if isinstance(value, bool) or not isinstance(value, int) or value < 0:
-        _fail(edit, f"expected {key!r} to be a non-negative whole number but got {value!r}")
+        _fail(edit, f"expected {key!r} to be a non-negative whole number but got {_short(value)}")
+    if value > MAX_ID:
+        _fail(edit, f"expected {key!r} to be at most {MAX_ID} but got a number with {len(str(value))} digits")
     return int(value)
+
+
+def _short(value, limit=40) -> str:
+    """``repr(value)`` cut to ``limit`` characters, for one-line messages about bad input."""
+    try:
+        text = repr(value)
+    except ValueError:  # an int too long to print
+        return f"a number with more than {limit} digits"
+    return text if len(text) <= limit else text[:limit - 1] + "…"
 
 
 def _num(edit, key):
     value = edit[key]
-    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
-        _fail(edit, f"expected {key!r} to be a finite number of millimetres but got {value!r}")
+    ok = not isinstance(value, bool) and isinstance(value, (int, float))
+    try:
+        ok = ok and math.isfinite(float(value))
+    except OverflowError:  # an int too large for a float
+        ok = False
+    if not ok:
+        _fail(edit, f"expected {key!r} to be a finite number of millimetres but got {_short(value)}")
     return float(value)
 
 
@@ -94,13 +113,13 @@ def validate_edit(edit) -> dict:
         raise ReviewError(f"expected an edit to be a JSON object like {{\"op\": \"reject\", \"id\": 3}} "
                           f"but got {type(edit).__name__}")
     op = edit.get("op")
-    if op not in OPS:
-        raise ReviewError(f"unknown edit op {op!r}; expected one of {', '.join(sorted(OPS))}")
+    if not isinstance(op, str) or op not in OPS:
+        raise ReviewError(f"unknown edit op {_short(op)}; expected one of {', '.join(sorted(OPS))}")
     required, optional = OPS[op]
     allowed = {"op", *required, *optional, *COMMON}
-    unknown = sorted(set(edit) - allowed)
+    unknown = sorted(_short(k, 30) for k in set(edit) - allowed)
     if unknown:
-        _fail(edit, f"unexpected field(s) {', '.join(unknown)}; allowed: {', '.join(sorted(allowed))}")
+        _fail(edit, f"unexpected field(s) {', '.join(unknown[:5])}; allowed: {', '.join(sorted(allowed))}")
     missing = [k for k in required if k not in edit]
     if missing:
         _fail(edit, f"missing field(s) {', '.join(missing)}")
@@ -127,7 +146,7 @@ def validate_edit(edit) -> dict:
             except ValueError:
                 _fail(edit, f"expected 'time_utc' like 2026-12-02T01:30:00Z but got {value!r}")
             out[key] = value
-    if op in ("hiatus", "uncertain") and not out["s0_mm"] < out["s1_mm"]:
+    if op in ("hiatus", "uncertain", "accept_stretch") and not out["s0_mm"] < out["s1_mm"]:
         _fail(edit, f"expected s0_mm < s1_mm but got {out['s0_mm']} and {out['s1_mm']}")
     return out
 
@@ -230,6 +249,13 @@ def apply_one(state: ReplayState, edit: dict, span: tuple) -> dict:
         else:
             _check_height(edit, edit["height_mm"], span, state.active(), skip=b.id)
             b.height_mm, b.moved = edit["height_mm"], True
+    elif op == "accept_stretch":
+        picked = [b for b in state.active() if b.auto and edit["s0_mm"] <= b.height_mm <= edit["s1_mm"]]
+        if not picked:
+            _fail(edit, f"no boundary in place lies in {edit['s0_mm']:.4g}-{edit['s1_mm']:.4g} mm; "
+                        f"pick a stretch with boundaries in it")
+        for b in picked:
+            b.accepted = True
     elif op in ("add", "split"):
         _check_height(edit, edit["height_mm"], span, state.active())
         if "id" not in edit:

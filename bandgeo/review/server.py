@@ -13,7 +13,9 @@ import os
 import secrets
 import signal
 import socket
+import sys
 import threading
+import time
 import urllib.parse
 from http import HTTPStatus
 from http.server import BaseHTTPRequestHandler, ThreadingHTTPServer
@@ -26,10 +28,21 @@ from .app import ReviewApp
 LOOPBACK = ("127.0.0.1", "::1", "localhost")
 MAX_BODY = 16 * 1024
 COOKIE = "bandgeo_review"
+#: The header that must carry the token on every state-changing call (a cookie alone is not enough:
+#: browsers send cookies to every port of 127.0.0.1, so another local page could ride on it).
+TOKEN_HEADER = "X-Review-Token"
+#: Seconds a connection may take from its accept to the end of its request headers.
+HEADER_TIMEOUT = 5.0
+#: Seconds any single read may wait (the body, once the headers are in).
+READ_TIMEOUT = 10.0
+JS = "text/javascript; charset=utf-8"
 STATIC = {"/": ("index.html", "text/html; charset=utf-8"),
-          "/static/review.js": ("review.js", "text/javascript; charset=utf-8"),
-          "/static/view3d.js": ("view3d.js", "text/javascript; charset=utf-8"),
+          "/static/review.js": ("review.js", JS),
+          "/static/view3d.js": ("view3d.js", JS),
+          "/static/palette.js": ("palette.js", JS),
+          "/static/vendor/three.module.min.js": ("vendor/three.module.min.js", JS),
           "/static/review.css": ("review.css", "text/css; charset=utf-8")}
+POSTS = ("/api/edit", "/api/undo", "/api/redo", "/api/save", "/api/set-aside")
 CSP = ("default-src 'none'; script-src 'self'; style-src 'self'; img-src 'self' data: blob:; "
        "connect-src 'self'; base-uri 'none'; form-action 'none'; frame-ancestors 'none'")
 
@@ -39,14 +52,42 @@ class Handler(BaseHTTPRequestHandler):
 
     server_version = "bandgeo-review"
     sys_version = ""
-    timeout = 30  # seconds a client may take to send its request
+    timeout = READ_TIMEOUT  # seconds any one read may take; the server also caps the header phase
     app: ReviewApp = None  # set per server
 
     def log_message(self, fmt, *args):  # quiet: the CLI prints the URL and errors only
         pass
 
+    def parse_request(self):
+        self._replied = False
+        ok = super().parse_request()
+        self.server.headers_done(self.connection)
+        return ok
+
+    def send_error(self, code, message=None, explain=None):
+        """Protocol-level errors (bad request line, headers too long, ...) as one-line JSON too."""
+        try:
+            short, _ = self.responses.get(code, ("error", ""))
+        except Exception:  # pragma: no cover - responses is a plain dict
+            short = "error"
+        text = " ".join(str(message or short).split())[:300]
+        self.close_connection = True
+        if getattr(self, "request_version", "HTTP/0.9") in (None, "HTTP/0.9"):
+            self.request_version = "HTTP/1.0"  # so that the status line and headers are sent
+        try:
+            self._json(code, {"error": f"{text}; send one well-formed HTTP/1.1 request"})
+        except Exception:  # the client is gone
+            pass
+
     # -- helpers -----------------------------------------------------------------------------------
     def _send(self, status, body: bytes, ctype="application/json; charset=utf-8", extra=None):
+        if getattr(self, "_replied", False):
+            return
+        self._replied = True
+        if not hasattr(self, "_headers_buffer"):
+            self._headers_buffer = []
+        if getattr(self, "request_version", None) is None:
+            self.request_version = "HTTP/1.0"
         self.send_response(status)
         self.send_header("Content-Type", ctype)
         self.send_header("Content-Length", str(len(body)))
@@ -66,32 +107,67 @@ class Handler(BaseHTTPRequestHandler):
     def _error(self, status, message):
         self._json(status, {"error": message})
 
-    def _authorised(self, query) -> bool:
-        token = self.app.token
-        offered = [self.headers.get("X-Review-Token", ""), *query.get("token", [])]
-        cookie = self.headers.get("Cookie", "")
-        for part in cookie.split(";"):
-            name, _, value = part.strip().partition("=")
-            if name == COOKIE:
-                offered.append(value)
-        return any(hmac.compare_digest(str(o).encode(), token.encode()) for o in offered if o)
+    def _authorised(self, query, header_only=False) -> bool:
+        """The token matches. State-changing calls must send it in the header; a page load may give it
+        in the address (first load) or the cookie the page then keeps."""
+        token = self.app.token.encode()
+        offered = [self.headers.get(TOKEN_HEADER, "")]
+        if not header_only:
+            offered += query.get("token", [])
+            cookie = self.headers.get("Cookie", "")
+            for part in cookie.split(";"):
+                name, _, value = part.strip().partition("=")
+                if name == COOKIE:
+                    offered.append(value)
+        return any(hmac.compare_digest(str(o).encode("utf-8", "replace"), token) for o in offered if o)
+
+    def _origin_ok(self) -> bool:
+        """A browser's Origin (when sent) must be this server's own address; a fetch from another
+        site or port is refused even on GET. Requests without Origin (curl, the page's own GETs) pass."""
+        origin = self.headers.get("Origin")
+        if origin is not None and origin.strip().lower() not in self._own_origins():
+            return False
+        site = (self.headers.get("Sec-Fetch-Site") or "").strip().lower()
+        return site not in ("cross-site", "same-site")
+
+    def _own_origins(self) -> set:
+        port = self.server.server_address[1]
+        return {f"http://127.0.0.1:{port}", f"http://localhost:{port}", f"http://[::1]:{port}"}
 
     def _host_ok(self) -> bool:
         host = (self.headers.get("Host") or "").strip().lower()
         port = self.server.server_address[1]
         return host in {f"127.0.0.1:{port}", f"localhost:{port}", f"[::1]:{port}"}
 
-    def _gate(self):
-        """Parse the URL and check host and token; return (path, query) or None after an error."""
-        raw = self.path
-        parsed = urllib.parse.urlsplit(raw)
-        query = urllib.parse.parse_qs(parsed.query)
+    def _gate(self, changing=False):
+        """Parse the URL and check host, origin and token (and, for a state-changing call, that the
+        token came in the header and the body is declared JSON); return (path, query) or None after an
+        error reply."""
+        try:
+            parsed = urllib.parse.urlsplit(self.path)
+            query = urllib.parse.parse_qs(parsed.query, max_num_fields=20)
+        except ValueError:
+            self._error(HTTPStatus.BAD_REQUEST, "the address cannot be parsed; open the address the command printed")
+            return None
         if not self._host_ok():
             self._error(HTTPStatus.FORBIDDEN, "wrong Host header; open the address the command printed")
             return None
-        if not self._authorised(query):
-            self._error(HTTPStatus.FORBIDDEN, "missing or wrong token; open the address the command printed")
+        if not self._origin_ok():
+            self._error(HTTPStatus.FORBIDDEN, "request from another site or port refused; use the review page "
+                                              "itself")
             return None
+        if not self._authorised(query, header_only=changing):
+            where = f"in the {TOKEN_HEADER} header" if changing else ""
+            self._error(HTTPStatus.FORBIDDEN, f"missing or wrong token {where}; open the address the command "
+                                              f"printed".replace("  ", " "))
+            return None
+        if changing:
+            ctype = (self.headers.get("Content-Type") or "").split(";")[0].strip().lower()
+            if ctype != "application/json":
+                self._error(HTTPStatus.UNSUPPORTED_MEDIA_TYPE,
+                            f"expected Content-Type application/json but got {ctype or 'none'}; "
+                            f"send the body as JSON")
+                return None
         return parsed.path, query
 
     def _body(self):
@@ -118,8 +194,9 @@ class Handler(BaseHTTPRequestHandler):
             return {}
         try:
             body = json.loads(data.decode("utf-8"))
-        except (UnicodeDecodeError, json.JSONDecodeError) as exc:
-            self._error(HTTPStatus.BAD_REQUEST, f"the request body is not valid JSON ({exc}); send a JSON object")
+        except (UnicodeDecodeError, ValueError) as exc:  # ValueError: also numbers over the digit limit
+            msg = " ".join(str(exc).split())[:120]
+            self._error(HTTPStatus.BAD_REQUEST, f"the request body is not valid JSON ({msg}); send a JSON object")
             return None
         except RecursionError:
             self._error(HTTPStatus.BAD_REQUEST, "the request body nests too deeply; send one flat edit object")
@@ -131,6 +208,24 @@ class Handler(BaseHTTPRequestHandler):
 
     # -- methods -----------------------------------------------------------------------------------
     def do_GET(self):
+        try:
+            self._get()
+        except Exception as exc:  # never a traceback: one line to the client and to the terminal
+            self._internal(exc)
+
+    def _internal(self, exc):
+        if isinstance(exc, (ConnectionError, TimeoutError, BrokenPipeError)):
+            self.close_connection = True  # the client went away; nothing to tell anyone
+            return
+        line = f"internal error: {type(exc).__name__}: {' '.join(str(exc).split())[:200]}"
+        print(f"bandgeo review: {line}", file=sys.stderr)
+        self.close_connection = True
+        try:
+            self._error(HTTPStatus.INTERNAL_SERVER_ERROR, line + "; please report it")
+        except Exception:
+            pass
+
+    def _get(self):
         gate = self._gate()
         if gate is None:
             return
@@ -148,7 +243,7 @@ class Handler(BaseHTTPRequestHandler):
             elif path == "/api/state":
                 self._json(HTTPStatus.OK, self.app.state())
             elif path == "/api/status":
-                self._json(HTTPStatus.OK, self.app.state()["rerun"])
+                self._json(HTTPStatus.OK, self.app.rerun_status())
             elif path == "/api/mesh":
                 self._json(HTTPStatus.OK, self.app.data.mesh_payload())
             elif path == "/api/surface":
@@ -161,11 +256,17 @@ class Handler(BaseHTTPRequestHandler):
     do_HEAD = do_GET
 
     def do_POST(self):
-        gate = self._gate()
+        try:
+            self._post()
+        except Exception as exc:
+            self._internal(exc)
+
+    def _post(self):
+        gate = self._gate(changing=True)
         if gate is None:
             return
         path, _ = gate
-        if path not in ("/api/edit", "/api/undo", "/api/redo", "/api/save"):
+        if path not in POSTS:
             self._error(HTTPStatus.NOT_FOUND, "no such action")
             return
         body = self._body()
@@ -177,17 +278,24 @@ class Handler(BaseHTTPRequestHandler):
                 edit = body.get("edit")
                 done = app.session.push(edit)
                 self._json(HTTPStatus.OK, {"edit": done, "state": app.state()})
+            elif path == "/api/set-aside":
+                name = app.set_aside()
+                self._json(HTTPStatus.OK, {"renamed_to": name, "state": app.state()})
             elif path in ("/api/undo", "/api/redo"):
                 changed = app.session.undo() if path == "/api/undo" else app.session.redo()
                 self._json(HTTPStatus.OK, {"changed": changed, "state": app.state()})
+            elif app.set_apart is not None:
+                app.save()  # raises the one-line refusal
             else:
                 written = app.save()
                 self._json(HTTPStatus.OK, {"saved_utc": written["updated_utc"],
                                            "n_edits": len(written["edits"]), "state": app.state()})
         except ReviewError as exc:
-            self._error(HTTPStatus.BAD_REQUEST, str(exc))
+            status = HTTPStatus.CONFLICT if app.set_apart is not None and path == "/api/save" else \
+                HTTPStatus.BAD_REQUEST
+            self._error(status, " ".join(str(exc).split()))
         except BandgeoError as exc:
-            self._error(HTTPStatus.INTERNAL_SERVER_ERROR, str(exc))
+            self._error(HTTPStatus.INTERNAL_SERVER_ERROR, " ".join(str(exc).split()))
 
     def _refuse(self):
         self._error(HTTPStatus.METHOD_NOT_ALLOWED, "only GET and POST are used here")
@@ -202,34 +310,89 @@ class ReviewServer(ThreadingHTTPServer):
     allow_reuse_address = os.name != "nt"  # restart on the same port at once (POSIX semantics)
     request_queue_size = 16
 
-    #: Connections served at once; more are refused with 503 rather than given a thread each.
+    #: Connections served at once. When all are taken, the one that has waited longest for its headers
+    #: is closed to make room, so idle or slow connections cannot lock the page out.
     max_connections = 32
+    header_timeout = HEADER_TIMEOUT
 
     def __init__(self, address, app: ReviewApp):
         handler = type("BoundHandler", (Handler,), {"app": app})
         super().__init__(address, handler)
         self._slots = threading.BoundedSemaphore(self.max_connections)
+        self._waiting: dict = {}           # socket -> time accepted, until its headers are in
+        self._waiting_lock = threading.Lock()
         self.app = app
         host, port = self.server_address[:2]
         shown = f"[{host}]" if ":" in host else host
         self.url = f"http://{shown}:{port}/?token={app.token}"
         self.thread: threading.Thread | None = None
 
+    def headers_done(self, sock) -> None:
+        with self._waiting_lock:
+            self._waiting.pop(sock, None)
+
+    def _drop(self, sock) -> None:
+        try:
+            sock.shutdown(socket.SHUT_RDWR)  # its thread's read returns at once and the slot frees
+        except OSError:
+            pass
+
+    def _evict_oldest(self) -> bool:
+        with self._waiting_lock:
+            if not self._waiting:
+                return False
+            sock = min(self._waiting, key=self._waiting.get)
+            self._waiting.pop(sock)
+        self._drop(sock)
+        return True
+
+    def service_actions(self):
+        """Called by serve_forever between polls: close connections still without headers after
+        ``header_timeout`` seconds (a slow sender cannot hold a slot by trickling bytes)."""
+        now = time.monotonic()
+        with self._waiting_lock:
+            late = [s for s, t in self._waiting.items() if now - t > self.header_timeout]
+            for sock in late:
+                self._waiting.pop(sock)
+        for sock in late:
+            self._drop(sock)
+
     def process_request(self, request, client_address):
-        if not self._slots.acquire(blocking=False):
+        got = self._slots.acquire(blocking=False)
+        while not got and self._evict_oldest():
+            got = self._slots.acquire(timeout=1.0)
+        if not got:
+            got = self._slots.acquire(timeout=1.0)
+        if not got:  # every slot is busy with a real request: refuse rather than queue forever
             try:
-                request.sendall(b"HTTP/1.0 503 Service Unavailable\r\nContent-Length: 0\r\n\r\n")
+                body = b'{"error": "the review server is busy; try again shortly"}\n'
+                request.sendall(b"HTTP/1.0 503 Service Unavailable\r\nContent-Type: application/json\r\n"
+                                b"Content-Length: " + str(len(body)).encode() + b"\r\n\r\n" + body)
             except OSError:
                 pass
             self.shutdown_request(request)
             return
-        super().process_request(request, client_address)
+        with self._waiting_lock:
+            self._waiting[request] = time.monotonic()
+        try:
+            super().process_request(request, client_address)
+        except Exception:
+            self.headers_done(request)
+            self._slots.release()
+            raise
 
     def process_request_thread(self, request, client_address):
         try:
             super().process_request_thread(request, client_address)
         finally:
+            self.headers_done(request)
             self._slots.release()
+
+    def handle_error(self, request, client_address):
+        """A connection that fails outside a handler (reset by the client...): one line, no traceback."""
+        exc = sys.exc_info()[1]
+        if exc is not None and not isinstance(exc, (ConnectionError, TimeoutError, OSError)):
+            print(f"bandgeo review: connection error: {type(exc).__name__}: {exc}", file=sys.stderr)
 
     def stop(self, wait_rerun: float = 30.0) -> None:
         """Stop serving, close the socket, and let a running re-run finish (up to ``wait_rerun`` s)."""
@@ -320,6 +483,13 @@ def run(folder, host="127.0.0.1", port=0, open_browser=True, token=None, echo=pr
         if threading.current_thread() is threading.main_thread():
             previous = signal.signal(signal.SIGTERM, _term)
         echo(f"Review page for {server.app.data.specimen_id}: {server.url}")
+        app = server.app
+        if app.removed_temp:
+            echo(f"Removed {len(app.removed_temp)} temporary file(s) left by an interrupted save.")
+        if app.set_apart is not None:
+            echo(f"warning: review.json here belongs to {app.set_apart['belongs_to']} and does not fit this "
+                 f"folder ({'; '.join(app.set_apart['reasons'])}); it is not shown or applied. The page "
+                 f"offers to set it aside.")
         echo("Press Ctrl-C to stop.")
         while not stop.wait(0.5):
             pass

@@ -5,6 +5,7 @@ import contextlib
 import json
 import os
 import threading
+import time
 from pathlib import Path
 
 from .. import atomic
@@ -34,6 +35,29 @@ def inside(folder, name: str) -> Path:
         raise ReviewError(f"{name} in {folder} is a link to {real}, outside the specimen folder; "
                           f"replace the link with the file itself")
     return path
+
+
+def clean_temp_files(folder, min_age_s: float = 0.0) -> list:
+    """Remove ``.review.*.json`` files left in ``folder`` by a save that was killed half way (the
+    atomic writer's temporary files; the real ``review.json`` is never among them). Returns their names.
+
+    Runs under the folder's write lock, so it never removes the temporary file of a save in progress.
+    """
+    folder = Path(folder)
+    removed = []
+    if not folder.is_dir():
+        return removed
+    with _folder_lock(folder):
+        for path in folder.glob(".review.*.json"):
+            try:
+                if path.is_file() and not path.is_symlink():
+                    if min_age_s and (time.time() - path.stat().st_mtime) < min_age_s:
+                        continue
+                    path.unlink()
+                    removed.append(path.name)
+            except OSError:
+                pass
+    return removed
 
 
 def empty_review(specimen_id=None) -> dict:
@@ -138,6 +162,12 @@ def save_review(folder, review: dict) -> dict:
     review = _check(review, "review")
     path = inside(folder, REVIEW_FILE)
     with _folder_lock(folder):
+        for stale in folder.glob(".review.*.json"):  # left by a save that was killed (we hold the lock)
+            try:
+                if stale.is_file() and not stale.is_symlink():
+                    stale.unlink()
+            except OSError:
+                pass
         old = read_review(folder) or empty_review(review.get("specimen_id"))
         before = {_key(e) for e in old["edits"]}
         after = {_key(e) for e in review["edits"]}
