@@ -1,78 +1,72 @@
-"""The whole job in one place: scan -> specimen -> features -> segmentation (+ review) -> bands ->
-series -> periodicity -> astronomy -> result folder and report.
+"""The whole job in one place: scan -> specimen -> features -> segmentation -> (review edits) -> bands
+-> series -> periodicity -> astronomy -> result folder and report.
 
-Each stage is called through its own module's public function, so a notebook user can run the same
-steps one by one. This module only wires them together, times them, records every parameter, and
-writes the result folder (see DEVELOPERS.md, "Result folder").
+One path::
+
+    inputs   = upstream(scan, params)                          # load, orient, features, segment
+             | ResultFolder(DIR).load_inputs()                 # or read back once from a folder
+    analysis = downstream(specimen, segmentation, review, params)   # in memory, no file read
+    save(analysis, DIR)                                        # written on the side, swapped in
+
+``analyze``, ``rerun``, ``load_state``, ``bandgeo report``, the batch and the review page
+(:class:`Rerunner`) are thin callers of these three. Each stage is called through its own module's
+public function, so a notebook user can run the same steps one by one.
 """
 from __future__ import annotations
 
-import dataclasses
-import datetime as _dt
-import platform
 import time
+from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any, Callable, Optional
+from typing import TYPE_CHECKING, Callable, Optional
 
 import numpy as np
 
-from . import __version__
-from .atomic import write_json
-from .constants import DEFAULT_SEED, RESULT_SCHEMA
+from .constants import DEFAULT_SEED
+from .document import ASSUMPTIONS, astronomy_block, library_versions, result_document  # noqa: F401
 from .errors import InputError
 from .progress import report as _report
-from .state import load_specimen, read_result, save_specimen
+from .results import DERIVED_FILES, REVIEW_FILE, RUN_FILE, ResultFolder, ReviewInfo, RunParams, save_specimen
+from .atomic import write_json
 
-#: Assumptions every days-per-year figure rests on; the report prints them beside the numbers.
-ASSUMPTIONS = [
-    "Each band is taken to be one day's lamina; the daily test below says whether the spacing supports "
-    "that (modern subtidal stromatolites can add about one lamina a day: Gebelein 1969).",
-    "Band counts are minima: stromatolite records are rarely complete and missing days are not counted "
-    "(Pannella 1972).",
-    "The sway-based estimate assumes heliotropism, i.e. that the column leaned toward the seasonal sun; "
-    "not every author accepts that fossil columns record it (Williams, Jenkins & Walter 2007).",
-    "Length of day assumes a constant length of year, 365.24219 days of 86400 s (tidal friction barely "
-    "changes Earth's orbit).",
-]
+if TYPE_CHECKING:  # pragma: no cover - types only
+    from .measure import BandTable
+    from .scan import Specimen
+    from .segment import Segmentation
+    from .series import BandSeries
+    from .spectral.result import PeriodicityResult
 
 #: Stage names in pipeline order, used for timings and progress.
 STAGES = ("load", "orient", "features", "segment", "review", "measure", "series", "periodicity",
           "astronomy", "report")
+UPSTREAM = STAGES[:4]
+ALL_FORMATS = ("html", "pdf", "csv", "ply")
 
 
-@dataclasses.dataclass
-class AnalysisState:
-    """Everything known about one analysed specimen folder.
+@dataclass
+class Analysis:
+    """Everything known about one analysed specimen, in memory.
 
-    Attributes
-    ----------
-    folder : Path
-        The specimen's result folder.
-    result : dict
-        The content of ``result.json`` (schema ``bandgeo.result/1``, see docs/result-schema.md).
-    specimen : bandgeo.scan.Specimen
-        The oriented, cleaned mesh (specimen frame, millimetres).
-    segmentation : bandgeo.segment.Segmentation
-        The segmentation in force: the automatic one with the review edits applied, if any.
-    band_table : bandgeo.measure.BandTable
-    series : bandgeo.series.BandSeries
-    periodicity : bandgeo.spectral.PeriodicityResult
-    auto_segmentation : bandgeo.segment.Segmentation
-        The automatic segmentation before review edits.
+    ``segmentation`` is the one in force (automatic + review edits); ``result`` is the
+    ``result.json`` document (docs/result-schema.md) built from the typed parts.
     """
 
-    folder: Path
+    specimen: "Specimen"
+    segmentation: "Segmentation"
+    auto_segmentation: "Segmentation"
+    band_table: "BandTable"
+    series: "BandSeries"
+    periodicity: "PeriodicityResult"
+    astronomy: dict
+    review: ReviewInfo
+    params: RunParams
     result: dict
-    specimen: Any
-    segmentation: Any
-    band_table: Any
-    series: Any
-    periodicity: Any
-    auto_segmentation: Any = None
+    stage_seconds: dict[str, float] = field(default_factory=dict)
+    folder: Optional[Path] = None
 
 
-#: The object ``analyze`` returns (same as the state ``load_state`` gives back).
-AnalysisResult = AnalysisState
+#: Older names of :class:`Analysis` (same object).
+AnalysisState = Analysis
+AnalysisResult = Analysis
 
 
 class _Timer:
@@ -93,88 +87,8 @@ class _Timer:
         return value
 
 
-def library_versions() -> dict[str, str]:
-    """Versions of bandgeo and the libraries whose results it depends on."""
-    from importlib import metadata
-
-    names = ["numpy", "scipy", "scikit-learn", "open3d", "trimesh", "astropy", "matplotlib"]
-    versions = {"bandgeo": __version__, "python": platform.python_version()}
-    for name in names:
-        try:
-            versions[name] = metadata.version(name)
-        except metadata.PackageNotFoundError:  # pragma: no cover - all are dependencies
-            versions[name] = "not installed"
-    return versions
-
-
-def analyze(scan_path, out_dir, *, units=None, up=None, north=None, strike_dip=None, sheet=None,
-            scale=None, seed: int = DEFAULT_SEED, keep_review: bool = True, report: bool = True,
-            min_period_bands=None, max_period_bands=None, n_sim: int = 1000,
-            progress: Optional[Callable] = None) -> AnalysisState:
-    """Run the whole job on one scan and write the result folder.
-
-    Parameters
-    ----------
-    scan_path : path
-        The scan (PLY, OBJ, STL, OFF, glTF/GLB). Never modified.
-    out_dir : path
-        The specimen's result folder; created if missing. A ``review.json`` already there is kept and
-        applied unless ``keep_review=False`` (then it is renamed aside, never deleted).
-    units, up, north, strike_dip, sheet, scale
-        Passed to :func:`bandgeo.scan.prepare` (units of the file, paleo-up and north vectors in the scan
-        frame, bedding strike/dip in degrees, a specimen sheet path or object, a scale factor).
-    seed : int
-        Seed of every stochastic step (clustering subsample, Monte Carlo significance, bootstrap).
-    min_period_bands, max_period_bands : float, optional
-        Narrow the annual search band (bands per cycle). By default it runs from a few bands per cycle
-        up to about a third of the record, and is stated in the result.
-    n_sim : int
-        Monte Carlo replicates for significance and intervals.
-
-    Returns
-    -------
-    AnalysisState
-    """
-    from . import features as _features
-    from . import scan as _scan
-    from . import segment as _segment
-
-    out_dir = Path(out_dir)
-    scan_path = Path(scan_path)
-    timer = _Timer(progress)
-    if out_dir.exists() and not out_dir.is_dir():
-        raise InputError(f"the output {str(out_dir)!r} exists and is not a folder; give a folder for --out")
-    if isinstance(sheet, (str, Path)):
-        sheet = _scan.read_sheet(sheet)
-
-    scan = timer.run("load", _scan.load_scan, scan_path)
-    specimen = timer.run("orient", _scan.prepare, scan, units=units, up=up, north=north,
-                         strike_dip=strike_dip, sheet=sheet, scale=scale)
-    specimen.warnings.extend(orientation_warnings(specimen))
-    feats = timer.run("features", _features.compute_features, specimen)
-    segmenter = _segment.BandSegmenter(random_state=seed)
-    auto = timer.run("segment", lambda: segmenter.fit(specimen, feats).segmentation_)
-
-    out_dir.mkdir(parents=True, exist_ok=True)
-    auto.save(out_dir)
-    save_specimen(out_dir, specimen, auto)
-    if not keep_review:
-        _set_review_aside(out_dir)
-
-    parameters = {
-        "scan": str(scan_path), "units": units, "up": None if up is None else [float(v) for v in up],
-        "north": None if north is None else [float(v) for v in north],
-        "strike_dip": None if strike_dip is None else [float(v) for v in strike_dip],
-        "sheet": getattr(sheet, "path", None) if sheet is not None else None,
-        "scale": scale, "seed": int(seed), "keep_review": bool(keep_review),
-        "min_period_bands": min_period_bands, "max_period_bands": max_period_bands, "n_sim": int(n_sim),
-        "features": {"scales_mm": np.asarray(feats.scales_mm).tolist(),
-                     "band_spacing_mm": float(feats.band_spacing_mm),
-                     "band_spacing_method": feats.band_spacing_method},
-        "segmenter": segmenter.get_params() if hasattr(segmenter, "get_params") else {},
-    }
-    state = _downstream(out_dir, specimen, auto, parameters, timer, report=report)
-    return state
+# ----------------------------------------------------------------------------------------------------
+# Upstream: scan -> specimen -> features -> automatic segmentation
 
 
 #: Angle between the column's own long axis and the paleo-vertical given, above which a warning is
@@ -185,7 +99,7 @@ AXIS_VERTICAL_WARN_DEG = 30.0
 
 def orientation_warnings(specimen) -> list[str]:
     """Warn when a given way-up disagrees with the column's own long axis (a likely input mistake)."""
-    summary = getattr(specimen, "summary", None) or {}
+    summary = specimen.summary or {}
     given, estimated = summary.get("paleo_up_scan"), summary.get("estimated_up_scan")
     if specimen.up_source == "estimated" or given is None or estimated is None:
         return []
@@ -203,208 +117,255 @@ def orientation_warnings(specimen) -> list[str]:
             "vector and the bedding"]
 
 
-def _set_review_aside(folder: Path) -> Optional[Path]:
-    """Rename an existing review file aside (never delete a user's work)."""
-    review = folder / "review.json"
-    if not review.exists():
-        return None
-    stamp = _dt.datetime.now(_dt.timezone.utc).strftime("%Y%m%dT%H%M%SZ")
-    target = folder / f"review.set-aside-{stamp}.json"
-    review.rename(target)
-    return target
+def upstream(scan_path, params: RunParams, *, sheet=None, timer: Optional[_Timer] = None):
+    """Load, orient, compute features and segment. Returns ``(specimen, segmentation, params)`` with the
+    automatic stages' own choices recorded in ``params.features`` / ``params.segmenter``."""
+    from . import features as _features
+    from . import scan as _scan
+    from . import segment as _segment
+
+    timer = timer or _Timer(None)
+    if sheet is None and params.sheet is not None:
+        sheet = _scan.read_sheet(params.sheet)
+    scan = timer.run("load", _scan.load_scan, Path(scan_path))
+    specimen = timer.run("orient", _scan.prepare, scan, units=params.units, up=params.up, north=params.north,
+                         strike_dip=params.strike_dip, sheet=sheet, scale=params.scale)
+    specimen.warnings.extend(orientation_warnings(specimen))
+    feats = timer.run("features", _features.compute_features, specimen)
+    segmenter = _segment.BandSegmenter(random_state=params.seed)
+    auto = timer.run("segment", lambda: segmenter.fit(specimen, feats).segmentation_)
+    params = params.with_stages(
+        {"scales_mm": np.asarray(feats.scales_mm).tolist(), "band_spacing_mm": float(feats.band_spacing_mm),
+         "band_spacing_method": feats.band_spacing_method}, segmenter.get_params())
+    return specimen, auto, params
 
 
-def _apply_review(folder: Path, specimen, auto, warnings: list):
-    """Apply ``review.json`` (if any) to the automatic segmentation. Returns (segmentation, review info)."""
-    from . import review as _review
+# ----------------------------------------------------------------------------------------------------
+# Downstream: review edits -> measurement -> series -> periodicity -> astronomy (in memory)
 
-    review = _review.read_review(folder)
+
+def review_stage(specimen, auto, review: Optional[dict], warnings: list):
+    """Apply a review (a dict as ``bandgeo.review.store.read_review`` gives) to the automatic
+    segmentation. A review made on another scan, or in other units, is not applied: a warning says so.
+    Returns ``(segmentation, ReviewInfo)``."""
+    from .review.apply import apply_review
+
     if review is None:
-        return auto, {"edited": False, "n_edits": 0}
+        return auto, ReviewInfo()
     sha = review.get("scan_sha256")
     if sha and sha != specimen.scan_sha256:
         warnings.append("review.json was made on a different scan (SHA-256 differs); its edits were not "
                         "applied. Re-review, or re-run with the original scan.")
-        return auto, {"edited": False, "n_edits": 0, "ignored": "scan differs"}
-    seg = _review.apply_review(auto, specimen, review)
-    edits = review.get("edits", [])
-    info = {"edited": bool(edits), "n_edits": len(edits),
-            "saved": review.get("saved"), "notes": review.get("notes", ""),
-            "marked_stretches": review.get("stretches", [])}
-    return seg, info
+        return auto, ReviewInfo(ignored="scan differs")
+    scale = review.get("mm_per_unit")
+    if isinstance(scale, (int, float)) and not np.isclose(float(scale), specimen.mm_per_unit, rtol=1e-9):
+        warnings.append(f"review.json was made with {scale:g} mm per scan unit but this run uses "
+                        f"{specimen.mm_per_unit:g}; its edits were not applied. Re-run with the units of the "
+                        f"review, or review again.")
+        return auto, ReviewInfo(ignored="units differ")
+    seg = apply_review(auto, specimen, review)
+    edits = review.get("edits") or []
+    return seg, ReviewInfo(edited=bool(edits), n_edits=len(edits), saved=review.get("saved"),
+                           notes=str(review.get("notes") or ""), marked_stretches=list(review.get("stretches") or []))
 
 
-def _downstream(folder: Path, specimen, auto, parameters: dict, timer: _Timer, report: bool = True,
-                stage_seconds: Optional[dict] = None, write: bool = True) -> AnalysisState:
-    """Review edits -> measurement -> series -> periodicity -> astronomy -> result.json (+ report)."""
-    from . import astro as _astro
-    from . import measure as _measure
-    from . import series as _series
+def _periodicity(series, params: RunParams, segmentation):
     from . import spectral as _spectral
     from . import uncertainty as _uncertainty
 
+    periodicity = _spectral.test_periodicity(series, min_period_bands=params.min_period_bands,
+                                             max_period_bands=params.max_period_bands, n_sim=params.n_sim,
+                                             seed=params.seed)
+    per = periodicity.to_dict()
+    counting = _uncertainty.count_uncertainty(segmentation)
+    per["days_per_year"] = _uncertainty.widen_days_per_year(per.get("days_per_year") or {}, counting)
+    return periodicity, per
+
+
+def downstream(specimen: "Specimen", segmentation: "Segmentation", review: Optional[dict], params: RunParams,
+               *, progress: Optional[Callable] = None, stage_seconds: Optional[dict] = None,
+               timer: Optional[_Timer] = None) -> Analysis:
+    """Review edits -> measurement -> series -> periodicity -> astronomy, all in memory.
+
+    Parameters
+    ----------
+    specimen, segmentation
+        The oriented specimen and its automatic segmentation (neither is modified).
+    review : dict or None
+        The review (``read_review`` form); None: no edits.
+    params : RunParams
+        Seed, Monte Carlo size and searched band of the periodicity tests.
+    stage_seconds : dict, optional
+        Timings of the upstream stages, kept in the result's provenance.
+    """
+    from . import measure as _measure
+    from . import series as _series
+
+    timer = timer or _Timer(progress)
     warnings: list[str] = []
-    seg, review_info = timer.run("review", _apply_review, folder, specimen, auto, warnings)
+    seg, info = timer.run("review", review_stage, specimen, segmentation, review, warnings)
     table = timer.run("measure", _measure.measure_bands, specimen, seg)
     series = timer.run("series", _series.build_series, table, seg, specimen)
-    periodicity = timer.run("periodicity", _spectral.test_periodicity, series,
-                            min_period_bands=parameters.get("min_period_bands"),
-                            max_period_bands=parameters.get("max_period_bands"),
-                            n_sim=parameters.get("n_sim", 1000), seed=parameters.get("seed", DEFAULT_SEED))
-    per = periodicity.to_dict()
-    counting = _uncertainty.count_uncertainty(seg)
-    per["days_per_year"] = _uncertainty.widen_days_per_year(per.get("days_per_year") or {}, counting)
-    astronomy = timer.run("astronomy", _astronomy_block, _astro, per)
-
-    seconds = dict(stage_seconds or {})
-    seconds.update(timer.seconds)
-    result = _result_dict(specimen, seg, table, per, astronomy, review_info, parameters, seconds,
-                          warnings)
-    state = AnalysisState(folder=folder, result=result, specimen=specimen, segmentation=seg,
-                          band_table=table, series=series, periodicity=periodicity, auto_segmentation=auto)
-    if write:
-        write_json(folder / "result.json", result)
-        if report:
-            from . import report as _report_mod
-
-            timer.run("report", _report_mod.write_report, state, folder)
-            result["provenance"]["stage_seconds"] = dict(timer.seconds)
-            write_json(folder / "result.json", result)
-        else:
-            table.to_csv(folder / "bands.csv")
-    return state
-
-
-def _astronomy_block(astro, per: dict) -> dict:
-    """Length of day, sidereal day and (with tidal months) the Earth-Moon distance."""
-    dpy = per.get("days_per_year") or {}
-    block: dict[str, Any] = {"length_of_day_hours": None, "sidereal_day_hours": None,
-                             "earth_moon_distance": None, "synodic_months_per_year": None}
-    if not dpy.get("significant") or dpy.get("estimate") is None:
-        return block
-    rot = astro.rotation_from_days_per_year(dpy["estimate"], dpy.get("ci95"))
-    block["length_of_day_hours"] = rot.get("length_of_day_hours")
-    block["sidereal_day_hours"] = rot.get("sidereal_day_hours")
-    block["rotation"] = rot
-    tidal = (per.get("tidal") or {}).get("days_per_synodic_month")
-    if tidal and tidal.get("significant") and tidal.get("estimate"):
-        months = astro.months_per_year(dpy["estimate"], tidal["estimate"],
-                                       days_per_year_ci95=dpy.get("ci95"),
-                                       days_per_month_ci95=tidal.get("ci95"))
-        block["synodic_months_per_year"] = months
-        block["earth_moon_distance"] = astro.earth_moon_distance(
-            synodic_months_per_year=months["estimate"], days_per_year=dpy["estimate"],
-            months_ci95=months.get("ci95"), days_per_year_ci95=dpy.get("ci95"))
-    return block
-
-
-def _result_dict(specimen, seg, table, per, astronomy, review_info, parameters, seconds, warnings) -> dict:
-    sheet = specimen.sheet
-    sheet_dict = sheet.to_dict() if hasattr(sheet, "to_dict") else dict(sheet or {})
-    thickness = np.asarray(table.thickness_axis_mm, dtype=float)
-    finite = thickness[np.isfinite(thickness)]
-    all_warnings = list(specimen.warnings) + list(seg.warnings) + list(per.get("warnings", [])) + warnings
-    result = {
-        "schema": RESULT_SCHEMA,
-        "bandgeo_version": __version__,
-        "specimen": {
-            "id": specimen.specimen_id,
-            "scan": {"path": specimen.scan_path, "sha256": specimen.scan_sha256,
-                     "units": specimen.units, "mm_per_unit": specimen.mm_per_unit},
-            "sheet": sheet_dict,
-            "up": {"source": specimen.up_source, "confidence": specimen.up_confidence,
-                   "vector_scan": _up_in_scan(specimen)},
-            "north_known": specimen.north_known,
-            "cleaning": specimen.cleaning,
-            "transforms": specimen.transforms,
-            "scan_to_specimen": np.asarray(specimen.scan_to_specimen).tolist(),
-            "n_vertices": int(len(specimen.vertices_mm)), "n_faces": int(len(specimen.faces)),
-            "age_ma": sheet_dict.get("age_ma"), "age_err_ma": sheet_dict.get("age_err_ma"),
-            "locality": sheet_dict.get("locality"), "horizon": sheet_dict.get("horizon"),
-            "formation": sheet_dict.get("formation"),
-        },
-        "bands": {
-            "count": int(len(thickness)),
-            "boundaries": int(len(seg.boundaries)),
-            "mean_thickness_mm": float(finite.mean()) if finite.size else None,
-            "median_thickness_mm": float(np.median(finite)) if finite.size else None,
-            "mean_thickness_mm_ci95": _mean_ci95(finite),
-            "mean_thickness_method": "mean of band thickness along the axis; t-interval",
-            "resolution": seg.resolution,
-        },
-        "daily_test": per.get("daily_test"),
-        "days_per_year": per.get("days_per_year"),
-        "tidal": per.get("tidal"),
-        "hiatus": per.get("hiatus"),
-        "length_of_day_hours": astronomy.get("length_of_day_hours"),
-        "sidereal_day_hours": astronomy.get("sidereal_day_hours"),
-        "synodic_months_per_year": astronomy.get("synodic_months_per_year"),
-        "earth_moon_distance": astronomy.get("earth_moon_distance"),
-        "review": review_info,
-        "warnings": all_warnings,
-        "assumptions": ASSUMPTIONS,
-        "provenance": {
-            "input_sha256": specimen.scan_sha256,
-            "versions": library_versions(),
-            "parameters": parameters,
-            "seed": parameters.get("seed"),
-            "stage_seconds": seconds,
-            "created": _dt.datetime.now(_dt.timezone.utc).isoformat(timespec="seconds"),
-            "platform": platform.platform(),
-        },
-    }
-    return result
-
-
-def _mean_ci95(values: np.ndarray):
-    if values.size < 3:
-        return None
-    from scipy import stats
-
-    half = stats.t.ppf(0.975, values.size - 1) * values.std(ddof=1) / np.sqrt(values.size)
-    return [float(values.mean() - half), float(values.mean() + half)]
-
-
-def _up_in_scan(specimen) -> list:
-    """The paleo-up direction expressed in the scan frame (inverse of the specimen rotation)."""
-    m = np.asarray(specimen.scan_to_specimen, dtype=float)
-    rot = m[:3, :3]
-    up = np.linalg.solve(rot, np.array([0.0, 0.0, 1.0]))
-    return (up / np.linalg.norm(up)).tolist()
+    periodicity, per = timer.run("periodicity", _periodicity, series, params, seg)
+    astronomy = timer.run("astronomy", astronomy_block, per)
+    seconds = {**(stage_seconds or {}), **timer.seconds}
+    result = result_document(specimen, seg, table, per, astronomy, info, params, seconds, warnings)
+    return Analysis(specimen=specimen, segmentation=seg, auto_segmentation=segmentation, band_table=table,
+                    series=series, periodicity=periodicity, astronomy=astronomy, review=info, params=params,
+                    result=result, stage_seconds=seconds)
 
 
 # ----------------------------------------------------------------------------------------------------
-# Reloading a result folder
+# Saving: outputs written on the side and swapped in at the end
 
 
-def load_state(folder, progress: Optional[Callable] = None) -> AnalysisState:
-    """Rebuild the state of an analysed folder from its saved files (segmentation, review, mesh cache).
+def _write_outputs(analysis: Analysis, staged: Path, formats, progress) -> None:
+    """Write the report (``formats``) and result.json (once, last) into ``staged``."""
+    if formats:
+        from . import report as _report_mod
 
-    Measurement and periodicity are recomputed from the saved segmentation with the saved parameters and
-    seed, so the result is the same as the one written, with any newer review edits applied. Nothing is
-    written.
+        timer = _Timer(progress)
+        analysis.folder = staged
+        try:
+            timer.run("report", _report_mod.write_report, analysis, staged, formats=tuple(formats))
+        finally:
+            analysis.folder = None
+        analysis.stage_seconds["report"] = timer.seconds["report"]
+        analysis.result["provenance"]["stage_seconds"] = dict(analysis.stage_seconds)
+    else:
+        analysis.band_table.to_csv(staged / "bands.csv")
+    write_json(staged / "result.json", analysis.result)
+
+
+def save(analysis: Analysis, folder, *, formats=ALL_FORMATS, inputs: bool = False, set_aside_review: bool = False,
+         progress: Optional[Callable] = None) -> Path:
+    """Write an analysis into ``folder``: result.json (once), the report in ``formats`` (none: bands.csv
+    only) and, with ``inputs=True``, the inputs of later re-runs (run.json, specimen.npz, the automatic
+    segmentation). Everything is written into a hidden staging folder first and swapped in at the end: a
+    failure leaves ``folder`` as it was, and derived outputs this run did not write (an older report)
+    are removed so that they never sit beside a newer result.json."""
+    folder = ResultFolder(folder)
+    formats = tuple(formats or ())
+
+    def write(staged: Path) -> None:
+        if inputs:
+            write_json(staged / RUN_FILE, analysis.params.document())
+            analysis.auto_segmentation.save(staged)
+            save_specimen(staged, analysis.specimen, analysis.auto_segmentation)
+        _write_outputs(analysis, staged, formats, progress)
+
+    with folder.staging() as staged:
+        write(staged)
+        folder.swap_in(staged, remove=DERIVED_FILES, set_aside=(REVIEW_FILE,) if set_aside_review else ())
+    analysis.folder = folder.path
+    return folder.path
+
+
+# ----------------------------------------------------------------------------------------------------
+# Thin callers
+
+
+def analyze(scan_path, out_dir, *, units=None, up=None, north=None, strike_dip=None, sheet=None,
+            scale=None, seed: int = DEFAULT_SEED, keep_review: bool = True, report: bool = True,
+            min_period_bands=None, max_period_bands=None, n_sim: int = 1000,
+            progress: Optional[Callable] = None) -> Analysis:
+    """Run the whole job on one scan and write the result folder.
+
+    Parameters
+    ----------
+    scan_path : path
+        The scan (PLY, OBJ, STL, OFF, glTF/GLB). Never modified.
+    out_dir : path
+        The specimen's result folder; created if missing. A ``review.json`` already there is kept and
+        applied unless ``keep_review=False`` (then it is renamed aside, never deleted). Outputs are
+        written on the side and swapped in at the end: a failed run leaves the folder as it was.
+    units, up, north, strike_dip, sheet, scale
+        Passed to :func:`bandgeo.scan.prepare` (units of the file, paleo-up and north vectors in the scan
+        frame, bedding strike/dip in degrees, a specimen sheet path or object, a scale factor).
+    seed : int
+        Seed of every stochastic step (clustering subsample, Monte Carlo significance, bootstrap).
+    min_period_bands, max_period_bands : float, optional
+        Narrow the annual search band (bands per cycle). By default it runs from a few bands per cycle
+        up to about a third of the record, and is stated in the result.
+    n_sim : int
+        Monte Carlo replicates for significance and intervals.
     """
-    return _reload(folder, progress=progress, write=False, report=False)
+    from . import scan as _scan
 
-
-def rerun(folder, report: bool = True, progress: Optional[Callable] = None) -> AnalysisState:
-    """Re-run everything after the segmentation (e.g. after a review save) and rewrite the outputs."""
-    return _reload(folder, progress=progress, write=True, report=report)
-
-
-def _reload(folder, progress, write: bool, report: bool) -> AnalysisState:
-    from .segment import Segmentation
-
-    folder = Path(folder)
-    if not folder.is_dir():
-        raise InputError(f"{str(folder)!r} is not a folder; give the folder written by 'bandgeo analyze'")
-    previous = read_result(folder)
-    specimen = load_specimen(folder)
-    auto = Segmentation.load(folder)
-    provenance = previous.get("provenance") or {}
-    parameters = dict(provenance.get("parameters") or {})
-    stage_seconds = {k: v for k, v in (provenance.get("stage_seconds") or {}).items()
-                     if k in ("load", "orient", "features", "segment")}
+    folder = ResultFolder(out_dir)
+    if folder.path.exists() and not folder.path.is_dir():
+        raise InputError(f"the output {str(folder.path)!r} exists and is not a folder; give a folder for --out")
+    folder.recover()
+    sheet_obj = _scan.read_sheet(sheet) if isinstance(sheet, (str, Path)) else sheet
+    params = RunParams.make(scan=scan_path, units=units, up=up, north=north, strike_dip=strike_dip, sheet=sheet,
+                            scale=scale, seed=seed, keep_review=keep_review, min_period_bands=min_period_bands,
+                            max_period_bands=max_period_bands, n_sim=n_sim)
     timer = _Timer(progress)
-    return _downstream(folder, specimen, auto, parameters, timer, report=report,
-                       stage_seconds=stage_seconds, write=write)
+    specimen, auto, params = upstream(scan_path, params, sheet=sheet_obj, timer=timer)
+    review = folder.load_review() if keep_review and folder.path.is_dir() else None
+    analysis = downstream(specimen, auto, review, params, timer=timer)
+    save(analysis, folder.path, formats=ALL_FORMATS if report else (), inputs=True,
+         set_aside_review=not keep_review, progress=progress)
+    return analysis
+
+
+def load_state(folder, progress: Optional[Callable] = None) -> Analysis:
+    """Rebuild the analysis of a folder from its saved inputs (specimen cache, segmentation, review,
+    run parameters). Measurement and periodicity are recomputed with the saved parameters and seed, so
+    the result is the one written, with any newer review edits applied. Nothing is written."""
+    inputs = ResultFolder(folder).load_inputs()
+    analysis = downstream(inputs.specimen, inputs.segmentation, inputs.review, inputs.params,
+                          progress=progress, stage_seconds=inputs.stage_seconds)
+    analysis.folder = Path(folder)
+    return analysis
+
+
+def rerun(folder, report: bool = True, progress: Optional[Callable] = None) -> Analysis:
+    """Re-run everything after the segmentation (e.g. after a review save) and rewrite the outputs."""
+    return Rerunner(folder)(report=report, progress=progress)
+
+
+class Rerunner:
+    """Re-runs the stages a review edit changes (measurement, series, periodicity, report) from inputs
+    held in memory: the specimen, the automatic segmentation and the run parameters are read from the
+    folder once, when this object is made (or handed over by a caller that holds them already).
+
+    ``rerunner(folder=None, review=None, report=True)``: with ``review`` given (the review the page
+    holds), nothing is read from disk; without it, ``review.json`` is read.
+    """
+
+    def __init__(self, folder, *, specimen: "Optional[Specimen]" = None,
+                 segmentation: "Optional[Segmentation]" = None, params: Optional[RunParams] = None):
+        self.folder = ResultFolder(folder).require()
+        if specimen is None or segmentation is None or params is None:
+            inputs = self.folder.load_inputs(review=False)
+            specimen = specimen if specimen is not None else inputs.specimen
+            segmentation = segmentation if segmentation is not None else inputs.segmentation
+            params = params if params is not None else inputs.params
+            self.stage_seconds = inputs.stage_seconds
+        else:
+            self.stage_seconds = {}
+        self.specimen, self.segmentation, self.params = specimen, segmentation, params
+
+    def __call__(self, folder=None, review: Optional[dict] = None, report: bool = True,
+                 progress: Optional[Callable] = None, formats=ALL_FORMATS) -> Analysis:
+        if folder is not None and Path(folder).resolve() != self.folder.path.resolve():
+            raise InputError(f"this re-runner holds the inputs of {self.folder.path}, not {folder}")
+        if review is None:
+            review = self.folder.load_review()
+        analysis = downstream(self.specimen, self.segmentation, review, self.params, progress=progress,
+                              stage_seconds=self.stage_seconds)
+        save(analysis, self.folder.path, formats=formats if report else (), progress=progress)
+        return analysis
+
+
+def write_analysis_report(analysis: Analysis, folder, formats=ALL_FORMATS, progress=None) -> dict:
+    """``bandgeo report``: rewrite result.json and the report ``formats`` from an analysis held in
+    memory (other derived outputs already in the folder are kept). Returns {name: path}."""
+    rf = ResultFolder(folder)
+    with rf.staging() as staged:
+        _write_outputs(analysis, staged, tuple(formats), progress)
+        names = sorted(p.name for p in staged.iterdir())
+        rf.swap_in(staged, remove=("report.stale.html", "report.stale.pdf"))
+    analysis.folder = rf.path
+    return {name: rf.file(name) for name in names}

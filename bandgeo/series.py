@@ -228,19 +228,15 @@ def relief_profile(vertices_mm: np.ndarray, axis, spacing_mm: float, max_vertice
     relief_mm : (M,) float
     """
     from scipy.ndimage import median_filter
-    from scipy.spatial import cKDTree
 
-    v = np.asarray(vertices_mm, dtype=float)
-    if v.shape[0] > max_vertices:
+    from .unroll import unroll
+
+    if len(vertices_mm) > max_vertices:
+        v = np.asarray(vertices_mm, dtype=float)
         v = v[np.linspace(0, v.shape[0] - 1, max_vertices).astype(np.int64)]
-    pts = np.asarray(axis.points_mm, dtype=float)
-    tan = np.asarray(axis.tangents, dtype=float)
-    s_c = np.asarray(axis.heights_mm, dtype=float)
-    _, j = cKDTree(pts).query(v, workers=2)
-    d = v - pts[j]
-    along = np.einsum("ij,ij->i", d, tan[j])
-    s = s_c[j] + along
-    radial = np.linalg.norm(d - along[:, None] * tan[j], axis=1)
+    else:
+        v = vertices_mm  # the same object as the report's: the unrolled coordinates are cached
+    s, _, radial = unroll(v, axis)
     width = spacing_mm / 8.0
     edges = np.arange(s.min(), s.max() + width, width)
     if edges.size < 8:

@@ -9,42 +9,33 @@ from ._common import analysis_options, echo, out_dir_option, seed_option
 from ._scan_options import prepare_kwargs, scan_options
 
 
-def _fmt_interval(block, unit, digits=1):
-    if not block or block.get("estimate") is None:
-        return "none"
-    lo, hi = block.get("ci95") or (None, None)
-    text = f"{block['estimate']:.{digits}f} {unit}"
-    if lo is not None:
-        text += f" (95% interval {lo:.{digits}f} to {hi:.{digits}f} {unit})"
-    return text
+def summary_lines(result, folder: Path, report: bool = True) -> list[str]:
+    """The lines ``analyze`` and ``report`` print: what was found, with units, intervals and methods.
 
+    ``result`` is a ``result.json`` dict or a :class:`bandgeo.results.ResultSummary`."""
+    from ..results import ResultSummary
 
-def summary_lines(result: dict, folder: Path, report: bool = True) -> list[str]:
-    """The lines ``analyze`` and ``report`` print: what was found, with units and intervals."""
-    bands = result.get("bands", {})
-    dpy = result.get("days_per_year") or {}
-    daily = result.get("daily_test") or {}
-    lines = [f"specimen {result['specimen']['id']}: {bands.get('count', 0)} bands, mean thickness "
-             f"{(bands.get('mean_thickness_mm') or float('nan')):.3f} mm"]
-    if daily:
-        lines.append(f"daily test: {daily.get('verdict', 'n/a')}")
-    if dpy.get("significant"):
-        lines.append(f"days per year: {_fmt_interval(dpy, 'days/yr')} by {dpy.get('method', '?')}; "
-                     f"p = {dpy.get('p_value', float('nan')):.3g}; a minimum (days go missing)")
-        lines.append(f"length of day: {_fmt_interval(result.get('length_of_day_hours'), 'h', 2)}")
+    s = result if isinstance(result, ResultSummary) else ResultSummary.from_json(result)
+    mean = "n/a" if s.mean_thickness_mm is None else f"{s.mean_thickness_mm:.3f} mm"
+    lines = [f"specimen {s.specimen_id}: {s.band_count} bands, mean thickness {mean} (along the axis)"]
+    if s.daily_verdict:
+        lines.append(f"daily test: {s.daily_verdict}")
+    p = "n/a" if s.annual_p_value is None else f"{s.annual_p_value:.3g}"
+    if s.days_per_year is not None:
+        lines.append(f"days per year: {s.days_per_year.text(1)} by {s.days_per_year.method or '?'}; "
+                     f"p = {p}; a minimum (days go missing)")
+        lod = s.length_of_day_hours
+        lines.append(f"length of day: {lod.text(2)} by {lod.method or 'LOD = Y / N'}")
     else:
-        p = dpy.get("p_value")
         lines.append("days per year: no annual cycle above red noise"
-                     + (f" (p = {p:.3g})" if p is not None else "") + "; no estimate given")
-    for warning in result.get("warnings", []):
+                     + (f" (p = {p})" if s.annual_p_value is not None else "") + "; no estimate given")
+    for warning in s.warnings:
         lines.append(f"warning: {warning}")
-    tidal = ((result.get("tidal") or {}).get("days_per_synodic_month") or {})
-    if tidal.get("significant"):
-        lines.append(f"days per synodic month: {_fmt_interval(tidal, 'days', 2)}")
-        distance = ((result.get("earth_moon_distance") or {}).get("angular_momentum") or {})
-        if distance.get("distance_km"):
-            lines.append("Earth-Moon distance (angular momentum): "
-                         f"{_fmt_interval(distance['distance_km'], 'km', 0)}")
+    if s.days_per_synodic_month is not None:
+        lines.append(f"days per synodic month: {s.days_per_synodic_month.text(2)}")
+        distance = s.earth_moon_distance_km
+        if distance is not None and distance.estimate is not None:
+            lines.append(f"Earth-Moon distance: {distance.text(0)} by {distance.method or 'angular momentum'}")
     lines.append(f"wrote {folder}/result.json" + (f" and the report {folder}/report.html" if report else ""))
     return lines
 

@@ -23,21 +23,18 @@ def report(ctx, folder, formats):
     report are rewritten so that they agree. The scan and the review file are not modified.
     """
     from .. import progress
-    from ..errors import InputError
-    from ..atomic import write_json
-    from ..pipeline import load_state
-    from ..report import write_report
+    from ..pipeline import load_state, write_analysis_report
+    from ..results import ResultFolder
 
-    folder = Path(folder).expanduser()
-    if not folder.is_dir():
-        raise InputError(f"{str(folder)!r} is not a folder; give the result folder written by "
-                         f"'bandgeo analyze SCAN --out FOLDER'")
+    folder = ResultFolder(Path(folder).expanduser()).require()
+    for line in folder.recover():
+        echo(ctx, f"note: {line}")
     with progress.bar("loading the saved analysis") as cb:
-        state = load_state(folder, progress=cb)
+        analysis = load_state(folder.path, progress=cb)
     with progress.bar("writing the report") as cb:
-        paths = write_report(state, folder, formats=tuple(f.lower() for f in formats) or _FORMATS,
-                             progress=cb)
-    write_json(folder / "result.json", state.result)
-    echo(ctx, f"wrote {folder / 'result.json'}")
+        paths = write_analysis_report(analysis, folder.path,
+                                      formats=tuple(f.lower() for f in formats) or _FORMATS, progress=cb)
+    echo(ctx, f"wrote {folder.file('result.json')}")
     for name, path in paths.items():
-        echo(ctx, f"wrote {path}")
+        if name != "result.json":
+            echo(ctx, f"wrote {path}")

@@ -111,9 +111,11 @@ def flatten(block: Any, prefix: str = "", max_list: int = 8) -> list[tuple[str, 
 
 
 def dpy_significant(result: Mapping) -> bool:
-    """True when result.json claims a significant annual cycle with an estimate."""
-    dpy = result.get("days_per_year") or {}
-    return bool(dpy.get("significant")) and dpy.get("estimate") is not None
+    """True when result.json claims a significant annual cycle with an estimate
+    (:class:`bandgeo.results.ResultSummary`, the one reader of result.json)."""
+    from ..results import ResultSummary
+
+    return ResultSummary.from_json(dict(result or {})).annual_significant
 
 
 def cycle_counts(result: Mapping) -> list[float]:

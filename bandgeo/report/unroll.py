@@ -7,57 +7,25 @@ from __future__ import annotations
 
 import numpy as np
 from scipy.ndimage import gaussian_filter
-from scipy.spatial import cKDTree
+
+from ..unroll import axis_at, unroll  # noqa: F401  (axis_at re-exported)
 
 
 def _frames(tangents: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """East and north unit vectors perpendicular to each tangent (p, 3)."""
-    t = tangents / np.linalg.norm(tangents, axis=1, keepdims=True)
+    """East and north unit vectors perpendicular to each tangent (p, 3) (``bandgeo.unroll`` frames)."""
+    t = np.asarray(tangents, float)
+    t = t / np.linalg.norm(t, axis=1, keepdims=True)
     north = np.array([0.0, 1.0, 0.0]) - t[:, 1:2] * t
     bad = np.linalg.norm(north, axis=1) < 1e-6       # axis along y: fall back on x
     north[bad] = (np.array([1.0, 0.0, 0.0]) - t[bad, 0:1] * t[bad])
     north /= np.linalg.norm(north, axis=1, keepdims=True)
-    east = np.cross(north, t)
-    return east, north
-
-
-def axis_at(axis, s: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Point (k, 3) and unit tangent (k, 3) of the centreline at arc lengths ``s`` (k,) mm."""
-    h = np.asarray(axis.heights_mm, float)
-    pts, tan = np.asarray(axis.points_mm, float), np.asarray(axis.tangents, float)
-    s = np.atleast_1d(np.asarray(s, float))
-    p = np.stack([np.interp(s, h, pts[:, j]) for j in range(3)], axis=1)
-    t = np.stack([np.interp(s, h, tan[:, j]) for j in range(3)], axis=1)
-    return p, t / np.linalg.norm(t, axis=1, keepdims=True)
+    return np.cross(north, t), north
 
 
 def unroll_vertices(vertices_mm: np.ndarray, axis) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Height along the axis, azimuth and distance from the axis of each vertex.
-
-    Parameters
-    ----------
-    vertices_mm : (n, 3) float
-        Vertex positions, specimen frame, mm.
-    axis : Centreline
-        ``heights_mm (p,)``, ``points_mm (p, 3)``, ``tangents (p, 3)``.
-
-    Returns
-    -------
-    s_mm, azimuth_deg, radius_mm : (n,) float
-        Arc length along the axis (mm), azimuth clockwise from north in [0, 360) degrees, radius (mm).
-    """
-    v = np.asarray(vertices_mm, float)
-    pts = np.asarray(axis.points_mm, float)
-    tan = np.asarray(axis.tangents, float)
-    tan = tan / np.linalg.norm(tan, axis=1, keepdims=True)
-    east, north = _frames(tan)
-    _, i = cKDTree(pts).query(v, k=1, workers=2)
-    d = v - pts[i]
-    along = np.einsum("ij,ij->i", d, tan[i])
-    s = np.asarray(axis.heights_mm, float)[i] + along
-    r = d - along[:, None] * tan[i]
-    az = np.degrees(np.arctan2(np.einsum("ij,ij->i", r, east[i]), np.einsum("ij,ij->i", r, north[i])))
-    return s, np.mod(az, 360.0), np.linalg.norm(r, axis=1)
+    """Height along the axis (mm), azimuth clockwise from north in [0, 360) degrees and distance from
+    the axis (mm) of each vertex: :func:`bandgeo.unroll.unroll` (one implementation, cached)."""
+    return tuple(unroll(vertices_mm, axis))
 
 
 def grid_shape(n_points: int, span_mm: float, radius_mm: float, per_cell: float = 4.0) -> tuple[int, int]:

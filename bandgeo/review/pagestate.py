@@ -15,40 +15,37 @@ def _num(x):
 
 
 def result_summary(result, band_table=None) -> dict | None:
-    """The figures the page shows from a ``result.json`` dict (days per year, band count, ...)."""
+    """The figures the page shows from a ``result.json`` dict (days per year, band count, ...), read
+    through :class:`bandgeo.results.ResultSummary`. A non-significant annual cycle gives no estimate."""
+    from ..results import ResultSummary
+
     if not isinstance(result, dict):
         return None
-    dpy = result.get("days_per_year") or {}
-    bands = result.get("bands") or {}
-    daily = result.get("daily_test") or {}
+    s = ResultSummary.from_json(result)
+    raw_dpy = result.get("days_per_year") if isinstance(result.get("days_per_year"), dict) else {}
+    dpy = s.days_per_year
+    lod = s.length_of_day_hours
     out = {
         "days_per_year": {
-            "estimate": _num(dpy.get("estimate")),
-            "ci95": [_num(v) for v in (dpy.get("ci95") or [None, None])][:2],
-            "significant": dpy.get("significant"),
-            "method": dpy.get("method"),
-            "p_value": _num(dpy.get("p_value")),
-            "is_minimum": dpy.get("is_minimum"),
-            "unit": dpy.get("unit") or "days/yr",
+            "estimate": None if dpy is None else dpy.estimate,
+            "ci95": list(dpy.ci95) if dpy is not None and dpy.ci95 else [None, None],
+            "significant": s.annual_significant,
+            "method": s.annual_method,
+            "p_value": s.annual_p_value,
+            "is_minimum": raw_dpy.get("is_minimum"),
+            "unit": raw_dpy.get("unit") or "days/yr",
         },
-        "bands": {"count": bands.get("count"), "mean_thickness_mm": _num(bands.get("mean_thickness_mm")),
-                  "median_thickness_mm": _num(bands.get("median_thickness_mm"))},
-        "daily": {"verdict": daily.get("verdict") if isinstance(daily, dict) else None},
-        "length_of_day_hours": result.get("length_of_day_hours"),
-        "review": result.get("review"),
+        "bands": {"count": s.band_count, "mean_thickness_mm": s.mean_thickness_mm,
+                  "median_thickness_mm": s.median_thickness_mm},
+        "daily": {"verdict": s.daily_verdict},
+        "length_of_day_hours": None if lod is None else {
+            "estimate": lod.estimate, "ci95": list(lod.ci95) if lod.ci95 else None, "method": lod.method},
+        "review": s.review or None,
         "measured": None,
     }
     if band_table is not None:
-        measured = {}
-        for name in ("thickness_median_mm", "inclination_deg", "azimuth_deg"):
-            values = getattr(band_table, name, None)
-            if values is not None:
-                measured[name] = [_num(v) for v in np.asarray(values, float).ravel()]
-        out["measured"] = measured or None
-    if not isinstance(out["length_of_day_hours"], (int, float, type(None))):
-        out["length_of_day_hours"] = None
-    if not isinstance(out["review"], (dict, type(None))):
-        out["review"] = None
+        out["measured"] = {name: [_num(v) for v in np.asarray(getattr(band_table, name), float).ravel()]
+                           for name in ("thickness_median_mm", "inclination_deg", "azimuth_deg")}
     return out
 
 
