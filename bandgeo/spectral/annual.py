@@ -1,8 +1,8 @@
 """The annual cycle in bands: three estimates (thickness spectrum, cycle counting, sway), each with a
 red-noise-respecting 95% interval, their combination when they agree and a consistency test.
 
-Intervals come from :func:`bandgeo.spectral.peaks.peak_monte_carlo`: the fitted sinusoids plus new AR(1)
-noise, re-estimated exactly as on the data. The spectral and cycle-count estimates are computed on the
+Intervals come from :func:`bandgeo.spectral.peaks.peak_monte_carlo`: the fitted sinusoids (with their
+harmonics) plus new noise with the residual's own spectrum, re-estimated exactly as on the data. The spectral and cycle-count estimates are computed on the
 same replicates, so their covariance is known and used; the sway series has its own, independent noise.
 Each estimate is reported bias-corrected (``2 e - median(replicates)``), the centre of its basic
 bootstrap interval.
@@ -46,7 +46,7 @@ def period_estimate(search: dict, peak: dict, n_boot: int, rng, with_cycles: boo
     others = [p["frequency"] for p in search["peaks"] if p is not peak]
     fn = (lambda X, fs: cycle_periods(X, fs, n_fft, n)) if with_cycles else None
     mc = peak_monte_carlo(x, f_hat, others, n_fft, n_boot, rng, cycle_fn=fn, progress=progress,
-                          label=f"{label}: interval Monte Carlo")
+                          label=f"{label}: interval Monte Carlo", basis=search.get("basis"))
     p_rep = 1.0 / mc["f_star"]
     raw = 1.0 / f_hat
     out = {"mc": mc, "spectrum": _bias_corrected(raw, p_rep), "cycles": None}

@@ -12,9 +12,10 @@ from .daily import daily_test
 from .evolutive import evolutive_spectrum, persistence
 from .hiatus import hiatus_evidence
 from .lomb_scargle import astropy_power
-from .multitaper import f_test_at, multitaper
+from .multitaper import multitaper
 from .result import PeriodicityResult
 from .search import is_constant, search_series
+from .select import select_annual
 from .tidal import TIDAL_BAND, tidal_analysis
 
 #: Methods that may be asked for.
@@ -24,6 +25,10 @@ DEFAULT_MIN_PERIOD = 4.0
 DEFAULT_MAX_FRACTION = 1.0 / 3.0
 MIN_BANDS = 24
 MIN_SIM = 99
+#: Fewest cycles in the record for an interval (fewer: refused), and for cycle counting (one cycle is
+#: trimmed at each end, so at least two remain).
+MIN_CYCLES_INTERVAL = 3.0
+MIN_CYCLES_COUNT = 4.0
 
 SPEC_METHOD = ("Lomb-Scargle periodogram (astropy; FFT engine for the Monte Carlo) over a robust AR(1) "
                "background; significance by the Monte Carlo maximum statistic over the searched band; "
@@ -115,24 +120,36 @@ def test_periodicity(series, *, min_period_bands=None, max_period_bands=None, n_
     sway = search_series(sway_values, band, n_sim, streams[2], progress, "sway") if sway_values is not None else None
 
     n_tests = 1 + (sway is not None)
-    t_peak = thick["peaks"][0] if thick["peaks"] else None
-    s_peak = sway["peaks"][0] if sway is not None and sway["peaks"] else None
+    t_peak, t_read = select_annual(thick)
+    s_peak, s_read = select_annual(sway) if sway is not None else (None, [])
     p_t = t_peak["p_value"] if t_peak else thick["p_value_max"]
     p_s = (s_peak["p_value"] if s_peak else sway["p_value_max"]) if sway is not None else None
     sig_t = t_peak is not None and p_t * n_tests < 0.05
     sig_s = s_peak is not None and p_s * n_tests < 0.05
+    refused = {}
+    for name, peak, sig in (("thickness", t_peak, sig_t), ("sway", s_peak, sig_s)):
+        if sig and n / peak["period_bands"] < MIN_CYCLES_INTERVAL:
+            refused[name] = (f"the record holds {n / peak['period_bands']:.1f} cycles of "
+                             f"{peak['period_bands']:.1f} bands; an interval on fewer than "
+                             f"{MIN_CYCLES_INTERVAL:g} cycles cannot be made honest, so none is given")
+    with_cycles = "cycle_count" in methods and sig_t and n / t_peak["period_bands"] >= MIN_CYCLES_COUNT
 
     mt = multitaper(thick["x"], thick["n_fft"])
     blocks, est_t, est_s = {}, None, None
-    if sig_t:
-        est_t = _annual.period_estimate(thick, t_peak, n_sim, streams[3], "cycle_count" in methods,
-                                        progress, "thickness")
-    if sig_s:
+    if sig_t and "thickness" not in refused:
+        est_t = _annual.period_estimate(thick, t_peak, n_sim, streams[3], with_cycles, progress, "thickness")
+    if sig_s and "sway" not in refused:
         est_s = _annual.period_estimate(sway, s_peak, n_sim, streams[4], False, progress, "sway")
     blocks["thickness_spectrum"] = _method_block(est_t and est_t["spectrum"], p_t, SPEC_METHOD, sig_t)
+    blocks["thickness_spectrum"]["peak_readings"] = t_read
+    if t_peak is not None:
+        blocks["thickness_spectrum"]["multitaper_f_test"] = t_peak["line_test"]
+    if "thickness" in refused:
+        blocks["thickness_spectrum"]["refused"] = refused["thickness"]
+        blocks["thickness_spectrum"]["period_bands_no_interval"] = float(t_peak["period_bands"])
     if est_t is not None:
-        blocks["thickness_spectrum"]["multitaper_f_test"] = f_test_at(mt, t_peak["frequency"], n)
         blocks["thickness_spectrum"]["raw_estimate"] = est_t["spectrum"]["raw_estimate"]
+        blocks["thickness_spectrum"]["noise_model"] = est_t["mc"]["noise_model"]
     if "cycle_count" in methods:
         cyc = est_t["cycles"] if est_t is not None else None
         blocks["cycle_count"] = {"estimate": cyc["estimate"] if cyc else None,
@@ -140,19 +157,43 @@ def test_periodicity(series, *, min_period_bands=None, max_period_bands=None, n_
                                  "per_cycle_counts": cyc["per_cycle_counts"].tolist() if cyc else [],
                                  "n_cycles": int(cyc["per_cycle_counts"].size) if cyc else 0,
                                  "method": CYCLE_METHOD, "significant": bool(sig_t)}
+        if sig_t and not with_cycles:
+            blocks["cycle_count"]["refused"] = (
+                f"the record holds {n / t_peak['period_bands']:.1f} cycles; counting needs at least "
+                f"{MIN_CYCLES_COUNT:g} (one is trimmed at each end), so no count is given")
     if "sway" in methods:
         sb = _method_block(est_s and est_s["spectrum"], p_s, SWAY_METHOD + f" ({sway_name})", sig_s)
         sb["assumption"] = SWAY_ASSUMPTION
+        sb["peak_readings"] = s_read
+        if "sway" in refused:
+            sb["refused"] = refused["sway"]
+        if est_s is not None:
+            sb["meander"] = {"residual_sd_deg": est_s["mc"]["residual_sd"],
+                             "residual_lag1": est_s["mc"]["residual_lag1"],
+                             "note": "tilt left after the fitted annual sway and its harmonics; its own "
+                                     "spectrum near the annual frequency sets the width of the interval"}
         if sway is None:
             sb["note"] = "no usable tilt series; not tested"
         blocks["sway"] = sb
 
     dpy = _days_per_year(blocks, est_t, est_s, p_t, p_s, n_tests, searched, thick, warnings)
+    if refused and not dpy["significant"] and (sig_t or sig_s):
+        dpy["significant"] = True
+        dpy["refused"] = "; ".join(refused.values())
+        dpy["method"] = "not estimated: " + dpy["refused"]
+        warnings[:] = [w for w in warnings if not w.startswith("no significant annual cycle")]
+        warnings.append("annual cycle found but no interval given: " + dpy["refused"])
     dpy["other_significant_peaks"] = [
-        {"period_bands": p["period_bands"], "p_value": p["p_value"], "series": name}
-        for name, srch, chosen in (("thickness", thick, t_peak), ("sway", sway, s_peak)) if srch is not None
-        for p in srch["peaks"] if p is not chosen]
-    annual_period = dpy["estimate"] if dpy["significant"] else None
+        {"period_bands": p["period_bands"], "p_value": p["p_value"], "series": name,
+         "reading": next((r["reading"] for r in reads if r["period_bands"] == p["period_bands"]), None)}
+        for name, srch, chosen, reads in (("thickness", thick, t_peak, t_read), ("sway", sway, s_peak, s_read))
+        if srch is not None for p in srch["peaks"] if p is not chosen]
+    dpy["slow_variation_removed"] = {
+        "n_cosines": thick["n_slow_cosines"],
+        "longer_than_bands": (2.0 * n / thick["n_slow_cosines"]) if thick["n_slow_cosines"] else None,
+        "method": "least-squares projection off a constant, a line and DCT-II cosines with periods longer "
+                  "than twice the longest searched period (trends and drift of growth rate)"}
+    annual_period = dpy["estimate"] if dpy["significant"] and dpy["estimate"] is not None else None
     if annual_period is not None and annual_period < TIDAL_BAND[1]:
         warnings.append(f"the longest significant cycle ({annual_period:.1f} bands) lies in the range of tidal "
                         f"cycles ({TIDAL_BAND[0]:g}-{TIDAL_BAND[1]:g} bands); it may not be annual")
@@ -167,10 +208,15 @@ def test_periodicity(series, *, min_period_bands=None, max_period_bands=None, n_
     evo_window = int(min(n, max(n // 4, 3 * annual_period if annual_period else 0, 64)))
     evo = evolutive_spectrum(thick["x"], evo_window)
     if annual_period is not None:
-        dpy["persistence"] = {"fraction_of_windows": persistence(evo, 1.0 / annual_period),
+        enough = n >= 2 * evo["window_bands"]
+        dpy["persistence"] = {"fraction_of_windows": persistence(evo, 1.0 / annual_period) if enough else None,
                               "window_bands": evo["window_bands"],
+                              "n_windows": int(evo["ratio"].shape[0]),
                               "method": "evolutive spectrum: windows where the annual ratio exceeds the "
                                         "pointwise 95% chi-square level"}
+        if not enough:
+            dpy["persistence"]["note"] = ("not given: the record is shorter than two windows of three annual "
+                                          "cycles, so no two windows are independent")
     spectra = _spectra(thick, sway, mt, evo, cyc_rec)
     params = {"min_period_bands": min_p, "max_period_bands": max_p, "n_sim": n_sim, "seed": int(seed),
               "methods": list(methods), "n_bands": int(n), "source": series.source,
@@ -254,6 +300,17 @@ def _days_per_year(blocks, est_t, est_s, p_t, p_s, n_tests, searched, thick, war
                             f"the result uses only {', '.join(p['name'] for p in used)}")
     out["estimate"] = float(comb["estimate"])
     out["ci95"] = [float(comb["ci95"][0]), float(comb["ci95"][1])]
+    w = comb.get("weights") or [1.0]
+    out["weights"] = {p["name"]: float(wi) for p, wi in zip(used, w)}
+    tparts = [p for p in parts if p["group"] == "thickness"]
+    if tparts:
+        tc = _annual.combine([p["estimate"] for p in tparts], _annual.covariance(tparts))
+        out["thickness_route"] = {
+            "estimate": float(tc["estimate"]), "ci95": [float(tc["ci95"][0]), float(tc["ci95"][1])],
+            "weights": {p["name"]: float(wi) for p, wi in zip(tparts, tc["weights"])},
+            "method": "thickness spectrum" + (" and cycle counting (inverse-variance, Monte Carlo covariance)"
+                                              if len(tparts) > 1 else " alone"),
+            "note": "independent of the heliotropism assumption of the sway route"}
     names = ", ".join(p["name"].replace("_", " ") for p in used)
     out["method"] = (f"inverse-variance combination of {names} (variance with their Monte Carlo covariance)"
                      if len(used) > 1 else f"{names} alone")

@@ -79,3 +79,49 @@ def f_test_at(mt: dict, f: float, n: int) -> dict:
     i = np.flatnonzero(sel)[np.nanargmax(mt["f_stat"][sel])]
     return {"frequency": float(fr[i]), "f_stat": float(mt["f_stat"][i]), "p_value": float(mt["f_p_value"][i]),
             "dof": [2, 2 * mt["k"] - 2]}
+
+
+#: Largest time-bandwidth product of the line test, and the fraction of the frequency it may span.
+LINE_NW_MAX = 4.0
+LINE_NW_MIN = 1.5
+LINE_NW_FRACTION = 0.8
+
+
+def line_test(x: np.ndarray, f: float) -> dict:
+    """Thomson's harmonic F-test at one frequency, with a bandwidth that fits below it.
+
+    A cycle must be a line, not a slope: the F-test asks whether the tapered transforms at ``f`` are
+    explained by one sinusoid better than by a locally flat continuum. Its bandwidth ``W = NW / n`` must
+    stay below ``f`` (otherwise the test mixes the frequency with zero, where trends live), so ``NW`` is
+    ``min(4, 0.8 f n)``, at least 1.5; when even that does not fit (fewer than about 2 cycles in the
+    record) the test is not applicable and says so. Evaluated exactly at ``f`` (no grid).
+
+    Returns
+    -------
+    dict
+        ``applicable``, ``f_stat``, ``p_value`` (pointwise, F(2, 2K - 2)), ``dof``, ``nw``, ``k``,
+        ``bandwidth_cycles_per_band``, ``frequency``, ``method``.
+    """
+    x = np.asarray(x, dtype=float)
+    n = x.size
+    nw = float(min(LINE_NW_MAX, LINE_NW_FRACTION * f * n))
+    out = {"frequency": float(f), "nw": nw, "bandwidth_cycles_per_band": nw / n, "applicable": False,
+           "f_stat": None, "p_value": None, "dof": None, "k": None,
+           "method": "Thomson (1982) harmonic F-test, DPSS tapers (scipy), bandwidth below the frequency"}
+    if nw < LINE_NW_MIN:
+        out["note"] = (f"not applicable: the record holds {f * n:.1f} cycles, too few for a bandwidth "
+                       f"below the frequency")
+        return out
+    v, _ = tapers(n, nw, max(2, int(2 * nw - 1)))
+    K = v.shape[0]
+    t = np.arange(n)
+    e = np.exp(-2j * np.pi * f * t)
+    Y = (v * (x * e)[None, :]).sum(axis=1)
+    U0 = v.sum(axis=1)
+    u2 = float(U0 @ U0)
+    mu = (U0 * Y).sum() / u2
+    resid = float((np.abs(Y - U0 * mu) ** 2).sum())
+    F = float((K - 1) * abs(mu) ** 2 * u2 / max(resid, 1e-300))
+    out.update({"applicable": True, "f_stat": F, "p_value": float(stats.f.sf(F, 2, 2 * K - 2)),
+                "dof": [2, 2 * K - 2], "k": int(K)})
+    return out

@@ -16,8 +16,9 @@ import numpy as np
 from ..progress import report
 from .lomb_scargle import detrend, fft_frequencies, fft_power, fft_transform, parabolic_peak, \
     refine_ls
-from .rednoise import fit_ar1_spectrum, simulate_ar1
+from .rednoise import ar1_spectrum, fit_ar1_spectrum, fit_background, simulate_ar1
 from .significance import LARGE_N
+from .trend import remove_slow
 
 #: Samples (replicates x bands) per block of the Monte Carlo.
 BLOCK_SAMPLES = 2_000_000
@@ -94,17 +95,62 @@ def fit_sinusoids(x: np.ndarray, freqs) -> tuple[np.ndarray, np.ndarray]:
     return model, amp
 
 
-def peak_monte_carlo(x: np.ndarray, f_hat: float, other_freqs, n_fft: int, n_boot: int,
-                     rng: np.random.Generator, cycle_fn=None, progress=None, label="interval Monte Carlo"):
-    """Monte Carlo of the frequency estimate of one peak under red noise.
+#: Ring of the residual-spectrum smoother: Fourier spacings (1/n) excluded around each frequency (the
+#: notch a least-squares fit leaves at its own frequency) and the outer radius averaged.
+RING_INNER, RING_OUTER = 1.0, 6.0
+#: Harmonics of a peak kept in the Monte Carlo model (a season is rarely a sine).
+N_HARMONICS = 3
 
-    The data are modelled as the fitted sinusoid at ``f_hat`` (plus any other significant sinusoids) and
-    an AR(1) residual fitted robustly; each replicate adds a new AR(1) series to the model and
-    re-estimates the peak exactly as on the data (window search, parabola, least-squares refinement).
+
+def ring_smooth(power: np.ndarray, n: int, n_fft: int) -> np.ndarray:
+    """Mean of a periodogram over the ring ``RING_INNER/n < |f' - f| <= RING_OUTER/n`` around each grid
+    frequency (mirrored at 0 and 1/2, where the spectrum of a real series is symmetric).
+
+    The notch that fitting a sinusoid leaves at its own frequency is thereby filled from its neighbours,
+    and leftover signal (phase wander, a changing shape, amplitude modulation) spreads over the ring.
+    """
+    from scipy.ndimage import convolve1d
+
+    step = n_fft / n                                    # grid points per Fourier spacing
+    j = np.arange(-int(np.floor(RING_OUTER * step)), int(np.floor(RING_OUTER * step)) + 1)
+    w = ((np.abs(j) > RING_INNER * step) & (np.abs(j) <= RING_OUTER * step)).astype(float)
+    w /= w.sum()
+    return convolve1d(np.asarray(power, dtype=float), w, mode="mirror")
+
+
+def residual_surrogates(rng: np.random.Generator, size: int, n: int, spectrum: np.ndarray, n_fft: int,
+                        dtype=np.float64) -> np.ndarray:
+    """``size`` stationary Gaussian series of length ``n`` whose spectrum is ``spectrum`` (given on the
+    grid of :func:`bandgeo.spectral.lomb_scargle.fft_frequencies` (n_fft), in the normalisation of
+    :func:`bandgeo.spectral.lomb_scargle.fft_power`): white noise of length ``n_fft`` shaped in the
+    frequency domain (circulant embedding; ``n_fft >= 2 n`` keeps the wrap-around out of the kept
+    ``n`` samples for correlations shorter than the record), first ``n`` samples kept."""
+    from scipy import fft as _fft
+
+    w = rng.standard_normal((size, n_fft), dtype=np.float32 if dtype == np.float32 else np.float64)
+    W = _fft.rfft(w, axis=1)
+    W *= np.sqrt(np.maximum(spectrum, 0.0)).astype(W.real.dtype)[None, :]
+    return _fft.irfft(W, n=n_fft, axis=1)[:, :n]
+
+
+def peak_monte_carlo(x: np.ndarray, f_hat: float, other_freqs, n_fft: int, n_boot: int,
+                     rng: np.random.Generator, cycle_fn=None, progress=None, label="interval Monte Carlo",
+                     basis: np.ndarray | None = None):
+    """Monte Carlo of the frequency estimate of one peak, with a noise model taken from the residual.
+
+    The data are modelled as the fitted sinusoid at ``f_hat``, its harmonics (2 and 3 times ``f_hat``:
+    a season is rarely a sine), any other significant sinusoids, and a residual. The residual is not
+    assumed to be AR(1): its own periodogram, averaged over a ring of 1-6 Fourier spacings around each
+    frequency (floored by the robust AR(1) background of the residual), is the spectrum of the Gaussian
+    surrogates. What a sinusoid cannot describe - a skewed or
+    changing season, drift of phase, amplitude modulation by a changing growth rate, meander of a tilt -
+    stays in the residual near ``f_hat`` and widens the interval. Each replicate (model plus surrogate)
+    is treated exactly as the data: slow part removed, window search, parabola, least-squares
+    refinement.
 
     Parameters
     ----------
-    x : (n,) float, detrended series
+    x : (n,) float, the series with its slow part removed
     f_hat : float, the estimate on the data (cycles per band)
     other_freqs : sequence of float, other significant frequencies kept in the model
     n_fft, n_boot : int
@@ -112,30 +158,45 @@ def peak_monte_carlo(x: np.ndarray, f_hat: float, other_freqs, n_fft: int, n_boo
     cycle_fn : callable or None
         ``cycle_fn(X, f_star) -> (B,) periods`` applied to each block (cycle counting on the replicates,
         X being their FFTs); its results are returned too.
+    basis : (n, k) float, optional
+        The slow basis removed from the data (default: a straight line).
 
     Returns
     -------
-    dict with ``f_star (n_boot,)``, ``cycle_star (n_boot,) or None``, ``phi``, ``var_e``, ``amplitude``.
+    dict with ``f_star (n_boot,)``, ``cycle_star (n_boot,) or None``, ``phi``, ``var_e`` (robust AR(1)
+    summary of the residual), ``amplitude``, ``residual_sd``, ``residual_lag1``, ``noise_model``.
     """
     n = x.size
     freq = fft_frequencies(n_fft)
-    freqs = [f_hat] + [f for f in (other_freqs or []) if abs(f - f_hat) > 3.0 / n]
+    remove = (lambda y: detrend(y)) if basis is None else (lambda y: remove_slow(y, basis))
+    harmonics = [k * f_hat for k in range(2, N_HARMONICS + 1) if k * f_hat < 0.5 - 1.0 / n]
+    freqs = [f_hat]
+    for f in list(other_freqs or []) + harmonics:
+        if all(abs(f - g) > 1.5 / n for g in freqs):
+            freqs.append(f)
     model, amp = fit_sinusoids(x, freqs)
-    resid = detrend(x - model)
+    resid = remove(x - model)
     phi, var_e = fit_ar1_spectrum(fft_power(resid, n_fft), freq, n)
     phi, var_e = float(phi[0]), float(var_e[0])
+    # The ring average has the sampling noise of about ten periodogram ordinates; the robust background of
+    # the whole residual spectrum (AR(1) raised by any broad excess) is its floor, so a ring that happens
+    # to fall low does not narrow the interval.
+    Pr = fft_power(resid, n_fft)
+    ph_b, ve_b, corr_b = fit_background(Pr, freq, n)
+    S = np.maximum(ring_smooth(Pr, n, n_fft), ar1_spectrum(freq, ph_b[0], ve_b[0]) * corr_b[0])
     lo, hi = local_window(f_hat, n)
     f_star = np.empty(n_boot)
     cyc = np.empty(n_boot) if cycle_fn is not None else None
-    block = max(1, min(n_boot, BLOCK_SAMPLES // max(n, 1)))
+    block = max(1, min(n_boot, BLOCK_SAMPLES // max(n_fft, 1)))
+    single = n > LARGE_N          # single precision halves the cost; ample for a periodogram peak
     for start in range(0, n_boot, block):
         size = min(block, n_boot - start)
-        if n > LARGE_N:     # single precision halves the cost; ample for a periodogram peak
-            y = simulate_ar1(rng, size, n, phi, var_e, dtype=np.float32)
+        if single:
+            y = residual_surrogates(rng, size, n, S, n_fft, dtype=np.float32)
             y += model.astype(np.float32)[None, :]
-            y = detrend(y)
         else:
-            y = detrend(model[None, :] + simulate_ar1(rng, size, n, phi, var_e))
+            y = model[None, :] + residual_surrogates(rng, size, n, S, n_fft)
+        y = remove(y)
         X = fft_transform(y, n_fft)
         P = fft_power(y, n_fft, spectrum=X)
         fs = estimate_in_window(y, P, freq, n_fft, np.full(size, lo), np.full(size, hi))
@@ -143,8 +204,13 @@ def peak_monte_carlo(x: np.ndarray, f_hat: float, other_freqs, n_fft: int, n_boo
         if cycle_fn is not None:
             cyc[start:start + size] = cycle_fn(X, fs)
         report(progress, label, start + size, n_boot)
+    r = resid - resid.mean()
+    lag1 = float(r[1:] @ r[:-1] / max(r @ r, 1e-300))
     return {"f_star": f_star, "cycle_star": cyc, "phi": phi, "var_e": var_e,
-            "amplitude": float(amp[0]), "window": (lo, hi)}
+            "amplitude": float(amp[0]), "window": (lo, hi), "residual_sd": float(np.std(resid)),
+            "residual_lag1": lag1, "residual_spectrum_at_peak": float(np.interp(f_hat, freq, S)),
+            "noise_model": "residual spectrum (ring-averaged periodogram of the residual after the "
+                           "fitted sinusoid, its 2nd and 3rd harmonics and other significant cycles)"}
 
 
 def basic_interval(estimate: float, replicates: np.ndarray, level: float = 0.95) -> list[float]:

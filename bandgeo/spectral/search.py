@@ -19,6 +19,7 @@ import numpy as np
 from .lomb_scargle import detrend, fft_frequencies, fft_power, n_fft_for
 from .peaks import estimate_in_window, find_peaks, fit_sinusoids, local_window
 from .rednoise import ar1_spectrum, fit_background
+from .trend import n_cosines, remove_slow, slow_basis
 from .significance import LARGE_N, band_mask, levels, max_ratio_null, max_ratio_null_asymptotic, \
     mc_p_value
 
@@ -33,13 +34,15 @@ def search_series(values: np.ndarray, band: tuple[float, float], n_sim: int, rng
     Returns
     -------
     dict
-        ``x`` (detrended series), ``n_fft``, ``frequency``, ``power``, ``background``, ``phi``,
+        ``x`` (series with variation slower than the band removed), ``basis``, ``n_fft``, ``frequency``, ``power``, ``background``, ``phi``,
         ``var_e``, ``null`` (n_sim maximum ratios), ``levels`` ({0.95, 0.99}), ``mask``,
         ``peaks`` (list of dicts: frequency, period_bands, ratio, p_value, amplitude; longest period
         first), ``max_ratio``, ``max_ratio_frequency``, ``p_value_max`` (of the largest ratio in the band).
     """
-    x = detrend(np.asarray(values, dtype=float))
-    n = x.size
+    values = np.asarray(values, dtype=float)
+    n = values.size
+    basis = slow_basis(n, n_cosines(n, band[0]))
+    x = remove_slow(values, basis)
     n_fft = n_fft_for(n)
     fr = fft_frequencies(n_fft)
     P = fft_power(x, n_fft)
@@ -60,7 +63,7 @@ def search_series(values: np.ndarray, band: tuple[float, float], n_sim: int, rng
         # The statistic lives on the Fourier grid k/n, where the asymptotic null holds.
         null = max_ratio_null_asymptotic(n, phi, ve, band[0], band[1], n_sim, rng, progress, label)
     else:
-        null = max_ratio_null(n, phi, ve, mask, n_fft, n_sim, rng, progress, label)
+        null = max_ratio_null(n, phi, ve, mask, n_fft, n_sim, rng, progress, label, basis=basis)
     lev = levels(null)
 
     def score(power_fine, series):
@@ -94,12 +97,12 @@ def search_series(values: np.ndarray, band: tuple[float, float], n_sim: int, rng
         model, amp = fit_sinusoids(x, [p["frequency"] for p in found])
         for p, a in zip(found, amp):
             p["amplitude"] = float(a)
-        resid = detrend(x - model)
+        resid = remove_slow(x - model, basis)
     # Re-estimate each peak on the data with the other sinusoids removed (the same estimator the
     # interval Monte Carlo uses on its replicates, which keep all sinusoids).
     for p in found:
         others = [q["frequency"] for q in found if q is not p]
-        y = detrend(x - fit_sinusoids(x, others)[0]) if others else x
+        y = remove_slow(x - fit_sinusoids(x, others)[0], basis) if others else x
         lo, hi = local_window(p["frequency"], n)
         p["window"] = (lo, hi)
         p["frequency"] = float(estimate_in_window(y[None, :], fft_power(y, n_fft)[None, :], fr, n_fft,
@@ -109,7 +112,8 @@ def search_series(values: np.ndarray, band: tuple[float, float], n_sim: int, rng
     return {"x": x, "n": n, "n_fft": n_fft, "frequency": fr, "power": P, "background": S, "phi": phi,
             "var_e": ve, "null": null, "levels": lev, "mask": mask, "peaks": found,
             "max_ratio": float(ratio[i_max]), "max_ratio_frequency": float(fr[i_max]),
-            "p_value_max": mc_p_value(float(ratio[i_max]), null), "band": tuple(band)}
+            "p_value_max": mc_p_value(float(ratio[i_max]), null), "band": tuple(band), "basis": basis,
+            "n_slow_cosines": int(basis.shape[1] - 2)}
 
 
 def is_constant(values: np.ndarray) -> bool:

@@ -22,6 +22,7 @@ import numpy as np
 from ..progress import report
 from .lomb_scargle import detrend, fft_frequencies, fft_power
 from .rednoise import ar1_spectrum, fit_background, simulate_ar1
+from .trend import remove_slow
 
 #: Samples (surrogates x bands) generated per block; bounds memory at a few hundred MB.
 BLOCK_SAMPLES = 2_000_000
@@ -38,7 +39,8 @@ def band_mask(frequency: np.ndarray, f_low: float, f_high: float) -> np.ndarray:
 
 
 def max_ratio_null(n: int, phi: float, var_e: float, mask: np.ndarray, n_fft: int, n_sim: int,
-                   rng: np.random.Generator, progress=None, label: str = "red-noise Monte Carlo"):
+                   rng: np.random.Generator, progress=None, label: str = "red-noise Monte Carlo",
+                   basis: np.ndarray | None = None):
     """Maximum of periodogram / re-fitted AR(1) background over ``mask`` for ``n_sim`` AR(1) surrogates.
 
     Parameters
@@ -52,6 +54,9 @@ def max_ratio_null(n: int, phi: float, var_e: float, mask: np.ndarray, n_fft: in
     n_fft : int
     n_sim : int
     rng : numpy Generator
+    basis : (n, k) float, optional
+        Slow basis removed from each surrogate as from the data (:mod:`bandgeo.spectral.trend`);
+        default a straight line.
 
     Returns
     -------
@@ -63,7 +68,8 @@ def max_ratio_null(n: int, phi: float, var_e: float, mask: np.ndarray, n_fft: in
     block = max(1, min(n_sim, BLOCK_SAMPLES // max(n, 1)))
     for start in range(0, n_sim, block):
         size = min(block, n_sim - start)
-        x = detrend(simulate_ar1(rng, size, n, phi, var_e))
+        x = simulate_ar1(rng, size, n, phi, var_e)
+        x = detrend(x) if basis is None else remove_slow(x, basis)
         P = fft_power(x, n_fft)
         ph, ve, corr = fit_background(P, freq, n)
         S = ar1_spectrum(freq[mask], ph, ve) * corr[:, mask]

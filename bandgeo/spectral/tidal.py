@@ -24,12 +24,19 @@ from .annual import combine, period_estimate
 #: Periods (bands per cycle) searched for tidal cycles, and the split between fortnight and month.
 TIDAL_BAND = (9.0, 45.0)
 FORTNIGHT_MAX = 22.0
+#: Synodic months per year accepted for a tidal reading: from today's 12.37 (29.53-day month in a
+#: 365.24-day year; Meeus) to 14.5 +- 0.5 at about 2450 Ma (Williams 2000 Rev. Geophys. 38:37-59), the
+#: oldest published value; 13.1 +- 0.1 at about 620 Ma lies inside. Widened by 3% for estimation error.
+MONTHS_PER_YEAR_RANGE = (12.37 / 1.03, 15.0 * 1.03)
 
 
-def _harmonic_of(period: float, annual: float | None, tol: float = 0.04) -> bool:
+def _harmonic_of(period: float, annual: float | None, n: int | None = None) -> bool:
     if annual is None:
         return False
-    return any(abs(period - annual / k) <= tol * annual / k for k in range(2, 6))
+    from .select import is_harmonic
+
+    return bool(is_harmonic(1.0 / period, 1.0 / annual, n or 10 ** 9)) or any(
+        abs(period - annual / k) <= 0.03 * annual / k for k in range(2, 7))
 
 
 def tidal_analysis(search: dict, annual_period: float | None, n_boot: int, rng, progress=None) -> dict:
@@ -51,12 +58,25 @@ def tidal_analysis(search: dict, annual_period: float | None, n_boot: int, rng, 
         out["note"] = "the searched band excludes the tidal periods (9-45 bands); no tidal test made"
         return out
     readings = []
+    out["months_per_year_range"] = [round(MONTHS_PER_YEAR_RANGE[0], 2), round(MONTHS_PER_YEAR_RANGE[1], 2)]
+    rejected = []
     for peak in search["peaks"]:
         P = peak["period_bands"]
-        if not (searched[0] <= P <= searched[1]) or _harmonic_of(P, annual_period):
+        if not (searched[0] <= P <= searched[1]):
+            continue
+        if _harmonic_of(P, annual_period, search.get("n")):
+            rejected.append({"period_bands": P, "reason": "harmonic of the annual cycle"})
             continue
         if annual_period is not None and P > 0.75 * annual_period:
             continue
+        if annual_period is not None:
+            kind0 = "fortnightly" if P < FORTNIGHT_MAX else "monthly"
+            months = annual_period / (P * (2.0 if kind0 == "fortnightly" else 1.0))
+            if not (MONTHS_PER_YEAR_RANGE[0] <= months <= MONTHS_PER_YEAR_RANGE[1]):
+                rejected.append({"period_bands": P, "reason": f"read as {kind0}, it would give {months:.2f} "
+                                 f"synodic months per year, outside the published range "
+                                 f"{MONTHS_PER_YEAR_RANGE[0]:.1f}-{MONTHS_PER_YEAR_RANGE[1]:.1f}"})
+                continue
         est = period_estimate(search, peak, n_boot, rng, with_cycles=False, progress=progress,
                               label="tidal")["spectrum"]
         kind = "fortnightly" if P < FORTNIGHT_MAX else "monthly"
@@ -66,6 +86,10 @@ def tidal_analysis(search: dict, annual_period: float | None, n_boot: int, rng, 
                  "days_per_synodic_month_ci95": [factor * est["ci95"][0], factor * est["ci95"][1]]}
         out["peaks"].append(entry)
         readings.append((factor * est["estimate"], factor * est["sd"], peak["p_value"], kind))
+    out["rejected_peaks"] = rejected
+    if annual_period is None:
+        out["note"] += ("; no annual cycle, so the ratio of a tidal cycle to the year (synodic months per "
+                        "year) could not be checked")
     if not readings:
         return out
     # At most one reading of each kind: the most significant.
