@@ -39,7 +39,6 @@ JS = "text/javascript; charset=utf-8"
 STATIC = {"/": ("index.html", "text/html; charset=utf-8"),
           "/static/review.js": ("review.js", JS),
           "/static/view3d.js": ("view3d.js", JS),
-          "/static/palette.js": ("palette.js", JS),
           "/static/vendor/three.module.min.js": ("vendor/three.module.min.js", JS),
           "/static/review.css": ("review.css", "text/css; charset=utf-8")}
 POSTS = ("/api/edit", "/api/undo", "/api/redo", "/api/save", "/api/set-aside")
@@ -233,7 +232,7 @@ class Handler(BaseHTTPRequestHandler):
         try:
             if path in STATIC:
                 name, ctype = STATIC[path]
-                body = resources.files("bandgeo.review").joinpath("static", name).read_bytes()
+                body = resources.files("bandgeo.review").joinpath("static", *name.split("/")).read_bytes()
                 extra = {}
                 if path == "/":
                     extra["Set-Cookie"] = f"{COOKIE}={self.app.token}; Path=/; HttpOnly; SameSite=Strict"

@@ -1,114 +1,110 @@
-// bandgeo review page: the 3-D view. A small software rasteriser on a 2-D canvas (orthographic camera,
-// z-buffer, flat shading), so it needs neither WebGL nor a GPU. Bands alternate light and dark tones;
-// the chosen band is orange (Okabe & Ito); faces outside the banded stretch are grey.
-"use strict";
-window.BandView3D = (() => {
-  const cam = { yaw: 0.6, pitch: 0.25, zoom: 1.0 };
-  let mesh = null, canvas = null;
-  function bytes(b64) {
-    const bin = atob(b64); const u = new Uint8Array(bin.length);
-    for (let i = 0; i < bin.length; i++) u[i] = bin.charCodeAt(i);
-    return u;
+// bandgeo review page: the 3-D view, drawn with three.js (vendored under static/vendor, MIT licence).
+// Bands in alternating light and dark tones, the chosen band orange (Okabe & Ito), faces outside the
+// banded stretch grey. The camera opens on the region being edited and follows the selection.
+import * as THREE from "./vendor/three.module.min.js";
+
+function bytes(b64) {
+  const bin = atob(b64); const u = new Uint8Array(bin.length);
+  for (let i = 0; i < bin.length; i++) u[i] = bin.charCodeAt(i);
+  return u;
+}
+
+export function createView3D(canvas, note) {
+  let renderer = null, scene, camera, controls, mesh = null, geom = null, data = null, frame = 0;
+  const LIGHT = [0.89, 0.85, 0.74], DARK = [0.52, 0.48, 0.41], OUT = [0.8, 0.8, 0.8], PICK = [0.90, 0.62, 0.0];
+  try {
+    renderer = new THREE.WebGLRenderer({ canvas, antialias: true, preserveDrawingBuffer: true });
+  } catch (e) {
+    if (note) note.textContent = "3-D view needs WebGL, which this browser does not offer";
+    return { setup() {}, colour() {}, focus() {}, whole() {}, ready: () => false, request() {} };
   }
-  // m: the /api/mesh payload (base64 little-endian arrays); note: element for the face count line.
-  function setup(m, note) {
+  renderer.setClearColor(0xfbfbfa, 1);
+  scene = new THREE.Scene();
+  camera = new THREE.PerspectiveCamera(35, 1, 0.01, 1000);
+  scene.add(new THREE.AmbientLight(0xffffff, 0.55));
+  const sun = new THREE.DirectionalLight(0xffffff, 1.6);
+  sun.position.set(1, 1.5, 2); camera.add(sun); scene.add(camera);
+  controls = new THREE.OrbitControls(camera, canvas);
+  controls.enableDamping = false;
+  controls.addEventListener("change", request);
+
+  function request() { if (!frame) frame = requestAnimationFrame(() => { frame = 0; render(); }); }
+  function render() {
+    const r = canvas.getBoundingClientRect(), w = Math.max(10, r.width), h = Math.max(10, r.height);
+    const dpr = window.devicePixelRatio || 1;
+    if (canvas.width !== Math.round(w * dpr) || canvas.height !== Math.round(h * dpr)) {
+      renderer.setPixelRatio(dpr); renderer.setSize(w, h, false);
+      camera.aspect = w / h; camera.updateProjectionMatrix();
+    }
+    renderer.render(scene, camera);
+  }
+  new ResizeObserver(request).observe(canvas);
+
+  // m: the /api/mesh payload (base64 little-endian arrays, centred on centre_mm, axis points).
+  function setup(m) {
     const v = new Float32Array(bytes(m.vertices).buffer), f = new Uint32Array(bytes(m.faces).buffer);
-    const hgt = new Float32Array(bytes(m.height).buffer), nf = m.n_faces;
-    const fn = new Float32Array(nf * 3), fh = new Float32Array(nf);
     const c = m.centre_mm;
     for (let i = 0; i < v.length; i += 3) { v[i] -= c[0]; v[i + 1] -= c[1]; v[i + 2] -= c[2]; }
-    for (let k = 0; k < nf; k++) {
-      const a = 3 * f[3 * k], b = 3 * f[3 * k + 1], d = 3 * f[3 * k + 2];
-      const ux = v[b] - v[a], uy = v[b + 1] - v[a + 1], uz = v[b + 2] - v[a + 2];
-      const wx = v[d] - v[a], wy = v[d + 1] - v[a + 1], wz = v[d + 2] - v[a + 2];
-      const nx = uy * wz - uz * wy, ny = uz * wx - ux * wz, nz = ux * wy - uy * wx;
-      const l = Math.hypot(nx, ny, nz) || 1; fn[3 * k] = nx / l; fn[3 * k + 1] = ny / l; fn[3 * k + 2] = nz / l;
-      fh[k] = (hgt[f[3 * k]] + hgt[f[3 * k + 1]] + hgt[f[3 * k + 2]]) / 3;
-    }
-    mesh = { v, f, fn, fh, nf, size: m.size_mm, faceCol: new Uint8Array(nf * 3).fill(205) };
-    if (note) note.textContent = `${nf.toLocaleString()} of ${m.n_faces_full.toLocaleString()} faces · drag to turn, wheel to zoom`;
+    geom = new THREE.BufferGeometry();
+    geom.setAttribute("position", new THREE.BufferAttribute(v, 3));
+    geom.setIndex(new THREE.BufferAttribute(f, 1));
+    geom.computeVertexNormals();
+    // Bands are thinner than the display mesh's faces on a long record, so the colour comes from a
+    // texture indexed by height (interpolated per pixel), not from the vertices.
+    const hgt = new Float32Array(bytes(m.height).buffer), ax = m.axis.heights_mm;
+    const lo = ax[0], hi = ax[ax.length - 1], uv = new Float32Array(2 * hgt.length);
+    for (let i = 0; i < hgt.length; i++) { uv[2 * i] = (hgt[i] - lo) / ((hi - lo) || 1); uv[2 * i + 1] = 0.5; }
+    geom.setAttribute("uv", new THREE.BufferAttribute(uv, 2));
+    const W = Math.min(16384, renderer.capabilities.maxTextureSize || 4096);
+    const tex = new THREE.DataTexture(new Uint8Array(4 * W).fill(205), W, 1, THREE.RGBAFormat);
+    tex.magFilter = THREE.NearestFilter; tex.minFilter = THREE.NearestFilter; tex.generateMipmaps = false;
+    tex.wrapS = THREE.ClampToEdgeWrapping; tex.colorSpace = THREE.SRGBColorSpace; tex.needsUpdate = true;
+    const mat = new THREE.MeshLambertMaterial({ map: tex, side: THREE.DoubleSide });
+    mesh = new THREE.Mesh(geom, mat); scene.add(mesh);
+    data = { height: hgt, size: m.size_mm, radius: m.radius_mm || m.size_mm / 6, axis: m.axis, tex, W, lo, hi };
+    camera.near = data.size / 500; camera.far = data.size * 20; camera.updateProjectionMatrix();
+    if (note) note.textContent = `${m.n_faces.toLocaleString()} of ${m.n_faces_full.toLocaleString()} faces · drag to turn, wheel to zoom`;
+    whole();
   }
-  // heights: boundary heights in force, base to top (mm); pick: index of the chosen band or -1.
+  // heights: boundary heights in force, base to top (mm); pick: the chosen band's number or -1.
   function colour(heights, pick) {
-    if (!mesh) return;
-    const hs = heights, LIGHT = [226, 214, 183], DARK = [128, 118, 100], OUT = [205, 205, 205], PICK = [230, 159, 0];
-    for (let k = 0; k < mesh.nf; k++) {
-      const h = mesh.fh[k]; let lo = 0, hi = hs.length;
-      while (lo < hi) { const mid = (lo + hi) >> 1; if (hs[mid] <= h) lo = mid + 1; else hi = mid; }
-      let col = (lo === 0 || lo === hs.length) ? OUT : (lo % 2 ? LIGHT : DARK);
-      if (pick === lo) col = PICK;
-      mesh.faceCol[3 * k] = col[0]; mesh.faceCol[3 * k + 1] = col[1]; mesh.faceCol[3 * k + 2] = col[2];
+    if (!data) return;
+    const a = data.tex.image.data, W = data.W, hs = heights, span = (data.hi - data.lo) || 1;
+    let lo = 0;
+    for (let i = 0; i < W; i++) {
+      const h = data.lo + (i + 0.5) / W * span;
+      while (lo < hs.length && hs[lo] <= h) lo++;
+      const band = lo - 1;     // band k lies between boundary k and k+1
+      const c = (lo === 0 || lo === hs.length) ? OUT : (band === pick ? PICK : (band % 2 ? DARK : LIGHT));
+      a[4 * i] = 255 * c[0]; a[4 * i + 1] = 255 * c[1]; a[4 * i + 2] = 255 * c[2]; a[4 * i + 3] = 255;
     }
+    data.tex.needsUpdate = true; request();
   }
-  let frame = 0;
-  function request() { if (canvas && !frame) frame = requestAnimationFrame(() => { frame = 0; render(); }); }
-  function render() {
-    const c = canvas, r = c.getBoundingClientRect();
-    const W = Math.max(10, Math.round(r.width)), H = Math.max(10, Math.round(r.height));
-    if (c.width !== W || c.height !== H) { c.width = W; c.height = H; }
-    const ctx = c.getContext("2d"); const img = ctx.createImageData(W, H);
-    const buf = new Uint32Array(img.data.buffer), zb = new Float32Array(W * H).fill(Infinity);
-    buf.fill(0xfffafbfb);
-    if (!mesh) { ctx.putImageData(img, 0, 0); return; }
-    const cy = Math.cos(cam.yaw), sn = Math.sin(cam.yaw), cp = Math.cos(cam.pitch), sp = Math.sin(cam.pitch);
-    const k = cam.zoom * 0.72 * Math.min(W, H) / mesh.size, ox = W / 2, oy = H / 2;
-    const n = mesh.v.length / 3, X = new Float32Array(n), Y = new Float32Array(n), Z = new Float32Array(n);
-    for (let i = 0; i < n; i++) {
-      const x = mesh.v[3 * i], y = mesh.v[3 * i + 1], z = mesh.v[3 * i + 2];
-      const x1 = cy * x - sn * y, y1 = sn * x + cy * y;
-      const y2 = cp * y1 - sp * z, z2 = sp * y1 + cp * z;
-      X[i] = ox + k * x1; Y[i] = oy - k * z2; Z[i] = y2;
-    }
-    const f = mesh.f, fn = mesh.fn, fc = mesh.faceCol;
-    for (let t = 0; t < mesh.nf; t++) {
-      const a = f[3 * t], b = f[3 * t + 1], d = f[3 * t + 2];
-      const nx = fn[3 * t], ny = fn[3 * t + 1], nz = fn[3 * t + 2];
-      const ny1 = sn * nx + cy * ny, nview = cp * ny1 - sp * nz, nup = sp * ny1 + cp * nz;
-      const nx1 = cy * nx - sn * ny;
-      const lit = 0.3 + 0.7 * Math.min(1, Math.abs(0.45 * nx1 - 0.8 * nview + 0.4 * nup));
-      const col = (255 << 24) | ((fc[3 * t + 2] * lit) << 16) | ((fc[3 * t + 1] * lit) << 8) | (fc[3 * t] * lit);
-      tri(X[a], Y[a], Z[a], X[b], Y[b], Z[b], X[d], Y[d], Z[d], col, W, H, buf, zb);
-    }
-    ctx.putImageData(img, 0, 0);
+  function axisAt(s) {
+    const ax = data.axis, hs = ax.heights_mm; let k = 0;
+    while (k < hs.length - 2 && hs[k + 1] < s) k++;
+    const t = Math.max(0, Math.min(1, (s - hs[k]) / ((hs[k + 1] - hs[k]) || 1)));
+    const p = [0, 1, 2].map((j) => ax.points_mm[k][j] * (1 - t) + ax.points_mm[k + 1][j] * t);
+    const d = [0, 1, 2].map((j) => ax.tangents[k][j] * (1 - t) + ax.tangents[k + 1][j] * t);
+    return { p: new THREE.Vector3(...p), t: new THREE.Vector3(...d).normalize() };
   }
-  function tri(ax, ay, az, bx, by, bz, cx, cy, cz, col, W, H, buf, zb) {
-    const minx = Math.max(0, Math.floor(Math.min(ax, bx, cx))), maxx = Math.min(W - 1, Math.floor(Math.max(ax, bx, cx)));
-    const miny = Math.max(0, Math.floor(Math.min(ay, by, cy))), maxy = Math.min(H - 1, Math.floor(Math.max(ay, by, cy)));
-    if (minx > maxx || miny > maxy) return;
-    const area = (bx - ax) * (cy - ay) - (by - ay) * (cx - ax);
-    if (maxx - minx < 1 && maxy - miny < 1 || Math.abs(area) < 1e-6) {   // below a pixel: one dot
-      const i = miny * W + minx, z = (az + bz + cz) / 3;
-      if (z < zb[i]) { zb[i] = z; buf[i] = col; }
-      return;
-    }
-    const inv = 1 / area;
-    for (let y = miny; y <= maxy; y++) {
-      const py = y + 0.5;
-      for (let x = minx; x <= maxx; x++) {
-        const px = x + 0.5;
-        const w0 = ((bx - px) * (cy - py) - (by - py) * (cx - px)) * inv;
-        const w1 = ((cx - px) * (ay - py) - (cy - py) * (ax - px)) * inv;
-        const w2 = 1 - w0 - w1;
-        if (w0 < -1e-6 || w1 < -1e-6 || w2 < -1e-6) continue;
-        const z = w0 * az + w1 * bz + w2 * cz, i = y * W + x;
-        if (z < zb[i]) { zb[i] = z; buf[i] = col; }
-      }
-    }
+  // Look at height s (mm) on the axis, showing about `span` mm of the column around it.
+  function focus(s, span) {
+    if (!data) return;
+    const { p, t } = axisAt(s);
+    let dir = camera.position.clone().sub(controls.target);
+    dir.sub(t.clone().multiplyScalar(dir.dot(t)));                 // keep the side we look from
+    if (dir.lengthSq() < 1e-12) dir = new THREE.Vector3(1, 0, 0).sub(t.clone().multiplyScalar(t.x));
+    dir.normalize().add(t.clone().multiplyScalar(0.35)).normalize();
+    const want = Math.max(3 * data.radius, Math.min(data.size * 1.5, (span || 4 * data.radius) * 1.8));
+    controls.target.copy(p); camera.up.copy(t);
+    camera.position.copy(p.clone().add(dir.multiplyScalar(want)));
+    camera.lookAt(p); controls.update(); request();
   }
-  function wire(c) {
-    canvas = c; let last = null;
-    c.addEventListener("mousedown", (ev) => { last = [ev.clientX, ev.clientY]; c.style.cursor = "grabbing"; });
-    window.addEventListener("mousemove", (ev) => {
-      if (!last) return;
-      cam.yaw += (ev.clientX - last[0]) * 0.01;
-      cam.pitch = Math.max(-1.45, Math.min(1.45, cam.pitch + (ev.clientY - last[1]) * 0.01));
-      last = [ev.clientX, ev.clientY]; request();
-    });
-    window.addEventListener("mouseup", () => { last = null; c.style.cursor = "grab"; });
-    c.addEventListener("wheel", (ev) => {
-      ev.preventDefault(); cam.zoom = Math.max(0.3, Math.min(20, cam.zoom * Math.exp(-ev.deltaY * 0.0015))); request();
-    }, { passive: false });
-    window.addEventListener("resize", request);
+  function whole() {
+    if (!data) return;
+    const mid = data.axis.heights_mm[Math.floor(data.axis.heights_mm.length / 2)];
+    focus(mid, data.size);
   }
-  return { setup, colour, request, wire, ready: () => mesh !== null };
-})();
+  return { setup, colour, focus, whole, ready: () => mesh !== null, request };
+}
