@@ -178,8 +178,33 @@ def estimate_up(vertices: np.ndarray, faces: np.ndarray, boundary_edges=None, ma
         faces = faces[np.sort(pick)]
     centroid, area, normal = _face_geometry(vertices, faces)
     ok = area > 0
-    centroid, area, normal = centroid[ok], area[ok], normal[ok]
-    mean, evals, evecs = _weighted_axis(centroid, area)
+    surface = (centroid[ok], area[ok], normal[ok])
+    mean, evals, evecs = _weighted_axis(surface[0], surface[1])
+    axis, axis_conf, ratio_long, est_warn = _principal_axis(evals, evecs)
+    axis, mean, ci95 = _refine_axis(surface[0], surface[1], axis, mean)
+    cues, r_mid = _end_cues(vertices, surface, axis, mean, boundary_edges, step)
+    base_like = {e: min(c["taper"], 1.2) + c["flat_cap"] + c["open_rim"] for e, c in cues.items()}
+    score = base_like["bottom"] - base_like["top"]  # > 0: +axis points to the top
+    if score < 0:
+        axis = -axis
+        cues = {"top": cues["bottom"], "bottom": cues["top"]}
+    end_conf = float(np.tanh(abs(score) / 0.4))
+    confidence = float(axis_conf * end_conf)
+    cues["score"] = float(abs(score))
+    cues["elongation"] = float(np.sqrt(max(ratio_long, 0.0)))
+    if axis_conf < 0.5:
+        est_warn.append(f"the long axis is poorly defined (principal variance ratio {ratio_long:.2f}); "
+                        "give the way-up with --up X,Y,Z or in the specimen sheet")
+    if end_conf < 0.6:
+        est_warn.append("cannot tell the domed top from the base with confidence (both ends look alike); "
+                        "check the way-up and give it with --up X,Y,Z or in the specimen sheet")
+    return UpEstimate(up=axis, confidence=confidence, axis_confidence=axis_conf, end_confidence=end_conf,
+                      cues=cues, warnings=est_warn, ci95_deg=ci95, radius=r_mid)
+
+
+def _principal_axis(evals, evecs):
+    """(axis, its confidence 0..1, long/middle variance ratio, warnings) from the principal axes: the
+    long axis, or for a squat specimen the one short axis."""
     est_warn = []
     ratio_long = evals[0] / max(evals[1], 1e-300)
     ratio_flat = evals[1] / max(evals[2], 1e-300)
@@ -191,12 +216,16 @@ def estimate_up(vertices: np.ndarray, faces: np.ndarray, boundary_edges=None, ma
         axis_conf = float(np.clip((ratio_flat - 1.0) / 2.0, 0.0, 0.6))
         est_warn.append("the specimen is wider than it is tall, so its long axis does not mark the growth "
                         "direction; the up vector was taken as its short axis")
-    # refine: fit a line through slice centroids over the middle of the column
+    return axis, axis_conf, ratio_long, est_warn
+
+
+def _refine_axis(centroid, area, axis, mean, nb: int = 16):
+    """(axis, point on it, 95% angular radius in degrees): a line fitted through the area-weighted
+    centroids of ``nb`` slices over the middle 70% of the column, twice."""
     ci95 = float("nan")
     for _ in range(2):
         t = (centroid - mean) @ axis
         lo, hi = np.quantile(t, [0.15, 0.85])
-        nb = 16
         inside = (t >= lo) & (t <= hi)
         # linear (cloud-in-cell) binning: a ring of faces on a bin edge splits smoothly between two bins
         u = (t[inside] - lo) / max(hi - lo, 1e-300) * nb - 0.5
@@ -222,7 +251,13 @@ def estimate_up(vertices: np.ndarray, faces: np.ndarray, boundary_edges=None, ma
         resid = np.sqrt((sv[1] ** 2 + sv[2] ** 2) / max(n_c - 2, 1) / 2.0)
         se = resid / max(sv[0] / np.sqrt(n_c), 1e-300) / np.sqrt(n_c)
         ci95 = float(np.degrees(np.arctan(2.45 * se)))  # 2.45: 95% radius of a 2-D normal (Rayleigh)
-    # which end is the top?
+    return axis, mean, ci95
+
+
+def _end_cues(vertices, surface, axis, mean, boundary_edges, step):
+    """Per end ('top' = +axis, 'bottom'): taper, flat cap, cap flatness and open rim; and the median
+    radius of the middle of the column (input units)."""
+    centroid, area, normal = surface
     t = (centroid - mean) @ axis
     radial = centroid - mean - np.outer(t, axis)
     r = np.linalg.norm(radial, axis=1)
@@ -253,20 +288,4 @@ def estimate_up(vertices: np.ndarray, faces: np.ndarray, boundary_edges=None, ma
             rim = float(np.linalg.norm(q - p, axis=1)[bnear < depth].sum() / (2 * np.pi * r_mid))
         cues[end] = {"taper": taper, "flat_cap": flat, "cap_rms_over_radius": rel_rms,
                      "open_rim": min(rim, 1.0)}
-    base_like = {e: min(c["taper"], 1.2) + c["flat_cap"] + c["open_rim"] for e, c in cues.items()}
-    score = base_like["bottom"] - base_like["top"]  # > 0: +axis points to the top
-    if score < 0:
-        axis = -axis
-        cues = {"top": cues["bottom"], "bottom": cues["top"]}
-    end_conf = float(np.tanh(abs(score) / 0.4))
-    confidence = float(axis_conf * end_conf)
-    cues["score"] = float(abs(score))
-    cues["elongation"] = float(np.sqrt(max(ratio_long, 0.0)))
-    if axis_conf < 0.5:
-        est_warn.append(f"the long axis is poorly defined (principal variance ratio {ratio_long:.2f}); "
-                        "give the way-up with --up X,Y,Z or in the specimen sheet")
-    if end_conf < 0.6:
-        est_warn.append("cannot tell the domed top from the base with confidence (both ends look alike); "
-                        "check the way-up and give it with --up X,Y,Z or in the specimen sheet")
-    return UpEstimate(up=axis, confidence=confidence, axis_confidence=axis_conf, end_confidence=end_conf,
-                      cues=cues, warnings=est_warn, ci95_deg=ci95, radius=r_mid)
+    return cues, r_mid
