@@ -204,24 +204,11 @@ def earth_moon_distance(synodic_months_per_year=None, days_per_year=None, *, mon
 
 
 def reference_points() -> list[dict]:
-    """Published estimates for the comparison figure (reference-values.md)."""
-    Y_h = YEAR_SECONDS / 3600.0
-    pts = [
-        (620, 400, 7, "Williams (2000) Rev. Geophys. 38:37-59; tidal rhythmites"),
-        (650, 400, 20, "Williams (1989) J. Geol. Soc. London 146:97-111"),
-        (850, 435, None, "Vanyo & Awramik (1985) Precambrian Res. 29:121-142; heliotropic stromatolite "
-                         "(method and age disputed by Williams, Jenkins & Walter 2007)"),
-        (385, 400, None, "Wells (1963) Nature 197:948-950; Middle Devonian corals (~400 growth lines/yr)"),
-    ]
-    out = []
-    for age, n, err, cite in pts:
-        lod = Y_h / n
-        out.append({"age_ma": age, "days_per_year": n, "days_per_year_err": err,
-                    "length_of_day_hours": lod,
-                    "length_of_day_err_hours": (lod * err / n) if err else None, "citation": cite})
-    out.append({"age_ma": 1400, "days_per_year": YEAR_SECONDS / (18.68 * 3600), "days_per_year_err": None,
-                "length_of_day_hours": 18.68, "length_of_day_err_hours": 0.25 / 2,
-                "citation": "Meyers & Malinverno (2018) PNAS 115:6363-6368; cyclostratigraphy (18.68 +- 0.25 h, 2 sigma)"})
-    out.append({"age_ma": 0, "days_per_year": YEAR_SECONDS / DAY_S, "days_per_year_err": None,
-                "length_of_day_hours": 24.0, "length_of_day_err_hours": None, "citation": "present day"})
-    return sorted(out, key=lambda p: p["age_ma"])
+    """Published estimates for the comparison figure: the one cited table, ``bandgeo.references``."""
+    from .references import references
+
+    return [{"age_ma": r.age_ma, "days_per_year": r.days_per_year, "days_per_year_err": r.dpy_half_width,
+             "length_of_day_hours": r.length_of_day_h,
+             "length_of_day_err_hours": r.lod_err_h if r.lod_err_h is not None else (
+                 None if r.dpy_err is None else r.length_of_day_h * r.dpy_err / r.days_per_year),
+             "citation": r.citation, "label": r.label, "note": r.note} for r in references()]
