@@ -129,7 +129,107 @@ def _prepare(scan: Scan, *, units, up, north, strike_dip, sheet, scale, progress
     if sheet is not None and not isinstance(sheet, SpecimenSheet):
         from .sheet import read_sheet
         sheet = read_sheet(sheet)
+    # parameters first: a typo is reported before any work
+    units_name, units_source = _given_units(units, sheet)
+    scale_ref = _as_scale(scale, "scale") if scale is not None else \
+        (sheet.scale if sheet is not None and sheet.scale is not None else None)
+    factor, scale_note = _scale_factor(scale_ref, units_name)
+    strike_dip = _given_bedding(strike_dip, sheet)
     warnings: list = []
+    clean = _clean(scan, warnings, progress)
+    v, faces = clean.vertices, clean.faces
+    report(progress, "orienting", 0, 1)
+    # ---- way-up and north (scan frame), bedding
+    estimate = estimate_up(v, faces, clean.boundary_edges)
+    field_up, up_source, up_conf = _way_up(up, sheet, estimate, warnings)
+    if north is None and sheet is not None and sheet.north is not None:
+        north = sheet.north
+    rows, north_known = frame_rows(field_up, north)
+    r_bed = np.eye(3)
+    if strike_dip is not None:
+        if not north_known or up_source == "estimated":
+            raise ParameterError("bedding correction needs the specimen's field vertical and north; give --up and "
+                                 "--north (or up and north in the sheet), or drop the strike/dip")
+        r_bed = bedding_rotation(*strike_dip)
+    rot = r_bed @ rows
+    # ---- units and scale, then the origin on the axis at the base
+    p = _rotate(v, rot)
+    p_lo, p_hi = _col_range(p)
+    extent_file = p_hi - p_lo
+    units_name, units_source, k = _final_units(scan, units_name, units_source, scale_ref, factor,
+                                               float(extent_file.max()), warnings)
+    vertices_mm, origin, (zmin, zmax) = _place_origin(p, k, p_lo, p_hi)
+    transforms = [
+        {"step": "scale", "matrix": _h(scale=k).tolist(),
+         "note": f"{units_name} to mm (x{k:g}; units from {units_source}" + (f"; {scale_note}" if scale_note else "") + ")"},
+        {"step": "orient", "matrix": _h(rows).tolist(),
+         "note": f"up from {up_source} to +z; " + ("north to +y" if north_known else "y an arbitrary horizontal")},
+        {"step": "bedding", "matrix": _h(r_bed).tolist(),
+         "note": (f"strike {strike_dip[0]:g} dip {strike_dip[1]:g} (right-hand rule) rotated back to horizontal"
+                  if strike_dip is not None else "no bedding correction (none given)")},
+        {"step": "origin", "matrix": _h(translation=-origin).tolist(), "note": "origin on the axis at the base"},
+    ]
+    scan_to_specimen = _h(translation=-origin) @ _h(r_bed) @ _h(rows) @ _h(scale=k)
+    summary = _summary(scan, clean, k, factor, extent_file, zmax - zmin, estimate, units_source, scale_note)
+    summary.update({"field_up_scan": field_up.tolist(), "paleo_up_scan": (rot.T @ np.array([0.0, 0.0, 1.0])).tolist()})
+    summary = _add_estimate_and_bedding(summary, estimate, strike_dip)
+    report(progress, "orienting", 1, 1)
+    return Specimen(
+        vertices_mm=vertices_mm, faces=faces,
+        colors=_kept_colors(scan.colors, clean.scan_index),
+        scan_to_specimen=scan_to_specimen, units=units_name, mm_per_unit=float(k), up_source=up_source,
+        up_confidence=float(up_conf), north_known=bool(north_known), cleaning=dict(clean.counts),
+        transforms=transforms, warnings=warnings, sheet=sheet,
+        specimen_id=(sheet.specimen_id if sheet is not None and sheet.specimen_id else _stem(scan.path)),
+        scan_path=scan.path, scan_sha256=scan.sha256, scan_vertex_index=clean.scan_index, summary=summary)
+
+
+def _given_units(units, sheet):
+    """(unit name, its source) from the argument, else the sheet, else (None, None)."""
+    if units is not None:
+        name = str(units).strip().lower()
+        if name not in UNIT_TO_MM:
+            raise ParameterError(f"units must be one of {', '.join(UNIT_TO_MM)} but got {shown(units)}")
+        return name, "cli"
+    if sheet is not None and sheet.units is not None:
+        return sheet.units, "sheet"
+    return None, None
+
+
+def _scale_factor(scale_ref, units_name):
+    """(factor from file units to ``units``, note) of a scale factor or reference length (1.0, None)."""
+    factor, note = 1.0, None
+    if isinstance(scale_ref, ScaleReference):
+        factor = scale_ref.length / scale_ref.file_distance()
+        note = (f"reference length {scale_ref.length:g} {units_name or 'mm'} over {scale_ref.file_distance():g} "
+                "file units")
+    elif scale_ref is not None:
+        factor = float(scale_ref)
+        note = f"scale factor {factor:g}"
+    if not SCALE_RANGE[0] <= factor <= SCALE_RANGE[1]:
+        raise ParameterError(f"the scale factor is {factor:.3g} ({note}), outside {SCALE_RANGE[0]:g}.."
+                             f"{SCALE_RANGE[1]:g}; give the file's unit with --units (or units in the sheet) and "
+                             "use a scale only for a small correction")
+    return factor, note
+
+
+def _given_bedding(strike_dip, sheet):
+    """(strike, dip) in degrees, range-checked, from the argument or the sheet; or None."""
+    if strike_dip is None and sheet is not None and sheet.strike_deg is not None:
+        strike_dip = (sheet.strike_deg, sheet.dip_deg)
+    if strike_dip is None:
+        return None
+    try:
+        strike, dip = (float(x) for x in strike_dip)
+    except (TypeError, ValueError):
+        raise ParameterError(f"strike/dip must be two numbers like 40,25 but got {shown(strike_dip)}")
+    check_strike_dip(strike, dip)
+    return strike, dip
+
+
+def _clean(scan: Scan, warnings: list, progress):
+    """:func:`clean_mesh` of the scan, refusing fragments and flat meshes; notes removed pieces and
+    non-orientable patches in ``warnings``."""
     try:
         clean = clean_mesh(scan.vertices, scan.faces, progress=progress)
     except InputError as exc:  # say which file
@@ -154,9 +254,12 @@ def _prepare(scan: Scan, *, units, up, north, strike_dip, sheet, scale, progress
     if clean.stats["non_orientable_faces"]:
         warnings.append(f"{clean.stats['non_orientable_faces']} faces could not be wound consistently "
                         "(non-orientable patch); normals there may point inward")
-    report(progress, "orienting", 0, 1)
-    # ---- way-up and north (scan frame)
-    estimate = estimate_up(v, faces, clean.boundary_edges)
+    return clean
+
+
+def _way_up(up, sheet, estimate, warnings: list):
+    """(field up in the scan frame, source, confidence): given, from the sheet, or the shape's estimate;
+    warns when a given up points against a confident estimate."""
     if up is not None:
         field_up, up_source, up_conf = unit(up, "up"), "cli", 1.0
     elif sheet is not None and sheet.up is not None:
@@ -168,50 +271,12 @@ def _prepare(scan: Scan, *, units, up, north, strike_dip, sheet, scale, progress
         angle = np.degrees(np.arccos(np.clip(np.dot(field_up, estimate.up), -1, 1)))
         warnings.append(f"the given up vector is {angle:.0f} deg from the growth direction estimated from the "
                         "shape (domed top); check that it does not point to the base")
-    if north is None and sheet is not None and sheet.north is not None:
-        north = sheet.north
-    rows, north_known = frame_rows(field_up, north)
-    # ---- bedding
-    if strike_dip is None and sheet is not None and sheet.strike_deg is not None:
-        strike_dip = (sheet.strike_deg, sheet.dip_deg)
-    r_bed = np.eye(3)
-    if strike_dip is not None:
-        try:
-            strike, dip = (float(x) for x in strike_dip)
-        except (TypeError, ValueError):
-            raise ParameterError(f"strike/dip must be two numbers like 40,25 but got {shown(strike_dip)}")
-        check_strike_dip(strike, dip)
-        if not north_known or up_source == "estimated":
-            raise ParameterError("bedding correction needs the specimen's field vertical and north; give --up and "
-                                 "--north (or up and north in the sheet), or drop the strike/dip")
-        r_bed = bedding_rotation(strike, dip)
-    rot = r_bed @ rows
-    # ---- units and scale
-    if units is not None:
-        units_name, units_source = str(units).strip().lower(), "cli"
-        if units_name not in UNIT_TO_MM:
-            raise ParameterError(f"units must be one of {', '.join(UNIT_TO_MM)} but got {units!r}")
-    elif sheet is not None and sheet.units is not None:
-        units_name, units_source = sheet.units, "sheet"
-    else:
-        units_name, units_source = None, None
-    scale_ref = _as_scale(scale, "scale") if scale is not None else \
-        (sheet.scale if sheet is not None and sheet.scale is not None else None)
-    factor, scale_note = 1.0, None
-    if isinstance(scale_ref, ScaleReference):
-        factor = scale_ref.length / scale_ref.file_distance()
-        scale_note = f"reference length {scale_ref.length:g} {units_name or 'mm'} over {scale_ref.file_distance():g} file units"
-    elif scale_ref is not None:
-        factor = float(scale_ref)
-        scale_note = f"scale factor {factor:g}"
-    if not SCALE_RANGE[0] <= factor <= SCALE_RANGE[1]:
-        raise ParameterError(f"the scale factor is {factor:.3g} ({scale_note}), outside {SCALE_RANGE[0]:g}.."
-                             f"{SCALE_RANGE[1]:g}; give the file's unit with --units (or units in the sheet) and "
-                             "use a scale only for a small correction")
-    p = _rotate(v, rot)
-    p_lo, p_hi = _col_range(p)
-    extent_file = p_hi - p_lo
-    largest_file = float(extent_file.max())
+    return field_up, up_source, up_conf
+
+
+def _final_units(scan, units_name, units_source, scale_ref, factor, largest_file, warnings: list):
+    """(unit, source, mm per file unit): the given unit, else the file's hint, else a guess from the size;
+    refuses sizes no unit explains and warns about implausible ones."""
     if units_name is None:
         hint = getattr(scan, "units_hint", None)
         if scale_ref is not None:
@@ -234,7 +299,12 @@ def _prepare(scan: Scan, *, units, up, north, strike_dip, sheet, scale, progress
         hint_txt = f"; if the file is in {better}, pass --units {better}" if better != units_name else ""
         warnings.append(f"the specimen would be {_fmt_mm(largest_mm)} across in '{units_name}', implausible for a "
                         f"hand specimen (columns are about 1-10 cm wide and 5-50 cm tall){hint_txt}")
-    # ---- origin on the axis at the base
+    return units_name, units_source, k
+
+
+def _place_origin(p, k, p_lo, p_hi):
+    """(vertices in mm with the origin on the axis at the base, that origin, (zmin, zmax) before the
+    shift); scales ``p`` in place."""
     pm = p
     if k != 1.0:
         pm *= k  # in place: p is not used again
@@ -246,50 +316,36 @@ def _prepare(scan: Scan, *, units, up, north, strike_dip, sheet, scale, progress
     base = pm[:, 2] <= zmin + min(0.03 * (zmax - zmin), 0.1 * width)
     origin = np.array([pm[base, 0].mean(), pm[base, 1].mean(), zmin])
     pm -= origin
-    vertices_mm = pm
-    m_scale = _h(scale=k)
-    m_orient = _h(rows)
-    m_bed = _h(r_bed)
-    m_origin = _h(translation=-origin)
-    transforms = [
-        {"step": "scale", "matrix": m_scale.tolist(),
-         "note": f"{units_name} to mm (x{k:g}; units from {units_source}" + (f"; {scale_note}" if scale_note else "") + ")"},
-        {"step": "orient", "matrix": m_orient.tolist(),
-         "note": f"up from {up_source} to +z; " + ("north to +y" if north_known else "y an arbitrary horizontal")},
-        {"step": "bedding", "matrix": m_bed.tolist(),
-         "note": (f"strike {strike_dip[0]:g} dip {strike_dip[1]:g} (right-hand rule) rotated back to horizontal"
-                  if strike_dip is not None else "no bedding correction (none given)")},
-        {"step": "origin", "matrix": m_origin.tolist(), "note": "origin on the axis at the base"},
-    ]
-    scan_to_specimen = m_origin @ m_bed @ m_orient @ m_scale
-    paleo_up_scan = rot.T @ np.array([0.0, 0.0, 1.0])
-    summary = {
+    return pm, origin, (zmin, zmax)
+
+
+def _summary(scan, clean, k, factor, extent_file, height_mm, estimate, units_source, scale_note) -> dict:
+    """The counts, sizes and cues of :attr:`Specimen.summary` known after cleaning and scaling."""
+    return {
         "scan_vertices": int(len(scan.vertices)), "scan_faces": int(len(scan.faces)),
-        "vertices": int(len(v)), "faces": int(len(faces)),
+        "vertices": int(len(clean.vertices)), "faces": int(len(clean.faces)),
         "pieces": clean.stats["pieces"], "piece_area_fractions": clean.stats["piece_area_fractions"],
         "holes": clean.stats["holes"], "boundary_edges": clean.stats["boundary_edges"],
         "non_manifold_edges": clean.stats["non_manifold_edges"],
         "inconsistent_edges": clean.stats["inconsistent_edges"],
         "median_edge_units": clean.stats["median_edge"], "median_edge_mm": clean.stats["median_edge"] * k,
         "extent_units": (extent_file * factor).tolist(), "extent_mm": (extent_file * k).tolist(),
-        "height_mm": float(zmax - zmin), "width_mm": float(max(extent_file[0], extent_file[1]) * k),
+        "height_mm": float(height_mm), "width_mm": float(max(extent_file[0], extent_file[1]) * k),
         "diameter_mm": float(2.0 * estimate.radius * k),
         "units_source": units_source, "scale": scale_note,
-        "field_up_scan": field_up.tolist(), "paleo_up_scan": paleo_up_scan.tolist(),
+    }
+
+
+def _add_estimate_and_bedding(summary: dict, estimate, strike_dip) -> dict:
+    """``summary`` completed with the way-up estimate and the bedding (keys in the order documented)."""
+    summary.update({
         "estimated_up_scan": estimate.up.tolist(), "estimated_up_confidence": estimate.confidence,
         "estimated_up_ci95_deg": estimate.ci95_deg,
         "estimated_up_method": estimate.method, "estimated_up_cues": estimate.cues,
-        "bedding": None if strike_dip is None else {"strike_deg": float(strike_dip[0]), "dip_deg": float(strike_dip[1])},
-    }
-    report(progress, "orienting", 1, 1)
-    return Specimen(
-        vertices_mm=vertices_mm, faces=faces,
-        colors=_kept_colors(scan.colors, clean.scan_index),
-        scan_to_specimen=scan_to_specimen, units=units_name, mm_per_unit=float(k), up_source=up_source,
-        up_confidence=float(up_conf), north_known=bool(north_known), cleaning=dict(clean.counts),
-        transforms=transforms, warnings=warnings, sheet=sheet,
-        specimen_id=(sheet.specimen_id if sheet is not None and sheet.specimen_id else _stem(scan.path)),
-        scan_path=scan.path, scan_sha256=scan.sha256, scan_vertex_index=clean.scan_index, summary=summary)
+        "bedding": None if strike_dip is None else {"strike_deg": float(strike_dip[0]),
+                                                    "dip_deg": float(strike_dip[1])},
+    })
+    return summary
 
 
 def _kept_colors(colors, scan_index):
