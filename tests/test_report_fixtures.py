@@ -78,7 +78,9 @@ def result_dict(n_bands, period, significant=True, age_ma=1100.0):
                        "sway": {"estimate": period + 1.0 if significant else None,
                                 "ci95": [period - 20, period + 22] if significant else None,
                                 "method": "sway-plane tilt spectrum"}},
-           "consistency": {"chi2": 0.4, "p_value": 0.82, "agree": True}}
+           "consistency": {"chi2": 0.4, "p_value": 0.82, "agree": True},
+           "combined_from": ["thickness_spectrum", "cycle_count", "sway"] if significant else [],
+           "significance_note": "family-wise over the searched band and Bonferroni over 2 series"}
     year_h = 365.24219 * 24.0
     lod = {"estimate": year_h / period, "ci95": [year_h / (period + 11), year_h / (period - 9)],
            "method": "LOD = year / N"} if significant else {"estimate": None, "ci95": None, "method": "LOD = year / N"}

@@ -1,4 +1,5 @@
-"""Build the report of one analysed specimen: figures once, then HTML, PDF, CSV and PLY outputs."""
+"""Build the report of one analysed specimen: figures once from the in-memory state, one HTML page,
+the PDF typeset from that same page (WeasyPrint, print CSS), and the CSV and PLY exports."""
 from __future__ import annotations
 
 import datetime as _dt
@@ -9,10 +10,10 @@ from typing import Any, Iterable, Mapping
 import numpy as np
 
 from .. import __version__
-from ..atomic import atomic_path, write_text
+from ..atomic import write_text
 from ..errors import InputError, ParameterError
 from ..progress import report as _progress
-from . import model
+from . import content
 from .references import reference_points
 from .spectra import normalise_evolutive, normalise_spectra
 
@@ -41,16 +42,31 @@ def _check(state: Any, folder, formats) -> tuple[Path, tuple[str, ...]]:
     return folder, formats
 
 
-def _dpy_frequency(result: Mapping) -> float | None:
-    if not model.dpy_significant(result):
+def _period(result: Mapping) -> float | None:
+    if not content.dpy_significant(result):
         return None
     est = float(result["days_per_year"]["estimate"])
-    return 1.0 / est if est > 0 else None
+    return est if est > 0 else None
 
 
-def _figure_specs(state: Any) -> list[tuple[str, str, str, Any, bool]]:
-    """(id, title, caption, builder, raster) for every figure, in report order."""
-    from . import comparison, figures, render3d, unroll
+def _seed(result: Mapping) -> int:
+    return int((result.get("provenance") or {}).get("seed") or 0)
+
+
+def tilt_summary(state: Any):
+    """The heliotropic tilt summary of the state (None without band directions)."""
+    from .tilt import tilt_from_state
+
+    try:
+        return tilt_from_state(state, period_bands=_period(state.result), seed=_seed(state.result))
+    except (ValueError, np.linalg.LinAlgError):
+        return None
+
+
+def figure_specs(state: Any, tilt=None) -> tuple[list[dict], list[str]]:
+    """The figures to draw, in order, as ``{id, title, caption, build, raster}``, and a sentence for each
+    figure left out because it would have nothing to show."""
+    from . import comparison, figures
 
     result = state.result
     spec = getattr(state, "specimen", None)
@@ -61,139 +77,159 @@ def _figure_specs(state: Any) -> list[tuple[str, str, str, Any, bool]]:
     searched = dpy.get("searched_band_bands_per_cycle")
     searched = [float(x) for x in searched] if isinstance(searched, (list, tuple)) and len(searched) == 2 \
         and None not in searched else None
-    f_est = _dpy_frequency(result)
-    seed = int((result.get("provenance") or {}).get("seed") or 0)
-    specs = []
-    if spec is not None and seg is not None and getattr(seg, "vertex_band", None) is not None:
+    period = _period(result)
+    specs: list[dict] = []
+    omitted: list[str] = []
+    sway_az = None if tilt is None else tilt.sway_azimuth_deg
+
+    if spec is not None and seg is not None and getattr(seg, "vertex_band", None) is not None \
+            and getattr(seg, "axis", None) is not None:
         def views():
-            tri, fb = render3d.decimate_for_render(spec.vertices_mm, spec.faces, seg.vertex_band, seed=seed)
-            return render3d.render_views(tri, fb, north_known=bool(getattr(spec, "north_known", False)))
-        specs.append(("views", "The specimen and its bands",
-                      "Orthographic views of the oriented specimen (z = way up), shaded by surface "
-                      "orientation. Band colours repeat every seven bands so that neighbours differ.",
-                      views, True))
-
-        def unrolled():
-            s, az, r = unroll.unroll_vertices(spec.vertices_mm, seg.axis)
-            spacing = None
-            bt = getattr(state, "band_table", None)
-            if bt is not None and getattr(bt, "thickness_axis_mm", None) is not None and len(bt.thickness_axis_mm):
-                spacing = 4.0 * float(np.nanmedian(bt.thickness_axis_mm))
-            flagged = [tuple(x) for x in (getattr(seg, "resolution", None) or {}).get("flagged") or []]
-            return figures.unrolled_figure(s, az, r, list(seg.boundaries), seg.axis, flagged, spacing)
-        specs.append(("unrolled", "Unrolled side surface",
-                      "Relief of the side surface against azimuth and height along the column axis, "
-                      "with each detected boundary drawn where its fitted plane meets the mean cylinder.",
-                      unrolled, False))
+            from .specimen_view import specimen_figure
+            view = (sway_az + 90.0) if sway_az is not None else 0.0
+            return specimen_figure(spec.vertices_mm, spec.faces, seg.vertex_band, seg.axis, list(seg.boundaries),
+                                   view_azimuth_deg=view, sway_azimuth_deg=sway_az,
+                                   north_known=bool(getattr(spec, "north_known", True)), seed=_seed(result))
+        specs.append({"id": "specimen", "title": "The specimen and its bands", "raster": True, "build": views,
+                      "caption": "The column straightened along its axis and seen across its sway plane, each "
+                                 "band in one of seven colours that repeat so that neighbours differ. Top: the "
+                                 "whole column in strips. Middle: a close view of forty bands with their numbers. "
+                                 "Bottom: the same stretch unrolled, azimuth measured from the sway plane against "
+                                 "height; the ticks on both edges mark the boundaries."})
+    else:
+        omitted.append("The specimen figure is left out: the folder holds no oriented mesh or segmentation.")
     if series is not None:
-        specs.append(("series", "Thickness and tilt series",
-                      "Band thickness and the tilt of the growth direction against band number. The annual "
-                      "fit is a least-squares sinusoid plus linear trend at the estimated annual period.",
-                      lambda: figures.series_figure(series, None if f_est is None else 1.0 / f_est), False))
-    if per is not None:
-        spectra = normalise_spectra(getattr(per, "spectra", None))
-        specs.append(("periodograms", "Periodograms and red-noise significance",
-                      "Whole spectra, not only the winning peak. The shaded region is the band searched for "
-                      "an annual cycle; the dashed and dash-dotted curves are the 95 % and 99 % levels of "
-                      "the fitted red-noise (AR(1)) background.",
-                      lambda: figures.periodogram_figure(spectra, searched, f_est), False))
-        evol = normalise_evolutive(getattr(per, "spectra", None))
-        if evol:
-            specs.append(("evolutive", "Evolutive spectrum",
-                          "Spectra in sliding windows: a true annual cycle persists through the record.",
-                          lambda: figures.evolutive_figure(evol, searched), False))
-    counts = model.cycle_counts(result) if f_est is not None else []
+        specs.append({"id": "series", "title": "Thickness and tilt, band by band", "raster": False,
+                      "build": lambda: figures.series_figure(series, period, getattr(series, "sway_azimuth_deg", None) or sway_az),
+                      "caption": ("Band thickness (mm) and the growth direction's tilt (degrees) against band number. "
+                                  "The signed series carry a sinusoid at the yearly period found, with a linear trend. "
+                                  "The inclination is the tilt's size, never negative, so it cycles twice a year when "
+                                  "the column swings through upright: it carries a running mean, not a yearly sinusoid."
+                                  if period else
+                                  "Band thickness (mm) and the growth direction's tilt (degrees) against band number. "
+                                  "No yearly cycle was found, so no sinusoid is drawn.")})
+    spectra = normalise_spectra(getattr(per, "spectra", None)) if per is not None else {}
+    if spectra:
+        specs.append({"id": "spectra", "title": "Spectra against red noise", "raster": False,
+                      "build": lambda: figures.periodogram_figure(spectra, searched, None if period is None else 1 / period),
+                      "caption": "The whole spectrum of each series, not only its highest peak. The shaded span is "
+                                 "the range of periods searched for a yearly cycle; the dotted curve is what a red-noise "
+                                 "(first-order autoregressive) series of the same character would give on average, and "
+                                 "the dashed curves the levels it exceeds 5 % and 1 % of the time anywhere in the "
+                                 "searched span. Power is per unit frequency (cycles per band)."})
+    else:
+        omitted.append("The spectra are left out: the result holds no saved spectra.")
+    evol = [e for e in normalise_evolutive(getattr(per, "spectra", None)) if len(e["centre"]) >= 3] \
+        if per is not None else []
+    if evol:
+        specs.append({"id": "sliding", "title": "Spectrum in sliding windows", "raster": False,
+                      "build": lambda: figures.evolutive_figure(evol, searched),
+                      "caption": "Power over the red-noise background in windows that slide up the record: a true "
+                                 "yearly cycle shows as a band of high power through every window."})
+    elif per is not None:
+        raw = normalise_evolutive(getattr(per, "spectra", None))
+        n = len(raw[0]["centre"]) if raw else 0
+        omitted.append(f"The spectrum in sliding windows is left out: each window must hold several yearly "
+                       f"cycles, and this record gives {n} window{'s' if n != 1 else ''} of that length, too few "
+                       f"to show whether the cycle persists.")
+    counts = _counts(result) if period is not None else []
     cc = (dpy.get("methods") or {}).get("cycle_count") or {}
-    cc_method = str(cc.get("method") or "") if isinstance(cc, Mapping) else ""
-    specs.append(("counts", "Cycle-by-cycle counts",
-                  "Bands counted in each successive annual cycle; each count is a minimum."
-                  + (f" Method: {cc_method}." if cc_method and counts else ""),
-                  lambda: figures.counts_figure(
-                      counts, cc.get("estimate") if isinstance(cc, Mapping) else None,
-                      "No cycle-by-cycle counts: no significant annual cycle." if f_est is None else
-                      "No cycle-by-cycle counts: the cycle-count method needs a significant annual cycle "
-                      "in the thickness series, and there was none."),
-                  False))
-    sp = result.get("specimen") or {}
-    refs = reference_points()
-    specs.append(("days_per_year", "Days per year beside published values",
-                  "Estimates from this specimen with 95 % intervals, and published values numbered as in "
-                  "the reference list.",
-                  lambda: comparison.days_per_year_figure(_labelled_estimates(result), refs,
-                                                          sp.get("age_ma"), sp.get("age_err_ma"),
-                                                          model.dpy_significant(result)), False))
-    return specs
+    if len(counts) >= 2:
+        specs.append({"id": "counts", "title": "Bands counted cycle by cycle", "raster": False,
+                      "build": lambda: figures.counts_figure(counts, cc.get("estimate") if isinstance(cc, Mapping) else None),
+                      "caption": "Bands counted in each successive yearly cycle of the thickness series. Each count "
+                                 "is a minimum."})
+    elif period is not None:
+        omitted.append(f"The cycle-by-cycle counts are left out: the record holds {len(counts)} whole yearly "
+                       f"cycle{'s' if len(counts) != 1 else ''}, too few to plot one against another "
+                       f"(the count is in the results table).")
+    else:
+        omitted.append("The cycle-by-cycle counts are left out: no yearly cycle was found to count.")
+    if tilt is not None:
+        specs.append({"id": "tilt", "title": "The growth direction seen from above", "raster": False,
+                      "build": lambda: figures.plan_view_figure(tilt.east_deg, tilt.north_deg, tilt.sway_azimuth_deg,
+                                                                tilt.mean_lean_deg, tilt.north_known, tilt.period_bands),
+                      "caption": "Left: each band's tilt from upright as seen from above (degrees), coloured from "
+                                 "the lowest band (dark blue) to the top (yellow); the dashed line is the sway plane, the "
+                                 "arrow the mean lean. Right: the tilt in the sway plane and across it, band by band."})
+    else:
+        omitted.append("The plan view of the growth direction is left out: the bands' directions were not measured.")
+    if period is not None:
+        sp = result.get("specimen") or {}
+        refs = reference_points()
+        unit_ok = content.daily_supported(result)
+        est = _estimates(result, unit_ok)
+        specs.append({"id": "published", "title": "Days per year beside published values", "raster": False,
+                      "build": lambda: comparison.days_per_year_figure(est, refs, sp.get("age_ma"), sp.get("age_err_ma"), True),
+                      "caption": "This specimen's estimates (filled, 95 % intervals) and published values (open, "
+                                 "numbered as in the reference list) against age."})
+    else:
+        omitted.append("The comparison with published days per year is left out: this specimen gives no estimate.")
+    for i, f in enumerate(specs, start=1):
+        f["number"] = i
+    return specs, omitted
 
 
-def _labelled_estimates(result: Mapping) -> list:
-    """The figure's estimates, labelled as bands per cycle when the daily test did not back days."""
-    est = model.method_estimates(result)
-    if model.daily_supported(result):
-        return est
-    return [(f"{label} (bands per cycle; not shown to be daily)", e, lo, hi) for label, e, lo, hi in est]
+def _counts(result: Mapping) -> list[float]:
+    block = ((result.get("days_per_year") or {}).get("methods") or {}).get("cycle_count") or {}
+    value = block.get("per_cycle_counts") if isinstance(block, Mapping) else None
+    return [float(v) for v in value if v is not None] if isinstance(value, (list, tuple)) else []
 
 
-def report_context(state: Any, figures: list[dict]) -> dict:
-    """Everything the template shows, already formatted (see :mod:`bandgeo.report.model`)."""
+def _estimates(result: Mapping, daily_ok: bool) -> list:
+    dpy = result["days_per_year"]
+    out = []
+    tag = "" if daily_ok else " (bands per cycle; not shown to be daily)"
+    for label, block in [("this specimen, combined", dpy)] + [
+            (f"this specimen, {short}", (dpy.get("methods") or {}).get(key)) for key, short, _ in content.ROUTES]:
+        if isinstance(block, Mapping) and block.get("estimate") is not None:
+            ci = block.get("ci95") or [None, None]
+            out.append((label + tag, float(block["estimate"]), ci[0], ci[1]))
+    return out
+
+
+def _figure_specs(state: Any) -> list[tuple]:
+    """Older layout ``(id, title, caption, builder, raster)`` of :func:`figure_specs` (kept for callers)."""
+    specs, _ = figure_specs(state, tilt_summary(state))
+    return [(f["id"], f["title"], f["caption"], f["build"], f["raster"]) for f in specs]
+
+
+def report_context(state: Any, figures: list[dict], omitted: list[str] | None = None, tilt=None,
+                   report_seconds: float | None = None) -> dict:
+    """Everything the template shows, already worded and formatted (see :mod:`bandgeo.report.content`)."""
     result = state.result
     sp = result.get("specimen") or {}
     prov = result.get("provenance") or {}
-    dpy = result.get("days_per_year") or {}
-    sig = model.dpy_significant(result)
-    headline = None
-    if sig:
-        unit = model.dpy_unit(result)
-        headline = {"value": model.fmt(dpy["estimate"]), "unit": unit,
-                    "daily_ok": model.daily_supported(result),
-                    "daily_verdict": str((result.get("daily_test") or {}).get("verdict") or "not tested"),
-                    "ci95": model.fmt_ci(dpy.get("ci95"), unit), "method": dpy.get("method") or "—",
-                    "p_value": model.fmt(dpy.get("p_value")), "is_minimum": dpy.get("is_minimum", True)}
-        lod = result.get("length_of_day_hours") or {}
-        if lod.get("estimate") is not None:
-            headline["lod"] = f"{model.fmt(lod['estimate'])} h"
-            headline["lod_ci95"] = model.fmt_ci(lod.get("ci95"), "h")
-    searched = dpy.get("searched_band_bands_per_cycle")
-    blocks = []
-    resolution = {k: v for k, v in ((result.get("bands") or {}).get("resolution") or {}).items()
-                  if k != "flagged"}
-    if resolution:
-        blocks.append({"title": "Can the scan resolve the bands?", "rows": model.flatten(resolution)})
-    for key, title in (("daily_test", "Are the bands daily?"), ("tidal", "Tidal cycles"),
-                       ("hiatus", "Hiatus evidence")):
-        if result.get(key):
-            blocks.append({"title": title, "rows": model.flatten(result[key])})
-    if sig:
-        if dpy.get("consistency"):
-            blocks.append({"title": "Agreement between methods", "rows": model.flatten(dpy["consistency"])})
-        if result.get("synodic_months_per_year"):
-            blocks.append({"title": "Synodic months per year",
-                           "rows": model.flatten(result["synodic_months_per_year"])})
-        if result.get("earth_moon_distance"):
-            blocks.append({"title": "Earth–Moon distance", "rows": model.flatten(result["earth_moon_distance"])})
+    versions = [(k, str(v)) for k, v in (prov.get("versions") or {}).items()]
+    try:
+        from importlib import metadata
+        versions.append(("weasyprint (typesetting)", metadata.version("weasyprint")))
+    except Exception:  # noqa: BLE001 - the version line is informative only
+        pass
     age = sp.get("age_ma")
     return {
         "specimen_id": str(sp.get("id") or getattr(getattr(state, "specimen", None), "specimen_id", "") or "unnamed"),
         "formation": sp.get("formation"), "locality": sp.get("locality"), "horizon": sp.get("horizon"),
-        "age": None if age is None else f"{model.fmt(age)} Ma" + (
-            f" ± {model.fmt(sp['age_err_ma'])} Ma" if sp.get("age_err_ma") is not None else ""),
+        "age": None if age is None else f"{content.fmt_sig(age, 4)} Ma" + (
+            f" ± {content.fmt_sig(sp['age_err_ma'], 2)} Ma" if sp.get("age_err_ma") is not None else ""),
         "scan_name": Path(str((sp.get("scan") or {}).get("path") or "")).name,
-        "warnings": model.collect_warnings(state),
-        "significant": sig, "headline": headline,
-        "p_value": model.fmt(dpy.get("p_value")),
-        "searched": model.fmt_ci(searched, "bands per cycle") if searched else "not recorded",
-        "key_results": model.key_results(result),
-        "blocks": blocks,
+        "warnings": content.warnings_list(result, state),
+        "headline": content.headline(result),
+        "results": content.results_table(result, tilt),
+        "tilt": None if tilt is None else {"rows": content.tilt_rows(tilt), "n_bands": tilt.n_bands,
+                                           "source": tilt.source, "notes": tilt.notes, "n_boot": tilt.n_boot,
+                                           "figure": next((f["number"] for f in figures if f["id"] == "tilt"), None)},
+        "blocks": content.detail_sections(result),
         "figures": figures,
-        "cautions": model.CAUTIONS,
-        "assumptions": [str(a) for a in result.get("assumptions") or []],
-        "specimen_rows": model.flatten({k: v for k, v in sp.items() if k != "transforms"}),
-        "review": result.get("review") or {},
-        "review_rows": model.flatten(result.get("review") or {}),
+        "omitted": omitted or [],
+        "cautions": content.cautions(result, tilt),
+        "specimen_rows": content.specimen_rows(result),
+        "review_rows": _review_rows(result.get("review") or {}),
         "provenance": {"sha256": prov.get("input_sha256") or (sp.get("scan") or {}).get("sha256") or "—",
                        "seed": prov.get("seed"), "created": prov.get("created") or "—",
-                       "versions": model.flatten(prov.get("versions") or {}),
-                       "parameters": model.flatten(prov.get("parameters") or {}),
-                       "stages": [(k, f"{model.fmt(v)} s") for k, v in (prov.get("stage_seconds") or {}).items()]},
+                       "platform": prov.get("platform") or "—", "versions": versions,
+                       "parameters": content.parameter_rows(result),
+                       "stages": content.stage_rows(result, report_seconds)},
         "references": reference_points(),
         "schema": result.get("schema", "—"),
         "bandgeo_version": result.get("bandgeo_version", __version__),
@@ -202,35 +238,17 @@ def report_context(state: Any, figures: list[dict]) -> dict:
     }
 
 
-def _pdf_sections(ctx: dict) -> tuple[list, list]:
-    first = [("Warnings", ctx["warnings"] or ["No warnings were raised."])]
-    if ctx["significant"]:
-        h = ctx["headline"]
-        head = [f"{h['value']} {h['unit']} (95 % interval {h['ci95']}; method: {h['method']}; "
-                f"p = {h['p_value']}). A minimum: days may be missing from the record."]
-        if not h["daily_ok"]:
-            head.append(f"The daily test did not support one band per day ({h['daily_verdict']}), so bands "
-                        f"per annual cycle need not be days per year.")
-        if h.get("lod"):
-            head.append(f"Length of day {h['lod']} (95 % interval {h['lod_ci95']}).")
-    else:
-        head = [f"No significant annual cycle was found (p = {ctx['p_value']}, searched band "
-                f"{ctx['searched']}). No days-per-year estimate is given."]
-    first.append(("Days per year", head))
-    first.append(("Key results", [(r["name"], f"{r['value']}   95 %: {r['ci95']}   method: {r['method']}")
-                                  for r in ctx["key_results"]]))
-    for b in ctx["blocks"]:
-        first.append((b["title"], b["rows"]))
-    last = [("Cautions", [f"{t}. {body}" for t, body in ctx["cautions"]] + ctx["assumptions"]),
-            ("Specimen", ctx["specimen_rows"]),
-            ("Review", ctx["review_rows"] or ["The segmentation has not been reviewed."]),
-            ("Provenance", [("input SHA-256", ctx["provenance"]["sha256"]), ("seed", str(ctx["provenance"]["seed"])),
-                            ("created", ctx["provenance"]["created"])] + ctx["provenance"]["versions"]
-             + [(f"stage {k}", v) for k, v in ctx["provenance"]["stages"]] + ctx["provenance"]["parameters"]),
-            ("References", [f"[{i + 1}] {r['label'] + ': ' if r['label'] else ''}{model.fmt(r['days_per_year'])} {model.DPY_UNIT} at "
-                            f"{model.fmt(r['age_ma'])} Ma. {r['citation']}. {r['note']}"
-                            for i, r in enumerate(ctx["references"])])]
-    return first, last
+def _review_rows(review: Mapping) -> list[tuple[str, str]]:
+    if not review or not review.get("edited"):
+        return []
+    rows = [("edits", str(review.get("n_edits", 0)))]
+    if review.get("saved"):
+        rows.append(("saved", str(review["saved"])))
+    if review.get("notes"):
+        rows.append(("notes", str(review["notes"])))
+    if review.get("marked_stretches"):
+        rows.append(("stretches marked", str(len(review["marked_stretches"]))))
+    return rows
 
 
 def build_report(state: Any, folder=None, formats: Iterable[str] = FORMATS, progress=None):
@@ -246,6 +264,7 @@ def build_report(state: Any, folder=None, formats: Iterable[str] = FORMATS, prog
         done += 1
         _progress(progress, what, done, steps)
 
+    t_start = time.perf_counter()
     if "csv" in formats:
         t0 = time.perf_counter()
         from .exports import write_bands_csv, write_spectra_csv
@@ -264,65 +283,38 @@ def build_report(state: Any, folder=None, formats: Iterable[str] = FORMATS, prog
         seconds["ply"] = time.perf_counter() - t0
         tick("report: labelled_mesh.ply")
     if "html" in formats or "pdf" in formats:
-        _text_reports(state, folder, formats, paths, seconds, tick)
+        _documents(state, folder, formats, paths, seconds, tick, t_start)
     return paths, seconds
 
 
-def _text_reports(state, folder, formats, paths, seconds, tick):
-    import contextlib
-
+def _documents(state, folder, formats, paths, seconds, tick, t_start):
     import matplotlib
-    from matplotlib.backends.backend_pdf import PdfPages
 
     from .html import figure_data_uri, render_html
-    from .pdf import text_pages
 
-    specs = _figure_specs(state)
-    html_figs: list[dict] = []
-    t_out = {"html": 0.0, "pdf": 0.0, "figures": 0.0}
-    ctx = report_context(state, html_figs)
-    first, last = _pdf_sections(ctx)
-    title = f"Growth-band periodicity report: specimen {ctx['specimen_id']}"
-    with contextlib.ExitStack() as stack:
-        stack.enter_context(matplotlib.rc_context({"font.size": 9, "pdf.fonttype": 3,
-                                                   "svg.fonttype": "path"}))
-        pdf = None
-        if "pdf" in formats:
-            tmp_pdf = stack.enter_context(atomic_path(folder / "report.pdf"))
-            pdf = PdfPages(tmp_pdf, metadata={"Title": title, "Creator": f"bandgeo {__version__}"})
-            stack.callback(pdf.close)          # closed before the rename (callbacks run last-in first)
-            t0 = time.perf_counter()
-            for page in text_pages(first, title=title):
-                pdf.savefig(page)
-            t_out["pdf"] += time.perf_counter() - t0
-        tick("report: summary")
-        for fid, ftitle, caption, builder, raster in specs:
-            t0 = time.perf_counter()
-            fig = builder()
-            t_out["figures"] += time.perf_counter() - t0
-            if "html" in formats:
-                t0 = time.perf_counter()
-                html_figs.append({"id": fid, "title": ftitle, "caption": caption,
-                                  "src": figure_data_uri(fig, raster=raster)})
-                t_out["html"] += time.perf_counter() - t0
-            if pdf is not None:
-                t0 = time.perf_counter()
-                fig.suptitle(ftitle, fontsize=11, weight="bold")
-                pdf.savefig(fig, dpi=150, **({"bbox_inches": "tight", "pad_inches": 0.2} if raster else {}))
-                t_out["pdf"] += time.perf_counter() - t0
-        tick("report: figures")
-        if pdf is not None:
-            t0 = time.perf_counter()
-            for page in text_pages(last):
-                pdf.savefig(page)
-            t_out["pdf"] += time.perf_counter() - t0
-    if pdf is not None:
-        paths["report.pdf"] = folder / "report.pdf"
-    seconds["figures"] = t_out["figures"]
-    if pdf is not None:
-        seconds["pdf"] = t_out["pdf"]
+    t0 = time.perf_counter()
+    tilt = tilt_summary(state)
+    specs, omitted = figure_specs(state, tilt)
+    tick("report: content")
+    figs = []
+    with matplotlib.rc_context({"font.size": 8}):
+        for f in specs:
+            fig = f["build"]()
+            figs.append({"id": f["id"], "number": f["number"], "title": f["title"], "caption": f["caption"],
+                         "raster": f["raster"], "src": figure_data_uri(fig, raster=f["raster"], dpi=130 if f["raster"] else 150)})
+    seconds["figures"] = time.perf_counter() - t0
+    tick("report: figures")
+    t0 = time.perf_counter()
+    ctx = report_context(state, figs, omitted, tilt, report_seconds=time.perf_counter() - t_start)
+    page = render_html(ctx)
     if "html" in formats:
+        paths["report.html"] = write_text(folder / "report.html", page)
+    seconds["html"] = time.perf_counter() - t0
+    if "pdf" in formats:
+        from .pdf import write_pdf
+
         t0 = time.perf_counter()
-        paths["report.html"] = write_text(folder / "report.html", render_html(ctx))
-        seconds["html"] = t_out["html"] + time.perf_counter() - t0
+        title = f"Specimen {ctx['specimen_id']}: growth-band periodicity report"
+        paths["report.pdf"] = write_pdf(page, folder / "report.pdf", title=title)
+        seconds["pdf"] = time.perf_counter() - t0
     tick("report: done")

@@ -1,5 +1,6 @@
-"""Two-dimensional report figures: unrolled surface, series with the annual fit, periodograms,
-evolutive spectra and cycle-by-cycle counts. Every axis carries its unit; colours are colour-blind safe.
+"""Two-dimensional report figures: series with their fits, spectra against red noise, spectra in
+sliding windows, cycle-by-cycle counts and the plan view of the growth direction. Every axis carries its
+unit; colours are colour-blind safe (Okabe & Ito 2008; cividis for images and sequences).
 
 Each function takes plain arrays (or the normalised dicts of :mod:`bandgeo.report.spectra`) and returns a
 ``matplotlib.figure.Figure`` built without pyplot, so nothing needs a display.
@@ -12,118 +13,8 @@ from matplotlib.figure import Figure
 from matplotlib.ticker import MaxNLocator
 
 from .palette import IMAGE_CMAP, LINE
-from .unroll import boundary_trace
 
 _OUTLINE = [patheffects.withStroke(linewidth=2.2, foreground="black")]
-
-
-def _message_figure(text: str, figsize=(8.0, 1.6)) -> Figure:
-    fig = Figure(figsize=figsize)
-    fig.text(0.5, 0.5, text, ha="center", va="center", fontsize=11, wrap=True)
-    return fig
-
-
-def _ordinal(n: int) -> str:
-    suffix = "th" if 10 <= n % 100 <= 20 else {1: "st", 2: "nd", 3: "rd"}.get(n % 10, "th")
-    return f"{n}{suffix}"
-
-
-def _relief_panel(ax, fig, image, s_edges, az_edges, label=True):
-    # colour limits from the middle 90 % of the height, so end caps and domes do not set the scale
-    rows = slice(int(0.05 * image.shape[0]), max(int(0.95 * image.shape[0]), 1))
-    finite = image[rows][np.isfinite(image[rows])]
-    lim = float(np.percentile(np.abs(finite), 98)) if finite.size else 1.0
-    lim = lim if lim > 0 else 1.0
-    mesh = ax.pcolormesh(az_edges, s_edges, np.ma.masked_invalid(image), cmap=IMAGE_CMAP,
-                         vmin=-lim, vmax=lim, shading="flat", rasterized=True)
-    cb = fig.colorbar(mesh, ax=ax, shrink=0.85, pad=0.01, location="bottom", aspect=30)
-    cb.set_label("relief (radius minus its smooth trend), mm", fontsize=8)
-    cb.ax.xaxis.set_major_locator(MaxNLocator(5))
-    cb.ax.tick_params(labelsize=7)
-    ax.set_xlim(0, 360)
-    ax.set_ylim(s_edges[0], s_edges[-1])
-    ax.set_xticks(np.arange(0, 361, 90))
-    ax.set_xlabel("azimuth, degrees clockwise from north", fontsize=8)
-    if label:
-        ax.set_ylabel("height along the axis, mm")
-
-
-def _draw_boundaries(ax, boundaries, axis, radius_mm):
-    az = np.linspace(0.0, 360.0, 91)
-    for b in boundaries:
-        h = boundary_trace(b, axis, radius_mm, az)
-        review = getattr(b, "origin", "auto") == "review"
-        ax.plot(az, h, color="white", lw=0.9, ls="--" if review else "-", path_effects=_OUTLINE,
-                alpha=0.6 + 0.4 * float(np.clip(getattr(b, "confidence", 1.0), 0, 1)))
-
-
-def unrolled_figure(s_mm, azimuth_deg, radius_mm, boundaries, axis, flagged=(), smooth_mm=None,
-                    max_drawn=60, zoom_bands=30):
-    """Relief of the side surface (azimuth × height along the axis) with the detected boundaries.
-
-    The left panel shows the whole column with at most ``max_drawn`` boundaries (every k-th when
-    there are more, as its title says); the right panel zooms on ``zoom_bands`` bands in the middle
-    of the record and draws every boundary there.
-
-    Parameters
-    ----------
-    s_mm, azimuth_deg, radius_mm : (n,) float
-        From :func:`bandgeo.report.unroll.unroll_vertices`.
-    boundaries : list of Boundary
-        Drawn as the curve where each boundary plane meets the mean cylinder; dashed when added or
-        moved in review, fainter when less confident.
-    flagged : list of (s0_mm, s1_mm, reason)
-        Stretches the segmentation flagged, marked at the right margin.
-    """
-    from .unroll import relief_image
-
-    radius = float(np.median(radius_mm))
-    side = radius_mm > 0.6 * radius             # drop the end caps (discs across the axis)
-    s_mm, azimuth_deg, radius_mm = s_mm[side], azimuth_deg[side], radius_mm[side]
-    fig = Figure(figsize=(8.0, 7.8), layout="constrained")
-    ax, zx = fig.subplots(1, 2, gridspec_kw={"width_ratios": [1.6, 1.0]})
-    image, se, ae = relief_image(s_mm, azimuth_deg, radius_mm, smooth_mm=smooth_mm)
-    _relief_panel(ax, fig, image, se, ae)
-    step = max(1, int(np.ceil(len(boundaries) / max_drawn)))
-    _draw_boundaries(ax, boundaries[::step], axis, radius)
-    reasons = list(dict.fromkeys(str(f[2]) for f in flagged))
-    colours = [LINE["fit"], LINE["level99"], LINE["level95"], LINE["background"]]
-    for s0, s1, reason in flagged:
-        k = reasons.index(str(reason))
-        ax.axhspan(float(s0), float(s1), xmin=0.97, xmax=1.0, color=colours[k % len(colours)], lw=0)
-    if reasons:
-        from matplotlib.patches import Patch
-
-        ax.legend(handles=[Patch(color=colours[k % len(colours)], label=r) for k, r in enumerate(reasons)],
-                  title="flagged stretches (right margin)", title_fontsize=7, fontsize=7,
-                  loc="upper center", bbox_to_anchor=(0.5, -0.2), frameon=False)
-    drawn = "all" if step == 1 else f"every {_ordinal(step)} of {len(boundaries)}"
-    ax.set_title(f"whole column: {drawn} boundaries drawn\n(solid: automatic, dashed: reviewed)",
-                 fontsize=8)
-    if len(boundaries) >= 2:
-        heights = np.array([b.height_mm for b in boundaries], float)
-        span = float(np.ptp(s_mm))
-        # mean vertex spacing for isotropic sampling: the zoom never goes finer than ~20 samples
-        spacing = np.sqrt(span * 2 * np.pi * radius / max(len(s_mm), 1))
-        mid = 0.5 * (heights[len(heights) // 2] + heights[(len(heights) - 1) // 2])
-        typical = float(np.median(np.diff(heights))) if len(heights) > 2 else span / 10
-        half = max(0.5 * zoom_bands * typical, 10.0 * spacing)
-        z0, z1 = mid - half, mid + half
-        inside = [b for b in boundaries if z0 <= b.height_mm <= z1]
-        keep = (s_mm >= z0) & (s_mm <= z1)
-        if keep.sum() > 100 and inside:
-            zimg, zse, zae = relief_image(s_mm[keep], azimuth_deg[keep], radius_mm[keep], smooth_mm=smooth_mm)
-            _relief_panel(zx, fig, zimg, zse, zae, label=False)
-            zstep = max(1, int(np.ceil(len(inside) / max_drawn)))
-            _draw_boundaries(zx, inside[::zstep], axis, radius)
-            what = "all drawn" if zstep == 1 else f"every {_ordinal(zstep)} drawn"
-            zx.set_title(f"zoom: boundaries {inside[0].id}-{inside[-1].id}, {what}\n"
-                         f"({z0:.1f}-{z1:.1f} mm along the axis)", fontsize=8)
-            zx.set_ylim(z0, z1)
-            ax.axhspan(z0, z1, xmin=0.0, xmax=0.03, color=LINE["search"], alpha=0.9)
-            return fig
-    zx.set_axis_off()
-    return fig
 
 
 def sinusoid_fit(x, y, period):
@@ -146,37 +37,49 @@ def sinusoid_fit(x, y, period):
     return fitted, float(np.hypot(coef[2], coef[3]))
 
 
-def series_figure(series, period_bands=None):
-    """Thickness and tilt against band number, with the annual fit when one was found.
+def series_figure(series, period_bands=None, sway_azimuth_deg=None):
+    """Thickness and tilt against band number, with the fits that suit each series.
 
-    ``period_bands`` is the estimated annual period in bands; ``None`` (no significant cycle) draws
-    the data alone.
+    Thickness and the tilt in the sway plane (a signed angle) get a least-squares sinusoid at the annual
+    period with a linear trend. The inclination is the tilt's size, never negative: when the column swings
+    through upright it cycles twice a year, so it gets no annual sinusoid, only a running mean over a
+    tenth of a year (or 15 bands) to guide the eye.
     """
-    panels = [("thickness_mm", "band thickness, mm")]
-    for attr, label in (("inclination_deg", "inclination of growth direction, degrees"),
-                        ("sway_deg", "tilt in the sway plane, degrees")):
-        if getattr(series, attr, None) is not None:
-            panels.append((attr, label))
+    panels = [("thickness_mm", "band thickness, mm", "sine")]
+    if getattr(series, "sway_deg", None) is not None:
+        where = "" if sway_azimuth_deg is None else f" (azimuth {sway_azimuth_deg:.0f}°)"
+        panels.append(("sway_deg", f"tilt in the sway plane{where}, degrees", "sine"))
+    if getattr(series, "inclination_deg", None) is not None:
+        panels.append(("inclination_deg", "inclination from upright, degrees", "mean"))
     x = np.asarray(series.band_number, float)
     hiatus = np.asarray(getattr(series, "hiatus_flags", None) if getattr(series, "hiatus_flags", None)
                         is not None else np.zeros(len(x), bool), bool)
-    fig = Figure(figsize=(8.0, 2.3 * len(panels) + 0.6), layout="constrained")
+    fig = Figure(figsize=(7.2, 1.9 * len(panels) + 0.7), layout="constrained")
     axes = fig.subplots(len(panels), 1, sharex=True, squeeze=False)[:, 0]
-    for ax, (attr, label) in zip(axes, panels):
+    unit = {"thickness_mm": "mm", "sway_deg": "°", "inclination_deg": "°"}
+    for ax, (attr, label, kind) in zip(axes, panels):
         y = np.asarray(getattr(series, attr), float)
-        ax.plot(x, y, color=LINE["data"], lw=0.7, label="measured")
-        if hiatus.any():
-            ax.plot(x[hiatus], y[hiatus], "v", color=LINE["hiatus"], ms=4, label="possible hiatus")
-        if period_bands and np.isfinite(period_bands) and np.isfinite(y).sum() > 8:
+        ax.plot(x, y, color=LINE["data"], lw=0.5, label="measured, one point per band")
+        if hiatus.any() and hiatus.size == y.size:
+            ax.plot(x[hiatus], y[hiatus], "v", color=LINE["hiatus"], ms=4, label="possible hiatus after this band")
+        if kind == "sine" and period_bands and np.isfinite(period_bands) and np.isfinite(y).sum() > 8:
             fitted, amp = sinusoid_fit(x, y, period_bands)
+            amp_text = f"{amp:.3f} mm" if unit[attr] == "mm" else f"{amp:.2f}°"
             ax.plot(x, fitted, color=LINE["fit"], lw=1.4,
-                    label=f"annual fit, period {period_bands:.1f} bands, amplitude {amp:.3g}")
-        ax.set_ylabel(label, fontsize=8)
-        ax.legend(fontsize=7, loc="best", framealpha=0.85)
+                    label=f"annual sinusoid + trend: period {period_bands:.0f} bands, amplitude {amp_text}")
+        elif kind == "mean" and np.isfinite(y).sum() > 8:
+            win = int(max(15, round(period_bands / 10))) if period_bands and np.isfinite(period_bands) else 15
+            kernel = np.ones(win) / win
+            ok = np.isfinite(y)
+            num = np.convolve(np.where(ok, y, 0.0), kernel, mode="same")
+            den = np.convolve(ok.astype(float), kernel, mode="same")
+            with np.errstate(invalid="ignore", divide="ignore"):
+                ax.plot(x, num / den, color=LINE["reference"], lw=1.3, label=f"running mean over {win} bands")
+        ax.set_ylabel(label, fontsize=7.5)
+        ax.tick_params(labelsize=7)
+        ax.legend(fontsize=6.5, loc="upper right", framealpha=0.85)
         ax.grid(alpha=0.25)
-    axes[-1].set_xlabel("band number (counted from the base)")
-    axes[0].set_title("annual fit drawn at the estimated period" if period_bands else
-                      "no significant annual cycle: no fit drawn", fontsize=9)
+    axes[-1].set_xlabel("band number (0 = lowest band)", fontsize=8)
     return fig
 
 
@@ -211,9 +114,7 @@ def periodogram_figure(spectra, searched=None, estimate_frequency=None):
     estimate_frequency : float or None
         Frequency of the accepted annual peak, cycles per band; marked when given.
     """
-    if not spectra:
-        return _message_figure("No spectra were saved with this result.")
-    fig = Figure(figsize=(8.0, 2.8 * len(spectra) + 0.4), layout="constrained")
+    fig = Figure(figsize=(7.2, 2.5 * len(spectra) + 0.8), layout="constrained")
     axes = fig.subplots(len(spectra), 1, squeeze=False)[:, 0]
     for ax, (name, spec) in zip(axes, spectra.items()):
         f, p = spec["frequency"], spec["power"]
@@ -221,31 +122,38 @@ def periodogram_figure(spectra, searched=None, estimate_frequency=None):
         if searched is not None and all(np.isfinite(searched)) and min(searched) > 0:
             f_lo, f_hi = 1.0 / max(searched), 1.0 / min(searched)
             ax.axvspan(f_lo, f_hi, color=LINE["search"], alpha=0.18, lw=0,
-                       label=f"searched band: {min(searched):.0f}-{max(searched):.0f} bands per cycle")
-        ax.plot(*envelope(f[pos], p[pos]), color=LINE["data"], lw=0.8, label="periodogram")
+                       label=f"periods searched for a yearly cycle: {min(searched):.0f} to {max(searched):.0f} bands")
+        ax.plot(*envelope(f[pos], p[pos]), color=LINE["data"], lw=0.8, label="power of the series")
         if spec.get("multitaper") is not None:
             ax.plot(*envelope(f[pos], spec["multitaper"][pos]), color=LINE["reference"], lw=0.8, alpha=0.8,
-                    label="multitaper estimate")
-        for key, style, text in (("background", ":", "red-noise background"),
-                                 ("level95", "--", "95 % red-noise level"),
-                                 ("level99", "-.", "99 % red-noise level")):
+                    label="power, averaged over tapers")
+        for key, style, text in (("background", ":", "expected from red noise alone"),
+                                 ("level95", "--", "red noise exceeds this 5 % of the time"),
+                                 ("level99", "-.", "red noise exceeds this 1 % of the time")):
             if spec.get(key) is not None:
                 ax.plot(*envelope(f[pos], spec[key][pos], n_bins=400), ls=style, lw=1.1,
                         color=LINE[key if key != "background" else "background"], label=text)
         if estimate_frequency and np.isfinite(estimate_frequency):
             ax.axvline(estimate_frequency, color=LINE["estimate"], lw=1.0,
-                       label=f"annual peak: {1.0 / estimate_frequency:.1f} bands per cycle")
+                       label=f"yearly cycle found: {1.0 / estimate_frequency:.0f} bands")
         if np.all(p[pos] > 0):
             ax.set_yscale("log")
         ax.set_xscale("log")
         ax.set_xlim(float(np.min(f[pos])), float(np.max(f)))
-        method = f" ({spec['method']})" if spec.get("method") else ""
-        ax.set_title(f"{name} series{method}", fontsize=9)
-        ax.set_ylabel(f"power, {spec['power_unit']}", fontsize=8)
-        ax.set_xlabel("frequency, cycles per band")
+        ax.set_title(f"{name.replace('_', ' ')} series", fontsize=8.5)
+        ax.set_ylabel(f"power, {spec['power_unit']}", fontsize=7.5)
+        ax.set_xlabel("frequency, cycles per band", fontsize=8)
+        ax.tick_params(labelsize=7)
         top = ax.secondary_xaxis("top", functions=(lambda v: 1.0 / np.maximum(v, 1e-9),
                                                   lambda v: 1.0 / np.maximum(v, 1e-9)))
         top.set_xlabel("period, bands per cycle", fontsize=8)
+        from matplotlib.ticker import FixedLocator, NullLocator
+        fmin, fmax = float(np.min(f[pos])), float(np.max(f))
+        periods = [p_ for p_ in (2, 3, 5, 10, 20, 50, 100, 200, 500, 1000, 2000, 5000, 10000)
+                   if fmin <= 1.0 / p_ <= fmax]
+        top.xaxis.set_major_locator(FixedLocator(periods))
+        top.xaxis.set_minor_locator(NullLocator())
+        top.xaxis.set_major_formatter(lambda v, _pos: f"{v:g}")
         top.tick_params(labelsize=7)
         ax.grid(alpha=0.25)
     handles, labels = {}, []
@@ -259,14 +167,11 @@ def periodogram_figure(spectra, searched=None, estimate_frequency=None):
 
 
 def evolutive_figure(evolutive, searched=None):
-    """Sliding-window spectra: window centre (band number) × frequency, power as an image (log scales)."""
+    """Spectrum in sliding windows: window centre (band number) × period, power as an image (log scales)."""
     from matplotlib.colors import LogNorm
 
     usable = [ev for ev in evolutive if len(ev["centre"]) >= 3]
-    if not usable:
-        return _message_figure("Evolutive spectrum: the record holds fewer than three windows of the "
-                               "needed length, so persistence through the record is not shown.")
-    fig = Figure(figsize=(8.0, 3.4 * len(usable) + 0.4), layout="constrained")
+    fig = Figure(figsize=(7.2, 2.8 * len(usable) + 0.4), layout="constrained")
     axes = fig.subplots(len(usable), 1, squeeze=False)[:, 0]
     for ax, ev in zip(axes, usable):
         f = np.asarray(ev["frequency"], float)
@@ -282,28 +187,27 @@ def evolutive_figure(evolutive, searched=None):
             for b in searched:
                 ax.axhline(1.0 / b, color="white", lw=0.9, ls="--", path_effects=_OUTLINE)
         ax.set_yscale("log")
-        ax.set_xlabel("window centre, band number")
-        ax.set_ylabel("frequency, cycles per band")
-        ax.set_title(f"{ev['name']} series (dashed: limits of the searched band)", fontsize=9)
+        ax.set_xlabel("centre of the window, band number", fontsize=8)
+        ax.set_ylabel("frequency, cycles per band", fontsize=8)
+        ax.tick_params(labelsize=7)
+        ax.set_title(f"{ev['name']} series (dashed: limits of the periods searched)", fontsize=8.5)
     return fig
 
 
-def counts_figure(counts, estimate=None, empty_message="No cycle-by-cycle counts: no significant annual cycle."):
+def counts_figure(counts, estimate=None):
     """Bands counted in each successive annual cycle (a dot per cycle), with the mean and the estimate.
 
     Dots rather than bars, because the value axis does not start at zero.
     """
     counts = np.asarray([c for c in counts if c is not None], float)
-    if counts.size == 0:
-        return _message_figure(empty_message)
-    fig = Figure(figsize=(8.0, 3.2), layout="constrained")
+    fig = Figure(figsize=(7.2, 2.6), layout="constrained")
     ax = fig.add_subplot(1, 1, 1)
     idx = np.arange(1, len(counts) + 1)
     ax.plot(idx, counts, "o-", color=LINE["data"], lw=0.8, ms=5, label="bands in the cycle")
     ax.axhline(np.mean(counts), color=LINE["background"], ls="--", lw=1,
-               label=f"mean {np.mean(counts):.1f} bands per cycle")
+               label=f"mean {np.mean(counts):.0f} bands per cycle")
     if estimate is not None and np.isfinite(estimate):
-        ax.axhline(estimate, color=LINE["estimate"], lw=1.3, label=f"estimate {estimate:.1f}")
+        ax.axhline(estimate, color=LINE["estimate"], lw=1.3, label=f"this route's estimate {estimate:.0f}")
     ax.set_xlabel("annual cycle number, from the base")
     if len(counts) <= 25:
         ax.set_xticks(idx)
@@ -311,7 +215,71 @@ def counts_figure(counts, estimate=None, empty_message="No cycle-by-cycle counts
         ax.xaxis.set_major_locator(MaxNLocator(integer=True))
     ax.set_xlim(0.5, len(counts) + 0.5)
     ax.set_ylabel("bands per cycle")
-    ax.set_title("each count is a minimum: missing days leave no band", fontsize=9)
+    ax.set_title("each count is a minimum: missing days leave no band", fontsize=8.5)
     ax.legend(fontsize=7, framealpha=0.85, loc="best")
     ax.grid(alpha=0.25)
+    return fig
+
+
+def plan_view_figure(east_deg, north_deg, sway_azimuth_deg=None, mean_lean=None, north_known=True,
+                     period_bands=None):
+    """Plan view of the growth direction through the sequence, coloured by band number.
+
+    Each point is one band's tilt vector (inclination x (sin azimuth, cos azimuth), degrees), as seen
+    from above; the line through the mean is the sway plane and the arrow from upright the mean lean.
+    Colours run along cividis (readable with colour-vision deficiency) from the lowest band to the top.
+    """
+    from matplotlib.colors import Normalize
+
+    e, n = np.asarray(east_deg, float), np.asarray(north_deg, float)
+    k = np.arange(len(e))
+    fig = Figure(figsize=(7.2, 3.9), layout="constrained")
+    ax, bx = fig.subplots(1, 2, gridspec_kw={"width_ratios": [1.0, 1.25]})
+    norm = Normalize(0, max(len(e) - 1, 1))
+    sc = ax.scatter(e, n, c=k, cmap=IMAGE_CMAP, norm=norm, s=4, lw=0, rasterized=True)
+    win = int(max(5, round(period_bands / 12))) if period_bands else 9
+    if len(e) > 3 * win:
+        kern = np.ones(win) / win
+        es, ns = np.convolve(e, kern, "valid"), np.convolve(n, kern, "valid")
+        ax.plot(es, ns, color="black", lw=0.6, alpha=0.6, label=f"running mean over {win} bands")
+    lim = float(np.nanpercentile(np.hypot(e, n), 99.5)) * 1.1 or 1.0
+    if sway_azimuth_deg is not None:
+        a = np.radians(sway_azimuth_deg)
+        me, mn = float(np.mean(e)), float(np.mean(n))
+        t = np.array([-2 * lim, 2 * lim])
+        ax.plot(me + t * np.sin(a), mn + t * np.cos(a), color=LINE["fit"], lw=1.2, ls="--",
+                label=f"sway plane, azimuth {sway_azimuth_deg:.0f}°")
+    if mean_lean is not None:
+        ax.annotate("", xy=(float(np.mean(e)), float(np.mean(n))), xytext=(0, 0),
+                    arrowprops={"arrowstyle": "->", "color": LINE["reference"], "lw": 1.6})
+        ax.plot([], [], color=LINE["reference"], lw=1.6, label=f"mean lean {mean_lean:.1f}° from upright")
+    ax.plot(0, 0, "+", color="black", ms=8)
+    ax.set_xlim(-lim, lim)
+    ax.set_ylim(-lim, lim)
+    ax.set_aspect("equal")
+    east, north = ("toward east", "toward north") if north_known else ("toward +x", "toward +y (arbitrary)")
+    ax.set_xlabel(f"tilt {east}, degrees", fontsize=8)
+    ax.set_ylabel(f"tilt {north}, degrees", fontsize=8)
+    ax.tick_params(labelsize=7)
+    ax.grid(alpha=0.25)
+    ax.legend(fontsize=6.5, loc="lower left", framealpha=0.85)
+    ax.set_title("seen from above (+: upright)", fontsize=8.5)
+    cb = fig.colorbar(sc, ax=ax, shrink=0.8, pad=0.02)
+    cb.set_label("band number (0 = lowest)", fontsize=7)
+    cb.ax.tick_params(labelsize=6)
+    # the same vectors against band number, in the sway plane and across it
+    if sway_azimuth_deg is not None:
+        a = np.radians(sway_azimuth_deg)
+        along = e * np.sin(a) + n * np.cos(a)
+        across = e * np.cos(a) - n * np.sin(a)
+        bx.plot(k, along, color=LINE["data"], lw=0.5, label="in the sway plane")
+        bx.plot(k, across, color=LINE["level95"], lw=0.5, label="across the sway plane")
+        bx.legend(fontsize=6.5, loc="upper right", framealpha=0.85)
+        bx.set_ylabel("tilt, degrees", fontsize=8)
+        bx.set_xlabel("band number (0 = lowest band)", fontsize=8)
+        bx.tick_params(labelsize=7)
+        bx.grid(alpha=0.25)
+        bx.set_title("tilt components through the sequence", fontsize=8.5)
+    else:
+        bx.set_visible(False)
     return fig

@@ -1,5 +1,5 @@
 """Self-contained HTML: the template in ``templates/report.html.j2`` with every figure inlined as a
-data URI (SVG for line figures, PNG for the mesh views), no external scripts, styles or fonts."""
+data URI (SVG for plots, PNG for the mesh views), no external scripts, styles or fonts."""
 from __future__ import annotations
 
 import base64
@@ -20,7 +20,7 @@ def _env() -> jinja2.Environment:
 
 
 def figure_data_uri(fig, raster: bool = False, dpi: int = 110) -> str:
-    """Encode a matplotlib figure as a ``data:`` URI (SVG with text as paths, or PNG)."""
+    """Encode a matplotlib figure as a ``data:`` URI (SVG with text as text, or PNG)."""
     buf = io.BytesIO()
     if raster:
         fig.savefig(buf, format="png", dpi=dpi, bbox_inches="tight", pad_inches=0.08)
@@ -28,8 +28,10 @@ def figure_data_uri(fig, raster: bool = False, dpi: int = 110) -> str:
     else:
         import matplotlib
 
-        with matplotlib.rc_context({"svg.fonttype": "path", "svg.hashsalt": "bandgeo"}):
-            fig.savefig(buf, format="svg")
+        # text stays text (smaller files, quicker to typeset, selectable in the PDF); fonts are DejaVu,
+        # matplotlib's default, which the page's CSS names too
+        with matplotlib.rc_context({"svg.fonttype": "none", "svg.hashsalt": "bandgeo", "font.family": "DejaVu Sans"}):
+            fig.savefig(buf, format="svg", dpi=dpi)
         mime = "image/svg+xml"
     return f"data:{mime};base64,{base64.b64encode(buf.getvalue()).decode('ascii')}"
 
