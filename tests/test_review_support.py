@@ -124,3 +124,73 @@ def make_real_folder(folder, n_bounds=12, spacing=1.5, specimen_id="KRB-31"):
                        resolution={"flagged": []}).with_boundaries(bounds, specimen)
     seg.save(folder)
     return folder, seg, specimen
+
+
+def make_long_folder(folder, n_bands=1100, days_per_year=365.0, radius=3.0, n_az=32, seed=41):
+    """A long invented record (KRB-41, Karrabin Formation scenario) for the review page at scale: a
+    column whose band thicknesses follow an annual cycle of ``days_per_year`` bands, with a groove at
+    every boundary, oriented by ``bandgeo.scan.prepare`` and given a segmentation built directly (no
+    segmenter run): one boundary per groove, confidences drawn so that about a quarter are low, and a
+    few flagged stretches. ``bandgeo.pipeline.rerun`` then writes the first result.
+
+    Returns the folder."""
+    import trimesh
+
+    from bandgeo import pipeline
+    from bandgeo.scan import load_scan, prepare
+    from bandgeo.segment import Boundary, Centreline, Segmentation
+    from bandgeo.state import save_specimen
+
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    rng = np.random.default_rng(seed)
+    k = np.arange(n_bands)
+    thick = 0.15 * (1 + 0.3 * np.sin(2 * np.pi * k / days_per_year)) * (1 + 0.08 * rng.standard_normal(n_bands))
+    bounds_z = 0.5 + np.concatenate([[0.0], np.cumsum(thick)])              # n_bands + 1 boundaries
+    # four rings a band, the first on the boundary (the groove), plus a plain ring below and above
+    z = np.concatenate([[0.0], (bounds_z[:-1, None] + thick[:, None] * np.array([0, .25, .5, .75])).ravel(),
+                        [bounds_z[-1], bounds_z[-1] + 0.5]])
+    groove = np.zeros(z.size, bool)
+    groove[1:-2:4] = True
+    groove[-2] = True
+    az = np.linspace(0, 2 * np.pi, n_az, endpoint=False)
+    A, Z = np.meshgrid(az, z)
+    R = np.where(groove[:, None], radius - 0.03, radius) + 0.01 * np.sin(3 * A)
+    v = np.stack([R * np.sin(A), R * np.cos(A), Z], -1).reshape(-1, 3)
+    i = np.arange(z.size - 1)[:, None] * n_az
+    j = np.arange(n_az)[None, :]
+    a, b = i + j, i + (j + 1) % n_az
+    faces = np.concatenate([np.stack([a, b + n_az, b], -1).reshape(-1, 3),
+                            np.stack([a, a + n_az, b + n_az], -1).reshape(-1, 3)])
+    # close the ends so the scan is a solid
+    base = len(v)
+    v = np.vstack([v, [[0, 0, z[0]], [0, 0, z[-1]]]])
+    top0 = (z.size - 1) * n_az
+    caps = [[base, (q + 1) % n_az, q] for q in range(n_az)] + \
+           [[base + 1, top0 + q, top0 + (q + 1) % n_az] for q in range(n_az)]
+    faces = np.vstack([faces, caps])
+    scan_path = folder.parent / f"{folder.name}.ply"
+    trimesh.Trimesh(v, faces, process=False).export(scan_path)
+    specimen = prepare(load_scan(scan_path), units="mm", up=np.array([0.0, 0.0, 1.0]))
+    m = np.asarray(specimen.scan_to_specimen, float)
+    centre = (m @ np.array([0.0, 0.0, 0.0, 1.0]))[:3]
+    up = m[:3, :3] @ np.array([0.0, 0.0, 1.0])
+    up /= np.linalg.norm(up)
+    hz = np.linspace(0.0, z[-1], 400)
+    pts = centre[None, :] + hz[:, None] * up[None, :]
+    axis = Centreline(hz, pts, np.tile(up, (hz.size, 1)))
+    conf = np.clip(rng.beta(5, 2, bounds_z.size), 0.05, 0.99)
+    bounds = [Boundary(int(n), float(h), centre + h * up, up, 0.01, float(np.clip(c + 0.1, 0, 1)), float(c), "auto")
+              for n, (h, c) in enumerate(zip(bounds_z, conf))]
+    flagged = [[float(bounds_z[s]), float(bounds_z[s + 3]), "faint relief"] for s in range(40, n_bands - 5, 180)]
+    n = len(specimen.vertices_mm)
+    seg = Segmentation(bounds, axis, np.zeros(n, np.int8), ["flank"], np.zeros(n, np.int32),
+                       resolution={"flagged": flagged, "band_spacing_mm": float(np.median(thick))})
+    seg = seg.with_boundaries(bounds, specimen)
+    seg.save(folder)
+    save_specimen(folder, specimen)
+    write_json(folder / "result.json", {"schema": "bandgeo.result/1",
+                                        "provenance": {"parameters": {"n_sim": 99, "seed": seed},
+                                                       "stage_seconds": {}}})
+    pipeline.rerun(folder, report=False)
+    return folder

@@ -26,14 +26,40 @@ from .pagestate import result_summary
 from .store import REVIEW_FILE, clean_temp_files, inside, read_review, save_review
 
 
-def _default_rerun(folder, progress=None):
-    from ..pipeline import rerun
+class PipelineRerun:
+    """The pipeline's re-run of what a review edit changes (measurement, series, periodicity, report).
 
-    try:
-        accepts = "progress" in inspect.signature(rerun).parameters
-    except (TypeError, ValueError):
-        accepts = False
-    return rerun(folder, progress=progress) if accepts else rerun(folder)
+    Uses ``bandgeo.pipeline.Rerunner`` when the pipeline has it, which reads the specimen, the automatic
+    segmentation and the run parameters once and keeps them in memory for every later save; otherwise
+    ``bandgeo.pipeline.rerun(folder)``.
+    """
+
+    def __init__(self, report: bool = True):
+        self.report = report
+        self._runner = None
+        self._lock = threading.Lock()
+
+    def warm(self, folder) -> None:
+        """Load the inputs ahead of the first save (called from a background thread)."""
+        from .. import pipeline
+
+        with self._lock:
+            if self._runner is None and hasattr(pipeline, "Rerunner"):
+                self._runner = pipeline.Rerunner(folder)
+
+    def __call__(self, folder, progress=None):
+        from .. import pipeline
+
+        if hasattr(pipeline, "Rerunner"):
+            self.warm(folder)
+            return self._runner(report=self.report, progress=progress)
+        kwargs = {"report": self.report}
+        if _takes_progress(pipeline.rerun):
+            kwargs["progress"] = progress
+        return pipeline.rerun(folder, **kwargs)
+
+
+_default_rerun = PipelineRerun()  # kept for callers of the old name
 
 
 def _takes_progress(fn) -> bool:
@@ -50,7 +76,7 @@ class ReviewApp:
     def __init__(self, folder, token, rerun=None, segmentation=None):
         self.folder = Path(folder)
         self.token = token
-        self.rerun = rerun or _default_rerun
+        self.rerun = rerun or PipelineRerun()
         self.removed_temp = clean_temp_files(self.folder)
         self.data = FolderData(self.folder, segmentation=segmentation)
         base = [(b.id, b.height_mm) for b in self.data.segmentation.boundaries]

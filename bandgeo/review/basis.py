@@ -123,3 +123,13 @@ def _close(a, b) -> bool:
         return math.isclose(float(a), float(b), rel_tol=1e-9)
     except (TypeError, ValueError):
         return False
+
+
+def check_review(review: dict, specimen, segmentation) -> list:
+    """``check_fit`` against an in-memory specimen (``bandgeo.scan.Specimen``) and its *automatic*
+    segmentation: for the pipeline, before it replays a review. Empty list: the review fits."""
+    meta = {name: getattr(specimen, name, None)
+            for name in ("scan_sha256", "scan_path", "specimen_id", "units", "mm_per_unit")}
+    matrix = getattr(specimen, "scan_to_specimen", None)
+    meta["scan_to_specimen"] = None if matrix is None else np.asarray(matrix, float).tolist()
+    return check_fit(review, basis_of(meta, segmentation))

@@ -453,7 +453,8 @@ def serve(folder, host="127.0.0.1", port=0, open_browser=True, token=None, *, re
                                      name="bandgeo-review-http", daemon=True)
     server.thread.start()
     # Prepare the heavy page data (decimated mesh, unrolled surface) while the browser starts.
-    threading.Thread(target=_warm, args=(app.data,), name="bandgeo-review-warm", daemon=True).start()
+    threading.Thread(target=_warm, args=(app.data, app.rerun, app.folder), name="bandgeo-review-warm",
+                     daemon=True).start()
     if open_browser:
         import webbrowser
 
@@ -461,11 +462,13 @@ def serve(folder, host="127.0.0.1", port=0, open_browser=True, token=None, *, re
     return server
 
 
-def _warm(data) -> None:
+def _warm(data, rerun=None, folder=None) -> None:
     try:
         data.surface_payload()
         data.mesh_payload()
-    except Exception:  # the request that needs it reports the error
+        if hasattr(rerun, "warm"):
+            rerun.warm(folder)  # the re-run's inputs, so that the first save starts at once
+    except Exception:  # the request or save that needs it reports the error
         pass
 
 
