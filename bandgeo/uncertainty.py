@@ -29,12 +29,19 @@ Z95 = 1.959963984540054  # two-sided 95% normal quantile (scipy.stats.norm.ppf(0
 def count_uncertainty(segmentation) -> dict:
     """Relative uncertainty of the band count from boundary confidences and flagged gaps.
 
+    ``segmentation`` may also be a band table (:class:`bandgeo.measure.BandTable`, or anything with
+    per-band ``confidence`` and ``flags``): then :func:`count_uncertainty_from_bands` is used, which is
+    what ``bandgeo periodicity bands.csv`` can compute too (one set of figures per set of bands).
+
     Returns
     -------
     dict
         ``n_boundaries``, ``sd_boundaries`` (Poisson-binomial standard deviation), ``relative_sd``,
         ``possibly_missed`` (expected hidden boundaries), ``relative_missed`` and ``method``.
     """
+    if not hasattr(segmentation, "boundaries") and hasattr(segmentation, "confidence"):
+        h = getattr(segmentation, "thickness_axis_mm", None)
+        return count_uncertainty_from_bands(segmentation.confidence, getattr(segmentation, "flags", None), h)
     boundaries = list(segmentation.boundaries)
     n = len(boundaries)
     conf = np.clip(np.array([float(getattr(b, "confidence", 1.0)) for b in boundaries], float), 0.0, 1.0)
@@ -57,6 +64,45 @@ def count_uncertainty(segmentation) -> dict:
     }
 
 
+def count_uncertainty_from_bands(confidence, flags=None, thickness_mm=None) -> dict:
+    """Count uncertainty from a band table's columns (e.g. the ``confidence`` and ``flags`` columns of
+    ``bands.csv``).
+
+    Each band's confidence is taken as the probability that its top boundary is real (Poisson-binomial
+    variance ``sum c (1 - c)``); a band whose flags mention a possibly missed boundary may hide
+    ``thickness / median thickness - 1`` boundaries (upper end only).
+    """
+    conf = np.asarray(confidence, dtype=float).reshape(-1)
+    conf = np.clip(np.where(np.isfinite(conf), conf, 0.5), 0.0, 1.0)
+    n = conf.size
+    sd = float(math.sqrt(float(np.sum(conf * (1.0 - conf))))) if n else 0.0
+    missed = 0.0
+    if flags is not None and thickness_mm is not None:
+        h = np.asarray(thickness_mm, dtype=float).reshape(-1)
+        good = h[np.isfinite(h) & (h > 0)]
+        med = float(np.median(good)) if good.size else 0.0
+        for f, t in zip(flags, h):
+            if med > 0 and np.isfinite(t) and "missed" in str(f or ""):
+                missed += max(0.0, t / med - 1.0)
+    n_bands = max(n, 1)
+    return {"n_boundaries": n + 1, "sd_boundaries": sd, "relative_sd": sd / n_bands,
+            "possibly_missed": missed, "relative_missed": missed / n_bands,
+            "method": "band confidences taken as probabilities (Poisson-binomial variance) and bands "
+                      "flagged as possibly hiding a missed boundary (thickness over the median)"}
+
+
+def count_uncertainty_stated(relative_sd: float, source: str = "stated by the user") -> dict:
+    """Count uncertainty given as a relative standard deviation (e.g. 0.01 for 1%)."""
+    r = float(relative_sd)
+    if not (math.isfinite(r) and 0.0 <= r < 1.0):
+        from .errors import ParameterError
+
+        raise ParameterError(f"the count uncertainty must be a fraction in [0, 1) but got {r:g}; give e.g. "
+                             f"0.01 for 1%")
+    return {"n_boundaries": None, "sd_boundaries": None, "relative_sd": r, "possibly_missed": 0.0,
+            "relative_missed": 0.0, "method": f"relative standard deviation of the band count {source}"}
+
+
 def widen_days_per_year(block: dict, counting: dict) -> dict:
     """Return a copy of a ``days_per_year`` block with the counting uncertainty added to its interval,
     and to the interval of each method in ``block["methods"]`` (all count the same bands).
@@ -64,6 +110,8 @@ def widen_days_per_year(block: dict, counting: dict) -> dict:
     The spectral interval is kept as ``ci95_spectral``; ``ci95`` becomes the widened one.
     """
     out = _widen(block, counting)
+    if isinstance(block.get("thickness_route"), dict):
+        out["thickness_route"] = _widen(block["thickness_route"], counting)
     if isinstance(block.get("methods"), dict):
         out["methods"] = {name: _widen(m, counting) if isinstance(m, dict) else m
                           for name, m in block["methods"].items()}

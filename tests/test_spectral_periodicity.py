@@ -181,9 +181,10 @@ def test_forward_model_with_hiatuses_counts_are_minima_and_flagged():
     assert len(d["hiatus"]["flagged_bands"]) == int(rec.hiatus_after.sum())
 
 
-def test_hiatus_evidence_finds_inserted_thin_bands_only():
+def test_anomalous_bands_are_listed_but_are_not_hiatus_evidence_alone():
     # Robust z-score rule (Rousseeuw & Croux 1993 MAD scale): bands 100x thinner than their
-    # neighbours are flagged; log-normal noise alone is not.
+    # neighbours are listed; log-normal noise alone is not. Neither is evidence of missing time on its own
+    # (issue 12: a thick band more often means a missed boundary than missing days).
     from bandgeo.spectral.hiatus import hiatus_evidence
 
     rng = np.random.default_rng(16)
@@ -191,4 +192,25 @@ def test_hiatus_evidence_finds_inserted_thin_bands_only():
     assert hiatus_evidence(h, None, None, None)["evidence"] == "none"
     h[[300, 1200]] = 0.0025
     ev = hiatus_evidence(h, None, None, None)
-    assert ev["thin_bands"] == [300, 1200] and ev["positions_band"] == [300, 1200]
+    assert ev["thin_bands"] == [300, 1200]
+    assert ev["evidence"] == "none" and ev["indicators_fired"] == []
+    h[700] = 0.25 * 20
+    assert hiatus_evidence(h, None, None, None)["evidence"] == "none"
+
+
+def test_hiatus_indicators_say_which_fired():
+    # What marks missing time (Pannella 1972): flagged surfaces and truncated / cut bands.
+    from bandgeo.spectral.hiatus import hiatus_evidence
+
+    rng = np.random.default_rng(17)
+    h = 0.25 * np.exp(0.2 * rng.standard_normal(500))
+    flags = [""] * 500
+    flags[42] = "boundaries cross"
+    ev = hiatus_evidence(h, None, None, None, band_flags=flags)
+    assert ev["evidence"] == "some" and ev["indicators_fired"] == ["truncated or cut bands"]
+    assert ev["cut_bands"] == [42]
+    user = np.zeros(500, bool)
+    user[100] = True
+    ev = hiatus_evidence(h, user, None, None, band_flags=flags)
+    assert ev["evidence"] == "strong"
+    assert set(ev["indicators_fired"]) == {"truncated or cut bands", "user-flagged surfaces"}

@@ -15,6 +15,7 @@ near 1 / mean spacing.
 
 References
 ----------
+Ljung, G. M. & Box, G. E. P. (1978) Biometrika 65:297-303 (portmanteau statistic).
 Cox, D. R. & Lewis, P. A. W. (1966) The Statistical Analysis of Series of Events, Methuen, ch. 5 (spectrum
 of a point process; Poisson process as the random-timing null).
 Bartlett, M. S. (1963) The spectral analysis of point processes. J. R. Stat. Soc. B 25:264-296.
@@ -97,8 +98,18 @@ def daily_test(thickness_mm: np.ndarray, rng: np.random.Generator, n_sim: int = 
     p = float((1 + np.count_nonzero(null_sharp >= sharp)) / (n_sim + 1))
     p_cv = float((1 + np.count_nonzero(null_cv <= cv)) / (n_sim + 1))
     regular = p < 0.05 and p_cv < 0.05
+    out["alternatives"] = _alternatives(h, rng, n_sim, sharp, m)
+    beats_renewal = out["alternatives"][0]["p_value"] < 0.05
+    out["can_tell_apart"] = ("random timing (Poisson layers); independent event-driven layers with the same "
+                             "mean and coefficient of variation (gamma renewal); alternating thick-thin "
+                             "couplets (two bands per day)")
+    out["cannot_tell_apart"] = ("daily increments from event-driven layers whose rate follows the season, "
+                                "or from any other regular clock (tidal, sub-daily): regularity is necessary "
+                                "for, not proof of, one band per day")
     out.update({
-        "verdict": "consistent with regular increments" if regular else "not distinguishable from random spacing",
+        "verdict": ("consistent with regular increments" if regular and beats_renewal else
+                    "more regular than random timing, but not distinguishable from independent layers with "
+                    "the same spread (gamma renewal)" if regular else "not distinguishable from random spacing"),
         "peak_sharpness": sharp, "peak_sharpness_null_95": float(np.quantile(null_sharp, 0.95)),
         "p_value": p, "cv_p_value": p_cv, "spacing_cv_null_median": float(np.median(null_cv)),
         "n_sim": int(n_sim),
@@ -107,6 +118,58 @@ def daily_test(thickness_mm: np.ndarray, rng: np.random.Generator, n_sim: int = 
     if depth_height_mm is not None and depth_relief is not None and len(depth_height_mm) >= 32:
         out["depth_profile"] = _profile_peak(np.asarray(depth_height_mm, float),
                                              np.asarray(depth_relief, float), float(np.mean(h)))
+    return out
+
+
+def _alternatives(h: np.ndarray, rng: np.random.Generator, n_sim: int, sharp: float, m: int) -> list[dict]:
+    """Tests against alternatives more meaningful than Poisson spacing.
+
+    - **gamma renewal**: independent spacings with the same mean and coefficient of variation (event-driven
+      lamination, e.g. storm or sediment pulses). Spacings of a daily clock vary slowly (the season), so
+      that in short windows they are more regular than independent spacings with the same overall spread:
+      the peak sharpness is compared with that of gamma renewal records (same windows).
+    - **serial structure**: a renewal process has independent spacings; the Ljung-Box statistic of the log
+      thickness (lags 1-10) against random permutations of the same bands (which keep their distribution
+      exactly) says whether the spacings carry structure such as a season.
+    - **sub-daily couplets**: two laminae a day alternate thick and thin, which makes the lag-1
+      autocorrelation of the log thickness strongly negative; permutation p-value of that.
+    """
+    n = h.size
+    mean, cv = float(np.mean(h)), float(np.std(h) / np.mean(h))
+    shape = 1.0 / max(cv * cv, 1e-6)
+    null_g = rng.gamma(shape, mean / shape, size=(n_sim, m))
+    sg = _sharpness(null_g)
+    p_g = float((1 + np.count_nonzero(sg >= sharp)) / (n_sim + 1))
+    x = np.log(np.maximum(h, np.finfo(float).tiny))
+    x = x - x.mean()
+    L = int(min(10, n // 5))
+
+    def acf(z):                                     # (B, n) -> (B, L) autocorrelations at lags 1..L
+        z = z - z.mean(axis=-1, keepdims=True)
+        d = (z * z).sum(axis=-1)
+        return np.stack([(z[..., k:] * z[..., :-k]).sum(axis=-1) / d for k in range(1, L + 1)], axis=-1)
+
+    perms = np.stack([rng.permutation(x) for _ in range(n_sim)])
+    r_data, r_null = acf(x[None, :])[0], acf(perms)
+    q = lambda r: n * (n + 2) * (r * r / (n - np.arange(1, L + 1))).sum(axis=-1)   # noqa: E731
+    p_q = float((1 + np.count_nonzero(q(r_null) >= q(r_data))) / (n_sim + 1))
+    p_c = float((1 + np.count_nonzero(r_null[:, 0] <= r_data[0])) / (n_sim + 1))
+    out = [
+        {"alternative": "gamma renewal (independent event-driven layers, same mean and CV)",
+         "statistic": "peak sharpness", "p_value": p_g,
+         "null_95": float(np.quantile(sg, 0.95)),
+         "conclusion": ("more regular in short stretches than independent layers with the same spread"
+                        if p_g < 0.05 else "not distinguishable from independent layers with the same spread")},
+        {"alternative": "renewal process (independent spacings of any distribution)",
+         "statistic": f"Ljung-Box Q of log thickness, lags 1-{L}, against permutations", "p_value": p_q,
+         "conclusion": ("spacings carry serial structure (e.g. a season): not independent layers"
+                        if p_q < 0.05 else "no serial structure found: independent layers not excluded")},
+        {"alternative": "sub-daily couplets (alternating thick-thin, two bands per day)",
+         "statistic": "lag-1 autocorrelation of log thickness (negative for couplets)",
+         "lag1": float(r_data[0]), "p_value": p_c,
+         "conclusion": ("alternating thick-thin bands: possibly two bands per day (couplets)"
+                        if p_c < 0.05 and r_data[0] < -0.2 else "no sign of alternating couplets")},
+    ]
     return out
 
 
