@@ -400,6 +400,9 @@ class ReviewServer(ThreadingHTTPServer):
         self.app.wait(wait_rerun)
         if self.thread is not None:
             self.thread.join(5)
+        warm = getattr(self, "warm_thread", None)
+        if warm is not None:  # let the page-data preparation finish (native code dislikes exiting mid-way)
+            warm.join(wait_rerun)
 
 
 class ReviewServer6(ReviewServer):
@@ -453,8 +456,9 @@ def serve(folder, host="127.0.0.1", port=0, open_browser=True, token=None, *, re
                                      name="bandgeo-review-http", daemon=True)
     server.thread.start()
     # Prepare the heavy page data (decimated mesh, unrolled surface) while the browser starts.
-    threading.Thread(target=_warm, args=(app.data, app.rerun, app.folder), name="bandgeo-review-warm",
-                     daemon=True).start()
+    server.warm_thread = threading.Thread(target=_warm, args=(app.data, app.rerun, app.folder),
+                                          name="bandgeo-review-warm", daemon=True)
+    server.warm_thread.start()
     if open_browser:
         import webbrowser
 

@@ -435,9 +435,25 @@ function drawLists() {
   }
   const el = $("edits"); el.replaceChildren();
   for (const e of S.edits) {
-    const li = document.createElement("li"); const { op, time_utc, seq, ...rest } = e;
-    li.textContent = `${op} ${Object.entries(rest).map(([k, v]) => `${k}=${typeof v === "number" ? +v.toFixed(4) : v}`).join(" ")} · ${time_utc || ""}`;
+    const li = document.createElement("li");
+    li.textContent = `${describeEdit(e)} · ${String(e.time_utc || "").replace("T", " ").replace("Z", " UTC")}`;
     el.append(li);
+  }
+}
+function describeEdit(e) {
+  const mm = (x) => `${fmt(x, 3)} mm`, note = e.note ? `: ${e.note}` : "";
+  switch (e.op) {
+    case "accept": return `confirmed boundary ${e.id}`;
+    case "accept_stretch": return `confirmed every boundary in ${fmt(e.s0_mm, 3)}–${mm(e.s1_mm)}`;
+    case "reject": return `removed boundary ${e.id}`;
+    case "merge": return `joined the bands either side of boundary ${e.id}`;
+    case "move": return `moved boundary ${e.id} to ${mm(e.height_mm)}`;
+    case "add": case "split": return `inserted boundary ${e.id ?? ""} at ${mm(e.height_mm)}`;
+    case "hiatus": return `gap in the record ${fmt(e.s0_mm, 3)}–${mm(e.s1_mm)}${note}`;
+    case "uncertain": return `doubtful stretch ${fmt(e.s0_mm, 3)}–${mm(e.s1_mm)}${note}`;
+    case "unmark": return `unmarked stretch ${e.mark}`;
+    case "note": return `note${e.id !== undefined ? ` on boundary ${e.id}` : ""}: ${e.text}`;
+    default: return e.op;
   }
 }
 function drawLegend() {
