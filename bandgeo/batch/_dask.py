@@ -5,7 +5,7 @@ from collections import deque
 from typing import Callable, Optional
 
 from ..errors import InputError
-from .runner import one_line_error, run_specimen
+from ._worker import one_line_error, run_specimen
 
 
 def connect(scheduler):

@@ -1,21 +1,17 @@
 """Run the whole analysis on many specimens: local processes or a Dask cluster, resumable, fault-tolerant."""
 from __future__ import annotations
 
-import contextlib
 import hashlib
 import json
 import os
-import time
-import traceback
 from pathlib import Path
 from typing import Callable, Optional, Sequence
 
-from .. import __version__
-from ..atomic import write_json
 from ..constants import DEFAULT_SEED
-from ..errors import BandgeoError, ParameterError
+from ..errors import ParameterError
 from ..progress import ProgressCallback, report
 from . import _result
+from ._worker import one_line_error, run_specimen  # noqa: F401  (public names kept here)
 from .manifest import SpecimenJob, file_sha256
 from .summary import BatchSummary, SpecimenOutcome
 
@@ -47,64 +43,6 @@ def job_key(scan_sha256: str, sheet_sha256: Optional[str], sheet_fields: dict, p
 
 def _analyzer_name(fn: Callable) -> str:
     return f"{getattr(fn, '__module__', '?')}.{getattr(fn, '__qualname__', repr(fn))}"
-
-
-def one_line_error(exc: BaseException) -> str:
-    """A user-facing one-line description of an exception raised while analysing a specimen."""
-    text = " ".join(str(exc).split())
-    if isinstance(exc, BandgeoError):
-        return text or type(exc).__name__
-    return f"{type(exc).__name__}: {text}" if text else type(exc).__name__
-
-
-@contextlib.contextmanager
-def _thread_limit(threads: Optional[int]):
-    """Limit BLAS/OpenMP threads in a worker so that workers x threads <= cores."""
-    if not threads:
-        yield
-        return
-    try:
-        from threadpoolctl import threadpool_limits
-    except ImportError:
-        yield
-        return
-    with threadpool_limits(limits=int(threads)):
-        yield
-
-
-def run_specimen(analyze_fn: Callable, task: dict) -> dict:
-    """Analyse one specimen into its folder and return a small outcome dict (runs in a worker).
-
-    Removes any stale job marker first, so that a specimen interrupted half-way is never mistaken
-    for a finished one; writes the marker (job key, sheet fields) only after ``analyze_fn`` returned
-    and ``result.json`` exists. Exceptions become ``status = "failed"`` with a one-line error;
-    ``KeyboardInterrupt`` and ``SystemExit`` propagate.
-    """
-    folder = Path(task["folder"])
-    folder.mkdir(parents=True, exist_ok=True)
-    marker = folder / _result.JOB_FILE
-    with contextlib.suppress(FileNotFoundError):
-        marker.unlink()
-    start = time.perf_counter()
-    try:
-        with _thread_limit(task.get("threads")):
-            answer = analyze_fn(task["scan_path"], folder, **task["kwargs"])
-        result = getattr(answer, "result", None)
-        if not isinstance(result, dict):
-            result = _result.read_json(folder / _result.RESULT_FILE)
-        if not (folder / _result.RESULT_FILE).is_file() or result is None:
-            raise RuntimeError("the analysis returned without writing result.json")
-    except Exception as exc:  # one specimen's failure never stops the batch
-        return {"status": "failed", "error": one_line_error(exc), "seconds": time.perf_counter() - start,
-                "traceback": traceback.format_exc(limit=8)}
-    seconds = time.perf_counter() - start
-    write_json(marker, {"schema": _result.JOB_SCHEMA, "job_key": task["job_key"],
-                        "scan_sha256": task["scan_sha256"], "specimen_id": task["specimen_id"],
-                        "scan_path": task["scan_path"], "sheet_path": task["sheet_path"],
-                        "sheet": task["sheet"], "seed": task["seed"], "params": task["params"],
-                        "analyzer": task["analyzer"], "seconds": seconds, "bandgeo_version": __version__,
-                        "finished_utc": time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime())})
-    return {"status": "done", "seconds": seconds, "digest": _result.digest(result)}
 
 
 def is_done(folder: Path, key: str, scan_sha256: str) -> Optional[dict]:

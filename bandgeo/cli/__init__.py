@@ -74,12 +74,30 @@ def _one_line(text: str) -> str:
     return " ".join(str(text).split())
 
 
+def _check_system(argv: list) -> None:
+    """Stop before any work when a system library a command needs is missing (one line naming the
+    package to install; ``bandgeo.syscheck``, when present)."""
+    if any(a in ("-h", "--help", "--version") for a in argv):
+        return
+    command = next((a for a in argv if a in COMMANDS), None)
+    if command is None:
+        return
+    try:
+        from ..syscheck import check_system_libraries
+    except ImportError:  # pragma: no cover - the check is optional
+        return
+    check_system_libraries(command)
+
+
 def main(argv=None) -> int:
     """Entry point of the console script. Returns the exit status."""
     argv = list(sys.argv[1:] if argv is None else argv)
     debug = "--debug" in argv
     try:
-        cli.main(args=argv, prog_name="bandgeo", standalone_mode=False)
+        _check_system(argv)
+        status = cli.main(args=argv, prog_name="bandgeo", standalone_mode=False)
+        if isinstance(status, int) and not isinstance(status, bool):  # a command's click Exit(code)
+            return status
     except click.exceptions.Exit as exc:
         return exc.exit_code
     except click.exceptions.Abort:

@@ -63,6 +63,27 @@ def echo(ctx, message: str) -> None:
         click.echo(message)
 
 
+def simulations_options(default: int = 1000, minimum: int = 100, maximum: int = 100000,
+                        help_text: str = "Monte Carlo replicates for significance and intervals.") -> list:
+    """``--simulations N`` (the one name across commands), with the older ``--n-sim`` kept as a hidden
+    alias. Both fill the parameter ``n_sim``; ``--simulations`` wins when both are given."""
+    kind = click.IntRange(minimum, maximum)
+
+    def remember_alias(ctx, param, value):
+        if value is not None:
+            ctx.meta["bandgeo.n_sim_alias"] = value
+
+    def resolve(ctx, param, value):
+        if value is not None:
+            return value
+        return ctx.meta.get("bandgeo.n_sim_alias", default)
+
+    return [click.option("--simulations", "n_sim", type=kind, default=None, callback=resolve,
+                         help=f"{help_text}  [default: {default}]"),
+            click.option("--n-sim", "n_sim_alias", type=kind, default=None, hidden=True, expose_value=False,
+                         callback=remember_alias, is_eager=True)]
+
+
 def analysis_options(func):
     """The options of the analysis itself, shared by ``analyze`` and ``batch``: the searched annual band,
     the Monte Carlo size and what to do with an existing review."""
@@ -71,8 +92,7 @@ def analysis_options(func):
                      help="Shortest annual period searched, in bands (default: a few bands)."),
         click.option("--max-period", "max_period", type=float, default=None,
                      help="Longest annual period searched, in bands (default: about a third of the record)."),
-        click.option("--simulations", "n_sim", type=click.IntRange(100, 100000), default=1000,
-                     show_default=True, help="Monte Carlo replicates for significance and intervals."),
+        *simulations_options(default=1000, minimum=100),
         click.option("--discard-review", is_flag=True,
                      help="Start from the automatic segmentation: an existing review.json is renamed aside."),
     ]

@@ -6,6 +6,20 @@ import click
 from ._common import analysis_options, echo, existing_path, out_dir_option, seed_option
 
 
+def interrupted_line(out, command: str = "bandgeo batch") -> str:
+    """What an interrupted batch left, read from its summary: finished, stopped and not started."""
+    from ..batch.summary import SUMMARY_JSON
+    from ..results import read_json_or_none
+
+    summary = read_json_or_none(out / SUMMARY_JSON) or {}
+    counts = summary.get("counts") or {}
+    pending = int(counts.get("pending") or 0)
+    finished = int(counts.get("done") or 0) + int(counts.get("skipped") or 0) + int(counts.get("failed") or 0)
+    return (f"bandgeo: interrupted: {finished} of {counts.get('total', '?')} specimens finished, {pending} left "
+            f"to do (the ones in progress were stopped and their folders left as before this run; "
+            f"{out / SUMMARY_JSON} lists them); run the same command again to complete the batch")
+
+
 @click.command("batch")
 @click.argument("specimens", callback=existing_path, metavar="SPECIMENS")
 @out_dir_option()
@@ -40,9 +54,13 @@ def batch(ctx, specimens, out, workers, scheduler, seed, min_period, max_period,
         ("report", not no_report, True), ("keep_review", not discard_review, True), ("n_sim", n_sim, 1000),
         ("min_period_bands", min_period, None), ("max_period_bands", max_period, None)) if value != default}
     echo(ctx, f"{len(jobs)} specimens from {specimens} -> {out}")
-    with bar("batch") as cb:
-        summary = run_batch(jobs, out, workers=workers, scheduler=scheduler, params=params, seed=seed,
-                            progress=cb)
+    try:
+        with bar("batch") as cb:
+            summary = run_batch(jobs, out, workers=workers, scheduler=scheduler, params=params, seed=seed,
+                                progress=cb)
+    except KeyboardInterrupt:
+        click.echo(interrupted_line(out, ctx.command_path), err=True)
+        raise click.exceptions.Exit(130) from None
     echo(ctx, summary.table())
     echo(ctx, f"summary: {out / 'batch_summary.json'} and {out / 'batch_summary.csv'}")
     if not no_compile and (summary.n_done + summary.n_skipped) > 0:
