@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 
 from bandgeo.constants import SEGMENTATION_SCHEMA
-from bandgeo.errors import InputError, ParameterError, ReviewError
+from bandgeo.errors import InputError, ParameterError
 from bandgeo.segment import (BandSegmenter, Boundary, Centreline, Segmentation, assign_bands,
                              fit_centreline, plane_height)
 from bandgeo.segment import repair as rp
@@ -90,9 +90,9 @@ def test_boundary_from_height_lies_across_the_local_axis():
     b = Boundary.from_height(6.0, axis, id=9)
     assert b.origin == "review" and np.allclose(b.normal, t) and np.allclose(b.center_mm, 6.0 * t)
     assert plane_height(b.center_mm, b.normal, axis) == pytest.approx(6.0)
-    with pytest.raises(ReviewError):
+    with pytest.raises(ParameterError):
         Boundary.from_height("high", axis, id=1)
-    with pytest.raises(ReviewError):
+    with pytest.raises(ParameterError):
         Boundary(id=1, height_mm=1.0, center_mm=[0, 0, 0], normal=[0, 0, 0])
 
 
@@ -171,7 +171,7 @@ def test_with_boundaries_reassigns_bands_and_keeps_the_original():
     assert np.all(new.vertex_band[(s > 4.0) & (s < 5.5)] == 1)
     assert np.all(new.vertex_band[(s > 5.5) & (s < 7.0)] == 2)
     assert np.all(new.vertex_band[s > 7.0] == -1)
-    with pytest.raises(ReviewError):
+    with pytest.raises(ParameterError):
         seg.with_boundaries([seg.boundaries[0], seg.boundaries[0]], spec)
     with pytest.raises(InputError):
         seg.with_boundaries(seg.boundaries, SimpleNamespace(vertices_mm=np.zeros((3, 3))))

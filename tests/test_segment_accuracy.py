@@ -15,7 +15,9 @@ from bandgeo.scan import Scan, prepare
 from bandgeo.segment import BandSegmenter
 from bandgeo.synth import SynthParams, simulate
 
-BASE = dict(years=0.1, radius_mm=3.0)
+# ring-aligned meshes (rings_per_lamina selects them) with the scanner noise and groove depth these
+# cases were written for; the unaligned kinds and realistic noise are in tests/test_segment_atlas.py
+BASE = dict(years=0.1, radius_mm=3.0, rings_per_lamina=4.0, scanner_noise_mm=0.004, groove_depth_mm=0.04)
 
 CASES = {
     "tilted-swaying-random-pose": dict(mean_tilt_deg=10.0, sway_amplitude_deg=5.0, pose="random", seed=11),

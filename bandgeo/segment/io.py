@@ -1,5 +1,9 @@
 """Reading and writing a segmentation: ``segmentation.json`` (schema ``bandgeo.segmentation/1``) and
-``segmentation_labels.npz`` (per-vertex class and band labels)."""
+``segmentation_labels.npz`` (per-vertex class and band labels).
+
+Plain files only: this module knows no data class (the data objects in :mod:`.model` call it), so the
+two import in one direction. ``load_segmentation`` takes the class to build as an argument.
+"""
 from __future__ import annotations
 
 import io
@@ -43,11 +47,14 @@ def save_segmentation(seg, folder) -> Path:
     return write_json(folder / JSON_NAME, doc)
 
 
-def load_segmentation(folder):
-    """Read a segmentation folder. Raises InputError with one line if anything is missing or malformed."""
-    from .axis import Centreline
-    from .model import Boundary, Segmentation
+def load_segmentation(folder, cls):
+    """Read a segmentation folder into ``cls`` (:class:`bandgeo.segment.Segmentation`).
 
+    Raises InputError with one line if anything is missing or malformed.
+    """
+    from .axis import Centreline
+
+    Boundary, Segmentation = cls.boundary_class(), cls
     folder = Path(folder)
     jpath, lpath = folder / JSON_NAME, folder / LABELS_NAME
     for p in (jpath, lpath):

@@ -7,7 +7,8 @@ from typing import Optional
 
 import numpy as np
 
-from ..errors import InputError, ReviewError
+from ..errors import InputError, ParameterError
+from . import io as _io
 from .axis import Centreline
 
 ORIGINS = ("auto", "review")
@@ -53,12 +54,12 @@ class Boundary:
         n = np.asarray(self.normal, dtype=float).reshape(3)
         norm = np.linalg.norm(n)
         if not np.isfinite(norm) or norm == 0:
-            raise ReviewError(f"boundary {self.id}: the normal must be a non-zero vector but got {n.tolist()}")
+            raise ParameterError(f"boundary {self.id}: the normal must be a non-zero vector but got {n.tolist()}")
         # normalise only when needed, so that a saved and reloaded unit normal stays bit for bit
         self.normal = n / norm if abs(norm - 1.0) > 1e-9 else n
         self.height_mm = float(self.height_mm)
         if self.origin not in ORIGINS:
-            raise ReviewError(f"boundary origin must be one of {', '.join(ORIGINS)} but got {self.origin!r}")
+            raise ParameterError(f"boundary origin must be one of {', '.join(ORIGINS)} but got {self.origin!r}")
 
     @classmethod
     def from_height(cls, height_mm: float, axis: Centreline, id: int, origin: str = "review",
@@ -67,9 +68,9 @@ class Boundary:
         try:
             h = float(height_mm)
         except (TypeError, ValueError):
-            raise ReviewError(f"a boundary height must be a number in mm but got {height_mm!r}") from None
+            raise ParameterError(f"a boundary height must be a number in mm but got {height_mm!r}") from None
         if not np.isfinite(h):
-            raise ReviewError(f"a boundary height must be finite but got {height_mm!r}")
+            raise ParameterError(f"a boundary height must be finite but got {height_mm!r}")
         p, t = axis.at(h)
         return cls(id=int(id), height_mm=h, center_mm=p, normal=t, rms_mm=float("nan"), coverage=0.0,
                    confidence=float(confidence), origin=origin, flags=["placed by height"])
@@ -195,7 +196,7 @@ class Segmentation:
         bs = [b if isinstance(b, Boundary) else Boundary.from_dict(b) for b in boundaries]
         ids = [b.id for b in bs]
         if len(set(ids)) != len(ids):
-            raise ReviewError("boundary ids must be unique; give each added boundary a new id")
+            raise ParameterError("boundary ids must be unique; give each added boundary a new id")
         bs = sorted((copy.deepcopy(b) for b in bs), key=lambda b: b.height_mm)
         band = assign_bands(v, bs, self.axis)
         return Segmentation(boundaries=bs, axis=self.axis, vertex_class=self.vertex_class.copy(),
@@ -205,13 +206,13 @@ class Segmentation:
 
     def save(self, folder):
         """Write ``segmentation.json`` and ``segmentation_labels.npz`` into ``folder`` (atomically)."""
-        from .io import save_segmentation
-
-        return save_segmentation(self, folder)
+        return _io.save_segmentation(self, folder)
 
     @classmethod
     def load(cls, folder) -> "Segmentation":
         """Read a segmentation written by :meth:`save`; malformed files raise InputError."""
-        from .io import load_segmentation
+        return _io.load_segmentation(folder, cls)
 
-        return load_segmentation(folder)
+    @staticmethod
+    def boundary_class():
+        return Boundary
