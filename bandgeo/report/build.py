@@ -301,7 +301,7 @@ def _documents(state, folder, formats, paths, seconds, tick, t_start):
         for f in specs:
             fig = f["build"]()
             figs.append({"id": f["id"], "number": f["number"], "title": f["title"], "caption": f["caption"],
-                         "raster": f["raster"], "src": figure_data_uri(fig, raster=f["raster"], dpi=130 if f["raster"] else 150)})
+                         "raster": f["raster"], "src": figure_data_uri(fig, raster=f["raster"], dpi=110 if f["raster"] else 150)})
     seconds["figures"] = time.perf_counter() - t0
     tick("report: figures")
     t0 = time.perf_counter()

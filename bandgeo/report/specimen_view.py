@@ -21,7 +21,7 @@ from scipy import ndimage
 from .palette import IMAGE_CMAP, UNASSIGNED_RGB, band_colors
 from .unroll import relief_image, unroll_vertices
 
-MAX_POINTS = 400_000
+MAX_POINTS = 250_000
 CLOSE_BANDS = 40
 
 
@@ -152,7 +152,7 @@ def specimen_figure(vertices_mm, faces, vertex_band, axis, boundaries, view_azim
     w0, w1, b0, b1 = window
     f = np.asarray(faces)
     sv = _straight_axis_s(v, axis)
-    margin = 2.0 * radius
+    margin = 0.3 * radius + 0.5 * (w1 - w0)          # chord height vs arc length on a curved axis
     near = np.flatnonzero((sv > w0 - margin) & (sv < w1 + margin))
     vs, vaz, vr = unroll_vertices(v[near], axis)
     full_s = np.full(len(v), np.nan)
