@@ -12,7 +12,7 @@ Rules (figures from the accuracy atlas, ``benchmarks/accuracy_atlas.py``, and do
   of a lamina away); the noise is the scatter of single vertices about that mean profile.
 - A boundary is resolved when its groove stands out of the profile noise (the per-vertex noise over
   the square root of the groove's vertex count) by ``MIN_GROOVE_Z``; when most do not, nothing is
-  counted. A per-vertex relief below ``WARN_RELIEF_TO_NOISE`` (2) x the noise gives a warning.
+  counted. A per-vertex relief below ``WARN_RELIEF_TO_NOISE`` (1) x the noise gives a warning.
 Affected stretches are flagged ``[s0_mm, s1_mm, reason]``.
 """
 from __future__ import annotations
@@ -21,7 +21,7 @@ import numpy as np
 
 MIN_SAMPLES = 3.0
 MIN_SAMPLES_COUNT = 2.0
-WARN_RELIEF_TO_NOISE = 2.0
+WARN_RELIEF_TO_NOISE = 1.0
 MIN_GROOVE_Z = 4.0
 #: Below this groove z-score in its own frame a traced boundary is dropped (repair rule R5).
 MIN_KEEP_Z = 2.0
