@@ -94,7 +94,7 @@ def make_folder(folder, n_bounds=12, spacing=1.5, specimen_id="KRB-12"):
     hz = np.linspace(0, heights[-1] + 1.0, 50)
     axis = FakeCentreline(hz, np.stack([0 * hz, 0 * hz, hz], 1), np.tile([0.0, 0.0, 1.0], (hz.size, 1)))
     bounds = [FakeBoundary(int(k), float(h), np.array([0, 0, h]), np.array([0, 0, 1.0]),
-                           confidence=0.5 + 0.04 * k) for k, h in enumerate(heights)]
+                           confidence=min(0.5 + 0.035 * k, 0.99)) for k, h in enumerate(heights)]
     specimen = FakeSpecimen(v, f)
     seg = FakeSegmentation(bounds, axis, np.zeros(len(v), np.int32)).with_boundaries(bounds, specimen)
     meta = np.frombuffer(json.dumps({"specimen_id": specimen_id, "scan_sha256": "0" * 64, "units": "mm",
