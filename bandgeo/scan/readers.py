@@ -280,6 +280,24 @@ def _obj_bad_number(data: bytes):
     return None
 
 
+_OBJ_F = re.compile(rb"(?m)^[ \t]*f[ \t]+([^\r\n#]*)")
+
+
+def _obj_bad_face(data: bytes):
+    """(line number, vertex reference, vertex count) of the first ``f`` line naming a vertex that does
+    not exist, or None."""
+    n = len(_OBJ_V.findall(data))
+    for match in _OBJ_F.finditer(data):
+        for word in match.group(1).split():
+            try:
+                k = int(word.split(b"/")[0])
+            except ValueError:
+                continue
+            if k == 0 or k > n or k < -n:
+                return data.count(b"\n", 0, match.start()) + 1, k, n
+    return None
+
+
 def _check_off(data: bytes, name: str) -> str:
     text = data.decode("latin-1")
     tokens_lines = [line.split("#", 1)[0].split() for line in text.splitlines()]
@@ -436,6 +454,10 @@ def _parse(data: bytes, path: Path, file_type: str, name: str):
         if bad is not None:
             raise _fail(name, f"OBJ line {bad[0]} is a vertex line holding something that is not a number "
                               f"({bad[1]!r}); the file is corrupt, re-export the scan")
+        face = _obj_bad_face(data) if file_type == "obj" else None
+        if face is not None:
+            raise _fail(name, f"OBJ line {face[0]} is a face naming vertex {face[1]}, outside the {face[2]} "
+                              "vertices (valid 1..n); the file is corrupt or truncated, re-export the scan")
         detail = " ".join(str(exc).split())[:160] or type(exc).__name__
         raise _fail(name, f"could not be read as {file_type.upper()} ({detail}); the file is corrupt or not "
                           f"a valid {file_type.upper()} file, export the scan again")
