@@ -165,7 +165,7 @@ def route_rows(result: Mapping) -> list[dict]:
         block = methods.get(key)
         if not isinstance(block, Mapping):
             continue
-        value, interval = fmt_estimate(block.get("estimate"), block.get("ci95"), unit)
+        value, interval = fmt_estimate(block.get("estimate"), block.get("ci95"))
         w = weights.get(key) if key in used else None
         if block.get("estimate") is None:
             why = "no estimate"
@@ -237,6 +237,18 @@ def headline(result: Mapping) -> dict:
     return out
 
 
+def short_method(text: Any, limit: int = 90) -> str:
+    """The first clause of a long method description (the whole text is in the tests section)."""
+    text = str(text or "—")
+    if len(text) <= limit:
+        return text
+    for sep in ("; ", ": ", " (", ", "):
+        i = text.find(sep)
+        if 15 < i <= limit:
+            return text[:i]
+    return text[:limit].rsplit(" ", 1)[0] + " …"
+
+
 def results_table(result: Mapping, tilt=None) -> list[dict]:
     """The table near the front: quantity, value, 95 % interval, method."""
     rows = []
@@ -253,9 +265,6 @@ def results_table(result: Mapping, tilt=None) -> list[dict]:
         v, ci = fmt_estimate(dpy["estimate"], dpy.get("ci95"), unit)
         rows.append({"name": "days per year, combined", "value": v, "ci95": ci, "method": str(dpy.get("method")),
                      "highlight": True})
-        for r in route_rows(result):
-            rows.append({"name": f"days per year from the {r['name']}", "value": r["value"], "ci95": r["ci95"],
-                         "method": r["method"]})
         for key, label in (("length_of_day_hours", "length of day"), ("sidereal_day_hours", "sidereal day")):
             block = result.get(key)
             if isinstance(block, Mapping) and block.get("estimate") is not None:
@@ -278,6 +287,8 @@ def results_table(result: Mapping, tilt=None) -> list[dict]:
                              "method": str(dist[1].get("method") or dist[0])})
     if tilt is not None:
         rows.extend(tilt_rows(tilt))
+    for r in rows:
+        r["method"] = short_method(r["method"])
     return rows
 
 

@@ -114,8 +114,15 @@ def periodogram_figure(spectra, searched=None, estimate_frequency=None):
     estimate_frequency : float or None
         Frequency of the accepted annual peak, cycles per band; marked when given.
     """
-    fig = Figure(figsize=(7.2, 2.5 * len(spectra) + 0.8), layout="constrained")
-    axes = fig.subplots(len(spectra), 1, squeeze=False)[:, 0]
+    # Fixed margins rather than constrained layout: with log axes and a second (period) axis on each
+    # panel, the layout engine measures every tick label several times, which costs seconds.
+    n = len(spectra)
+    panel, gap, top_in, bottom_in = 1.7, 0.95, 0.5, 1.25
+    height = n * panel + (n - 1) * gap + top_in + bottom_in
+    fig = Figure(figsize=(7.2, height))
+    fig.subplots_adjust(left=0.1, right=0.98, top=1 - top_in / height, bottom=bottom_in / height,
+                        hspace=gap / panel)
+    axes = fig.subplots(n, 1, squeeze=False)[:, 0]
     for ax, (name, spec) in zip(axes, spectra.items()):
         f, p = spec["frequency"], spec["power"]
         pos = f > 0
@@ -140,7 +147,8 @@ def periodogram_figure(spectra, searched=None, estimate_frequency=None):
             ax.set_yscale("log")
         ax.set_xscale("log")
         ax.set_xlim(float(np.min(f[pos])), float(np.max(f)))
-        ax.set_title(f"{name.replace('_', ' ')} series", fontsize=8.5)
+        ax.text(0.01, 0.03, f"{name.replace('_', ' ')} series", transform=ax.transAxes, fontsize=8.5,
+                weight="bold", va="bottom", bbox={"fc": "white", "ec": "none", "alpha": 0.8, "pad": 1.5})
         ax.set_ylabel(f"power, {spec['power_unit']}", fontsize=7.5)
         ax.set_xlabel("frequency, cycles per band", fontsize=8)
         ax.tick_params(labelsize=7)
@@ -161,8 +169,8 @@ def periodogram_figure(spectra, searched=None, estimate_frequency=None):
         for h, lab in zip(*ax.get_legend_handles_labels()):
             if lab not in handles:
                 handles[lab] = h
-    fig.legend(list(handles.values()), list(handles), loc="outside lower center", ncol=3, fontsize=7,
-               frameon=False)
+    fig.legend(list(handles.values()), list(handles), loc="lower center", ncol=2, fontsize=7,
+               frameon=False, bbox_to_anchor=(0.5, 0.0))
     return fig
 
 

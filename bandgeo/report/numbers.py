@@ -65,7 +65,7 @@ def fmt_estimate(estimate: Any, ci95: Any = None, unit: str = "", sep: str = "�
     The uncertainty is half the width of the 95 % interval (the interval need not be symmetric). Without
     an interval the value keeps three significant figures.
     """
-    suffix = f" {unit}" if unit else ""
+    suffix = "" if not unit else (unit if unit == "°" else f" {unit}")
     if not _finite(estimate):
         return "no estimate", "—"
     est = float(estimate)
