@@ -120,13 +120,12 @@ def summarise_tilt(inclination_deg, azimuth_deg, period_bands=None, seed=0, nort
         # the block keeps whole cycles, so the phase of the resampled series stays that of x[idx]
         w = 2 * np.pi / period
         xs = x[idx]
-        c, s = np.cos(w * xs), np.sin(w * xs)
-        amps = []
-        for k in range(n_boot):
-            X = np.column_stack([np.ones(m), xs[k] - xs[k].mean(), c[k], s[k]])
-            coef, *_ = np.linalg.lstsq(X, comp[k], rcond=None)
-            amps.append(np.hypot(coef[2], coef[3]))
-        b_amp = np.asarray(amps)
+        X = np.stack([np.ones_like(xs), xs - xs.mean(axis=1, keepdims=True), np.cos(w * xs), np.sin(w * xs)],
+                     axis=-1)                                         # (n_boot, m, 4)
+        XtX = np.einsum("bmi,bmj->bij", X, X)
+        Xty = np.einsum("bmi,bm->bi", X, comp)
+        coef = np.linalg.solve(XtX + 1e-12 * np.eye(4), Xty[..., None])[..., 0]
+        b_amp = np.hypot(coef[:, 2], coef[:, 3])
         amp_method = f"amplitude of a sinusoid at the annual period ({period:.0f} bands), least squares with a linear trend"
     else:
         b_amp = np.sqrt(2.0) * comp.std(axis=1)
