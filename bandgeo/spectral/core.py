@@ -212,6 +212,15 @@ def _run(series, min_p, max_p, n_sim, methods, seed, progress, band_flags=None) 
         blocks["sway"] = sb
 
     dpy = _days_per_year(blocks, est_t, est_s, p_t, p_s, n_tests, searched, thick, warnings)
+    if dpy["significant"]:
+        dpy["selection"] = ("strongest significant peak that passes the line test (harmonic F-test) and has "
+                            "at least 3 cycles in the record, or its sub-harmonic; slow variation removed first")
+    for name, reads in (("thickness", t_read), ("sway", s_read)):
+        longer = [r for r in reads if r["reading"].startswith("a longer line")]
+        if longer:
+            warnings.append(f"{name}: a longer line than the annual cycle is also significant ("
+                            + ", ".join(f"{r['period_bands']:.1f} bands" for r in longer)
+                            + "); if it were the year, the reading would change")
     if refused and not dpy["significant"] and (sig_t or sig_s):
         dpy["significant"] = True
         dpy["refused"] = "; ".join(refused.values())
@@ -292,7 +301,7 @@ def _days_per_year(blocks, est_t, est_s, p_t, p_s, n_tests, searched, thick, war
     out = {"estimate": None, "ci95": None, "significant": False, "p_value": p_all,
            "method": "not estimated: no significant annual cycle (test: " + SPEC_METHOD + ")", "searched_band_bands_per_cycle": searched, "is_minimum": True,
            "units": "bands per annual cycle (solar days per year if each band is a day)",
-           "selection": "longest-period significant cycle in the searched band",
+           "selection": "strongest significant line in the searched band (see select.py)",
            "methods": blocks, "consistency": None,
            "significance_note": f"family-wise over the searched band (Monte Carlo maximum statistic) "
                                 f"and Bonferroni over {n_tests} series"}

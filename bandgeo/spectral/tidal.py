@@ -20,6 +20,7 @@ from __future__ import annotations
 import numpy as np
 
 from .annual import combine, period_estimate
+from .select import line_alpha
 
 #: Periods (bands per cycle) searched for tidal cycles, and the split between fortnight and month.
 TIDAL_BAND = (9.0, 45.0)
@@ -69,6 +70,14 @@ def tidal_analysis(search: dict, annual_period: float | None, n_boot: int, rng, 
             continue
         if annual_period is not None and P > 0.75 * annual_period:
             continue
+        if annual_period is None:
+            rejected.append({"period_bands": P, "reason": "no annual cycle, so its ratio to the year (synodic "
+                             "months per year) cannot be checked; not read as tidal"})
+            continue
+        lt = peak.get("line_test")
+        if lt is not None and (not lt["applicable"] or lt["p_value"] >= line_alpha(P and search["n"] / P)):
+            rejected.append({"period_bands": P, "reason": "not a line (harmonic F-test)"})
+            continue
         if annual_period is not None:
             kind0 = "fortnightly" if P < FORTNIGHT_MAX else "monthly"
             months = annual_period / (P * (2.0 if kind0 == "fortnightly" else 1.0))
@@ -87,9 +96,6 @@ def tidal_analysis(search: dict, annual_period: float | None, n_boot: int, rng, 
         out["peaks"].append(entry)
         readings.append((factor * est["estimate"], factor * est["sd"], peak["p_value"], kind))
     out["rejected_peaks"] = rejected
-    if annual_period is None:
-        out["note"] += ("; no annual cycle, so the ratio of a tidal cycle to the year (synodic months per "
-                        "year) could not be checked")
     if not readings:
         return out
     # At most one reading of each kind: the most significant.
