@@ -9,9 +9,11 @@ truncated file or wrong counts.
 """
 from __future__ import annotations
 
+import contextlib
 import gc
 import hashlib
 import io
+import logging
 import os
 import re
 from concurrent.futures import ThreadPoolExecutor
@@ -437,7 +439,26 @@ def _mesh_arrays(mesh, name: str):
             np.ascontiguousarray(faces, dtype=np.int64).reshape(-1, 3))
 
 
+@contextlib.contextmanager
+def _quiet_logger(name: str):
+    """Silence a library's log for a while: trimesh logs parse failures with tracebacks (``failed to
+    extract face_normals``), which Python prints to the terminal when no handler is set; the failure
+    itself reaches the user as one line."""
+    log = logging.getLogger(name)  # its child loggers (trimesh.exchange.stl, ...) inherit the level
+    level = log.level
+    log.setLevel(logging.CRITICAL + 1)
+    try:
+        yield
+    finally:
+        log.setLevel(level)
+
+
 def _parse(data: bytes, path: Path, file_type: str, name: str):
+    with _quiet_logger("trimesh"):
+        return _parse_trimesh(data, path, file_type, name)
+
+
+def _parse_trimesh(data: bytes, path: Path, file_type: str, name: str):
     import trimesh
 
     try:
