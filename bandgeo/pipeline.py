@@ -146,23 +146,20 @@ def upstream(scan_path, params: RunParams, *, sheet=None, timer: Optional[_Timer
 
 def review_stage(specimen, auto, review: Optional[dict], warnings: list):
     """Apply a review (a dict as ``bandgeo.review.store.read_review`` gives) to the automatic
-    segmentation. A review made on another scan, or in other units, is not applied: a warning says so.
+    segmentation. A review made on another scan, in other units or frame, or on another segmentation
+    (``bandgeo.review.basis.check_review``) is not applied: a warning says why.
     Returns ``(segmentation, ReviewInfo)``."""
     from .review.apply import apply_review
+    from .review.basis import check_review
 
     if review is None:
         return auto, ReviewInfo()
-    sha = review.get("scan_sha256")
-    if sha and sha != specimen.scan_sha256:
-        warnings.append("review.json was made on a different scan (SHA-256 differs); its edits were not "
-                        "applied. Re-review, or re-run with the original scan.")
-        return auto, ReviewInfo(ignored="scan differs")
-    scale = review.get("mm_per_unit")
-    if isinstance(scale, (int, float)) and not np.isclose(float(scale), specimen.mm_per_unit, rtol=1e-9):
-        warnings.append(f"review.json was made with {scale:g} mm per scan unit but this run uses "
-                        f"{specimen.mm_per_unit:g}; its edits were not applied. Re-run with the units of the "
-                        f"review, or review again.")
-        return auto, ReviewInfo(ignored="units differ")
+    reasons = check_review(review, specimen, auto)
+    if reasons:
+        warnings.append(f"review.json does not fit this analysis ({'; '.join(reasons)}); its edits were not "
+                        f"applied. Set it aside and review again, or re-run with the scan and units it was "
+                        f"made on.")
+        return auto, ReviewInfo(ignored="; ".join(reasons))
     seg = apply_review(auto, specimen, review)
     edits = review.get("edits") or []
     return seg, ReviewInfo(edited=bool(edits), n_edits=len(edits), saved=review.get("saved"),
