@@ -3,6 +3,9 @@
 Stage functions raise these at their public entry points. The CLI prints the message as a single line
 and exits with status 2; it never shows a traceback unless ``--debug`` is given.
 """
+import re
+
+_NP_SCALAR = re.compile(r"\bnp\.(?:float\d*|int\d*|uint\d*|complex\d*|str_|bool)\(([^()]*)\)")
 
 
 class BandgeoError(Exception):
@@ -11,8 +14,12 @@ class BandgeoError(Exception):
     exit_status = 2
 
     def __init__(self, message: str):
-        # Keep the message to one line: the CLI prints it verbatim.
-        super().__init__(" ".join(str(message).split()))
+        # Keep the message to one line: the CLI prints it verbatim. NumPy scalars formatted with !r
+        # (``np.float64(-0.2)``) are shown as the plain numbers a user typed.
+        text = " ".join(str(message).split())
+        if "np." in text:
+            text = _NP_SCALAR.sub(r"\1", text).replace("np.True_", "True").replace("np.False_", "False")
+        super().__init__(text)
 
 
 class InputError(BandgeoError):
