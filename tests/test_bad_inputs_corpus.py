@@ -125,6 +125,9 @@ MESHES = {
     "stl_binary_nan": ("m.stl", stl_binary(v=_with({(2, 2): np.nan})), "NaN or infinite"),
     "stl_ascii_garbage": ("m.stl", b"solid x\n facet normal 0 0 1\n  outer loop\n   vertex 1 2\nendsolid\n",
                           "STL"),
+    "stl_binary_solid_header_truncated": ("m.stl", (b"solid KRB-07" + stl_binary()[12:])[:-50], "truncated"),
+    "glb_garbage": ("m.glb", b"glTF\x02\x00\x00\x00garbage" * 4, "GLB"),
+    "gltf_not_json": ("m.gltf", b"{ not json", "GLTF"),
     "off_wrong_counts": ("m.off", b"OFF\n8 3 0\n0 0 0\n1 0 0\n0 1 0\n3 0 1 2\n", "counts are wrong"),
     "off_garbage": ("m.off", b"this is not an OFF file\n", "not an OFF file"),
     "unknown_extension": ("m.xyz", b"1 2 3\n", "unknown extension"),
@@ -398,6 +401,14 @@ def test_review_cli_sets_a_bad_file_aside(tmp_path, analysed_folder, case):
     assert len(warning) == 1, output
     after = {p.name: p.read_bytes() for p in folder.iterdir() if p.is_file()}
     assert after["review.json"] == before["review.json"]
+
+
+def test_binary_stl_whose_header_says_solid_still_loads(tmp_path):
+    # a common exporter oddity: a binary STL whose 80-byte header starts with "solid" (common practice)
+    path = tmp_path / "solid header.stl"
+    path.write_bytes(b"solid KRB-07" + stl_binary()[12:])
+    scan = load_scan(path)
+    assert scan.file_format == "stl-binary" and len(scan.faces) == len(F)
 
 
 def test_corpus_size():
