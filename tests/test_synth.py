@@ -84,7 +84,8 @@ def test_holes_open_the_wall_and_the_base_can_be_open(tmp_path):
 def test_truth_frame_matches_the_mesh(tmp_path):
     """The paleo-up and growth direction in the truth file agree with the mesh's long axis."""
     p = SynthParams(days_per_year=80, years=1.5, radius_mm=1.0, pose="random", units="in",
-                    sway_amplitude_deg=0.0, mean_tilt_deg=0.0, radius_variation=0.0, seed=21)
+                    sway_amplitude_deg=0.0, mean_tilt_deg=0.0, meander_amplitude_deg=0.0, radius_variation=0.0,
+                    seed=21)
     out = write_specimen(simulate(p), tmp_path / "f.ply")
     truth = json.loads(out["truth"].read_text())
     v = np.asarray(trimesh.load(out["mesh"], process=False).vertices)

@@ -104,7 +104,8 @@ def test_growth_rate_and_boundaries():
 def test_sway_follows_the_annual_cycle_in_the_sway_plane():
     """Tilt component in the sway plane oscillates with the amplitude given, at the annual period;
     unit growth directions have inclination equal to their angle from +z (analytic)."""
-    p = SynthParams(days_per_year=400, years=3, sway_amplitude_deg=5.0, mean_tilt_deg=0.0)
+    p = SynthParams(days_per_year=400, years=3, sway_amplitude_deg=5.0, mean_tilt_deg=0.0,
+                    meander_amplitude_deg=0.0)
     rec = simulate_laminae(p)
     assert rec.sway_deg.max() == pytest.approx(5.0, abs=0.01)
     assert rec.sway_deg.min() == pytest.approx(-5.0, abs=0.01)

@@ -23,6 +23,11 @@ HELP = {
     "hiatus_rate_per_year": "Missing-day episodes per year (Poisson).",
     "hiatus_mean_days": "Mean length of a missing-day episode, days (>= 1).",
     "sway_amplitude_deg": "Amplitude of the annual heliotropic sway of the growth axis, degrees.",
+    "meander_amplitude_deg": "Growth meander: standard deviation of each horizontal tilt component of a "
+                             "red-noise (AR(1)) wander of the growth direction, degrees (0 = none).",
+    "meander_correlation_laminae": "Correlation length of the meander, laminae (lag-1 correlation "
+                                   "exp(-1/length)).",
+    "radius_taper": "Fractional change of the radius from base to top (-0.3 narrows by 30%, 0.3 widens).",
     "sway_azimuth_deg": "Azimuth of the sway plane, degrees clockwise from north.",
     "mean_tilt_deg": "Mean lean of the growth axis from the paleo-vertical, degrees.",
     "mean_tilt_azimuth_deg": "Azimuth of the mean lean, degrees clockwise from north.",
@@ -35,13 +40,38 @@ HELP = {
     "color_banding": "Colour the vertices by lamina (dark film below each boundary).",
     "base": "Base of the column: a closed saw cut or open.",
     "top": "Top of the column: the last lamina's dome, a flat cut, or open.",
-    "scanner_noise_mm": "Standard deviation of the scanner's vertex noise, mm.",
+    "scanner_noise_mm": "Scanner noise (standard deviation), mm: along the normal before smoothing "
+                        "(photogrammetric), of the density as a distance (ct), isotropic (rings).",
     "holes": "Number of small holes punched in the side wall.",
     "pose": "File frame: identity, or a random rotation and translation.",
     "units": "Units of the written mesh.",
-    "sampling": "Mesh sampling: isotropic (photogrammetry-like) or anisotropic (rings of few vertices).",
-    "rings_per_lamina": "Vertex rings per mean lamina thickness.",
-    "ring_vertices": "Vertices per ring (default: chosen from the sampling).",
+    "sampling": "Rings mesh only: isotropic (near-equilateral) or anisotropic (rings of few vertices).",
+    "rings_per_lamina": "Rings mesh only: vertex rings per mean lamina thickness.",
+    "ring_vertices": "Rings mesh only: vertices per ring (default: chosen from the sampling).",
+    "mesh_kind": "How the surface is meshed: photogrammetric (near-isotropic triangles not aligned with "
+                 "the laminae, normal noise, Taubin smoothing), ct (voxels + marching cubes, with "
+                 "staircase) or rings (a vertex ring on every boundary; chosen when a rings-only "
+                 "option is given).",
+    "edge_length_mm": "Target triangle edge length of the photogrammetric mesh, mm.",
+    "voxel_size_mm": "Voxel size of the ct mesh, mm.",
+    "smoothing_iterations": "Taubin smoothing passes of the photogrammetric mesh (0 = none).",
+    "edge_aspect": "Photogrammetric mesh: stretch the triangles around the column by this factor "
+                   "(1 = near-equilateral; larger makes small files of long records).",
+}
+
+#: Shown instead of ``None`` for defaults that depend on other parameters.
+DEFAULT_TEXT = {
+    "groove_depth_mm": "25% of --mean-thickness-mm; 0.04 with a rings-only option",
+    "scanner_noise_mm": "10% of --mean-thickness-mm; 0.004 with a rings-only option",
+    "sway_amplitude_deg": "5.0; 3.0 with a rings-only option",
+    "meander_amplitude_deg": "1.5; 0 with a rings-only option",
+    "edge_length_mm": "a third of --mean-thickness-mm",
+    "voxel_size_mm": "a third of --mean-thickness-mm",
+    "mesh_kind": "photogrammetric",
+    "sampling": "isotropic",
+    "rings_per_lamina": "4",
+    "ring_vertices": "from the sampling",
+    "days_per_synodic_month": "none",
 }
 
 
@@ -55,7 +85,8 @@ def _param_options(func):
             continue
         flag = "--" + f.name.replace("_", "-")
         hint = hints[f.name]
-        kwargs = {"default": None, "help": HELP.get(f.name, f.name) + f"  [default: {f.default}]"}
+        shown = DEFAULT_TEXT.get(f.name, f.default)
+        kwargs = {"default": None, "help": HELP.get(f.name, f.name) + f"  [default: {shown}]"}
         if f.name == "units":
             kwargs["type"] = UNITS
         elif f.name in CHOICES:
@@ -83,6 +114,11 @@ def _param_options(func):
 def synth(ctx, out, name, fmt, seed, **params):
     """Write a forward-model specimen: OUT/NAME.ply and OUT/NAME.truth.json.
 
+    The default is a realistic scan: a photogrammetry-like mesh whose triangles ignore the laminae,
+    a column 16 mm across that sways 5 degrees a year and meanders, scanner noise of 10% and grooves of
+    25% of a lamina. --mesh-kind ct voxelises the column and runs marching cubes; --mesh-kind rings
+    (or any rings-only option) gives the older mesh with a vertex ring on every boundary.
+
     Example:  bandgeo synth --days-per-year 400 --years 3 --out specimens/
     """
     from .. import progress
@@ -102,7 +138,7 @@ def synth(ctx, out, name, fmt, seed, **params):
     echo(ctx, f"wrote {written['truth']} ({_size(written['truth_bytes'])}): {lam['n_recorded']:,} laminae, "
               f"{lam['recorded_laminae_per_year']:.1f} recorded laminae per year "
               f"(nominal {lam['laminae_per_year_nominal']:.1f}), column "
-              f"{spec.truth['mesh']['column_length_mm']:.1f} mm long, seed {sp.seed}")
+              f"{spec.truth['mesh']['column_length_mm']:.1f} mm long, {sp.mesh_kind} mesh, seed {sp.seed}")
 
 
 def _size(n: int) -> str:

@@ -28,6 +28,7 @@ from scipy.spatial import Delaunay
 
 from .laminae import LaminaRecord, tilt_to_direction
 from .params import SynthParams
+from .surface import Centreline, groove_relief, radius_profile
 
 #: Vertices per ring of the anisotropic sampling unless ``ring_vertices`` is given.
 ANISOTROPIC_RING_VERTICES = 24
@@ -46,12 +47,18 @@ class ColumnMesh:
         Position of each vertex in lamina coordinates (arc length of the boundary dome through it).
     info : dict
         Sampling and relief figures for the truth file.
+    centreline : Centreline or None
+        The centreline the mesh was built about (the truth's boundary planes come from it).
+    noise_applied : bool
+        True when the builder already added the scanner noise (photogrammetric, CT).
     """
 
     vertices_mm: np.ndarray
     faces: np.ndarray
     lamina_coord_mm: np.ndarray
     info: dict
+    centreline: Centreline | None = None
+    noise_applied: bool = False
 
 
 def ring_frames(record: LaminaRecord, s: np.ndarray):
@@ -68,20 +75,8 @@ def ring_frames(record: LaminaRecord, s: np.ndarray):
     points, tangents, e1, e2 : (p, 3) float each
         ``e1, e2, tangents`` form a right-handed orthonormal frame at each point.
     """
-    h = record.boundary_heights_mm
-    mid = 0.5 * (h[:-1] + h[1:])
-    east = np.interp(s, mid, record.tilt_east_deg)
-    north = np.interp(s, mid, record.tilt_north_deg)
-    t = tilt_to_direction(east, north)
-    points = np.zeros_like(t)
-    ds = np.diff(s)[:, None]
-    points[1:] = np.cumsum(0.5 * (t[1:] + t[:-1]) * ds, axis=0)
-    # Minimal rotation taking z to t, applied to x and y (Rodrigues: R = I + [v]x + [v]x^2 / (1 + c)).
-    vx, vy, c = -t[:, 1], t[:, 0], t[:, 2]
-    k = 1.0 / (1.0 + c)
-    e1 = np.column_stack([1.0 - k * vy * vy, k * vx * vy, -vy])
-    e2 = np.column_stack([k * vx * vy, 1.0 - k * vx * vx, vx])
-    return points, t, e1, e2
+    cl = Centreline.from_record(record, s)
+    return cl.points, cl.tangents, cl.e1, cl.e2
 
 
 def tangent_at(record: LaminaRecord, s: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -112,31 +107,8 @@ def _ring_count(p: SynthParams, mean_radius: float) -> int:
     return max(8, int(round(2.0 * np.pi * mean_radius / edge)))
 
 
-def _radius(p: SynthParams, s: np.ndarray, top: float, gen: np.random.Generator) -> np.ndarray:
-    """Slowly varying radius (mm): three sinusoids with wavelengths of 0.3-1.5 column lengths."""
-    span = max(top, 10.0 * p.radius_mm)
-    lam = gen.uniform(0.3, 1.5, 3) * span
-    phase = gen.uniform(0.0, 2.0 * np.pi, 3)
-    f = np.sin(2.0 * np.pi * s[:, None] / lam + phase).sum(axis=1) / 3.0
-    return p.radius_mm * (1.0 + p.radius_variation * f)
-
-
-def _groove(record: LaminaRecord, s: np.ndarray, ds: float):
-    """Groove relief (mm, <= 0) at arc lengths ``s``; returns (relief, depth_eff, halfwidth_eff)."""
-    p = record.params
-    h = record.boundary_heights_mm
-    th = record.thickness_mm
-    near = np.clip(np.searchsorted(h, s), 1, h.size - 1)
-    near = np.where(np.abs(s - h[near - 1]) < np.abs(h[near] - s), near - 1, near)
-    below = th[np.clip(near - 1, 0, th.size - 1)]
-    above = th[np.clip(near, 0, th.size - 1)]
-    local = np.minimum(below, above)
-    half = 0.5 * p.groove_width_fraction * local
-    half_eff = np.minimum(np.sqrt(half ** 2 + ds ** 2), 0.5 * local)
-    depth_eff = p.groove_depth_mm * np.minimum(half / half_eff, 1.0)
-    u = (s - h[near]) / half_eff
-    relief = -depth_eff * 0.5 * (1.0 + np.cos(np.pi * np.clip(u, -1.0, 1.0)))
-    return relief, depth_eff, half_eff
+_radius = radius_profile
+_groove = groove_relief
 
 
 def _cap(ring_xyz: np.ndarray, centre: np.ndarray, t: np.ndarray, e1: np.ndarray, e2: np.ndarray,
@@ -191,7 +163,8 @@ def build_column(record: LaminaRecord, gen: np.random.Generator) -> ColumnMesh:
     n_around = _ring_count(p, float(radius.mean()))
     relief, depth_eff, half_eff = _groove(record, s, float(s[1] - s[0]))
     r_ring = radius + relief
-    points, t, e1, e2 = ring_frames(record, s)
+    centreline = Centreline.from_record(record, s)
+    points, t, e1, e2 = centreline.points, centreline.tangents, centreline.e1, centreline.e2
 
     offset = 0.5 * (np.arange(n_rings) % 2) if p.sampling == "isotropic" else np.zeros(n_rings)
     theta = 2.0 * np.pi * (np.arange(n_around)[None, :] + offset[:, None]) / n_around
@@ -239,6 +212,7 @@ def build_column(record: LaminaRecord, gen: np.random.Generator) -> ColumnMesh:
         remap = np.cumsum(used) - 1
         vertices, coord, faces = vertices[used], coord[used], remap[faces]
     info = {
+        "kind": "rings",
         "n_rings": int(n_rings),
         "ring_vertices": int(n_around),
         "ring_spacing_mm": float(s[1] - s[0]),
@@ -252,7 +226,8 @@ def build_column(record: LaminaRecord, gen: np.random.Generator) -> ColumnMesh:
         # Laminae this thin cannot show a separate groove at this ring spacing (a sampling limit).
         "laminae_thinner_than_two_ring_spacings": int((record.thickness_mm < 2.0 * (s[1] - s[0])).sum()),
     }
-    return ColumnMesh(vertices, faces.astype(np.int64, copy=False), coord, info)
+    info["sampling_step_mm"] = info["ring_spacing_mm"]
+    return ColumnMesh(vertices, faces.astype(np.int64, copy=False), coord, info, centreline)
 
 
 def _wall_faces(n_rings: int, n_around: int, offset: bool) -> np.ndarray:

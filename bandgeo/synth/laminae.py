@@ -27,8 +27,12 @@ with mean ``hiatus_mean_days``. Laminae laid down on a missing day are absent fr
 Growth direction: the tilt of lamina ``k`` from the paleo-vertical, as a small horizontal vector
 (degrees, components east and north), is ``m + s_k u`` where ``m`` is the mean tilt (magnitude
 ``mean_tilt_deg`` toward ``mean_tilt_azimuth_deg``), ``u`` the unit vector of the sway plane azimuth and
-``s_k = sway_amplitude_deg * sin(2 pi t_k / days_per_year + sway_phase_rad)``. Its length is the
-inclination and its direction the azimuth of the growth direction.
+``s_k = sway_amplitude_deg * sin(2 pi t_k / days_per_year + sway_phase_rad)``, plus the **meander**
+``w_k``: two independent stationary Gaussian AR(1) series (east, north) in the nominal lamina index with
+standard deviation ``meander_amplitude_deg`` and lag-1 correlation ``exp(-1 / meander_correlation_laminae)``
+(an Ornstein-Uhlenbeck process sampled once a lamina). Its length is the inclination and its direction
+the azimuth of the growth direction. The meander is drawn after the thickness noise and the hiatuses,
+so a record with no meander is the same as before the meander existed.
 """
 from __future__ import annotations
 
@@ -75,6 +79,9 @@ class LaminaRecord:
     tilt_east_deg: np.ndarray = field(default=None, repr=False)
     tilt_north_deg: np.ndarray = field(default=None, repr=False)
     nominal_index: np.ndarray = field(default=None, repr=False)
+    annual_sway_deg: np.ndarray = field(default=None, repr=False)
+    meander_east_deg: np.ndarray = field(default=None, repr=False)
+    meander_north_deg: np.ndarray = field(default=None, repr=False)
 
     @property
     def n_laminae(self) -> int:
@@ -221,8 +228,14 @@ def simulate_laminae(params: SynthParams, rng=None) -> LaminaRecord:
     sway = p.sway_amplitude_deg * np.sin(omega_year * t_days[kept] + p.sway_phase_rad)
     az_u = np.radians(p.sway_azimuth_deg)
     az_m = np.radians(p.mean_tilt_azimuth_deg)
-    east = p.mean_tilt_deg * np.sin(az_m) + sway * np.sin(az_u)
-    north = p.mean_tilt_deg * np.cos(az_m) + sway * np.cos(az_u)
+    if p.meander_amplitude_deg > 0:
+        phi_m = float(np.exp(-1.0 / p.meander_correlation_laminae))
+        m_east = _ar1(gen, n, phi_m, p.meander_amplitude_deg)[kept]
+        m_north = _ar1(gen, n, phi_m, p.meander_amplitude_deg)[kept]
+    else:
+        m_east = m_north = np.zeros(kept.size)
+    east = p.mean_tilt_deg * np.sin(az_m) + sway * np.sin(az_u) + m_east
+    north = p.mean_tilt_deg * np.cos(az_m) + sway * np.cos(az_u) + m_north
 
     h = thickness[kept]
     heights = np.empty(h.size + 1)
@@ -241,4 +254,7 @@ def simulate_laminae(params: SynthParams, rng=None) -> LaminaRecord:
         tilt_east_deg=east,
         tilt_north_deg=north,
         nominal_index=kept,
+        annual_sway_deg=sway,
+        meander_east_deg=m_east,
+        meander_north_deg=m_north,
     )

@@ -96,6 +96,20 @@ def _pose(p: SynthParams, gen: np.random.Generator, length_mm: float):
     return rot, shift
 
 
+def build_mesh(record: LaminaRecord, gens: dict, progress=None) -> ColumnMesh:
+    """The column mesh of ``record.params.mesh_kind`` (specimen frame, mm; noise added by the
+    photogrammetric and CT builders, not yet by the ring builder)."""
+    kind = record.params.mesh_kind
+    sub = None if progress is None else (lambda d, done, total: report(progress, d, done, total))
+    if kind == "photogrammetric":
+        from .photogrammetric import build_photogrammetric
+        return build_photogrammetric(record, gens["geometry"], gens["noise"], sub)
+    if kind == "ct":
+        from .ct import build_ct
+        return build_ct(record, gens["geometry"], gens["noise"], sub)
+    return build_column(record, gens["geometry"])
+
+
 def simulate(params: SynthParams, progress=None) -> SynthSpecimen:
     """Simulate a specimen: lamina record, mesh, colours, scanner noise, pose and units.
 
@@ -121,12 +135,12 @@ def simulate(params: SynthParams, progress=None) -> SynthSpecimen:
     report(progress, "simulating laminae", 0, 4)
     record = simulate_laminae(params)
     gens = _streams(params.seed)
-    report(progress, "building the column mesh", 1, 4)
-    mesh = build_column(record, gens["geometry"])
+    report(progress, f"building the column mesh ({params.mesh_kind})", 1, 4)
+    mesh = build_mesh(record, gens, progress)
     report(progress, "colour, noise and pose", 2, 4)
     colors = _colors(mesh, record, gens["color"])
     verts = mesh.vertices_mm
-    if params.scanner_noise_mm > 0:
+    if params.scanner_noise_mm > 0 and not mesh.noise_applied:
         verts = verts + gens["noise"].normal(0.0, params.scanner_noise_mm, verts.shape)
     rot, shift = _pose(params, gens["pose"], mesh.info["column_length_mm"])
     mm_per_unit = constants.UNIT_TO_MM[params.units]
@@ -141,7 +155,14 @@ def simulate(params: SynthParams, progress=None) -> SynthSpecimen:
 
 def _truth(p, record, mesh, rot, shift, mm_per_unit, file_from_spec, n_vertices) -> dict:
     h = record.boundary_heights_mm
-    centres, normals = tangent_at(record, h)
+    if mesh.centreline is not None:
+        centres, normals, _, _ = mesh.centreline.at(h)
+        curv = mesh.centreline.curvature()
+    else:  # pragma: no cover - every builder sets the centreline
+        centres, normals = tangent_at(record, h)
+        curv = np.zeros(1)
+    b_inc = np.degrees(np.arccos(np.clip(normals[:, 2], -1.0, 1.0)))
+    b_az = np.degrees(np.arctan2(normals[:, 0], normals[:, 1])) % 360.0
     to_file = lambda x: (x @ rot.T + shift) / mm_per_unit  # noqa: E731
     dirs = record.growth_directions()
     mean_dir = (dirs * record.thickness_mm[:, None]).sum(axis=0)
@@ -185,6 +206,15 @@ def _truth(p, record, mesh, rot, shift, mm_per_unit, file_from_spec, n_vertices)
             "inclination_deg": record.inclination_deg,
             "azimuth_deg": record.azimuth_deg,
             "sway_deg": record.sway_deg,
+            "tilt_east_deg": record.tilt_east_deg,
+            "tilt_north_deg": record.tilt_north_deg,
+            "annual_sway_deg": record.annual_sway_deg,
+            "meander_east_deg": record.meander_east_deg,
+            "meander_north_deg": record.meander_north_deg,
+            "meander_note": "tilt (east, north) = mean lean + annual_sway_deg along the sway plane azimuth + "
+                            "meander (east, north); the meander is AR(1) in the nominal lamina index, "
+                            "standard deviation meander_amplitude_deg per component, lag-1 correlation "
+                            "exp(-1 / meander_correlation_laminae)",
             "hiatus_after": np.flatnonzero(record.hiatus_after),
             "hiatuses": record.hiatus_positions(),
         },
@@ -196,8 +226,19 @@ def _truth(p, record, mesh, rot, shift, mm_per_unit, file_from_spec, n_vertices)
             "heights_mm": h,
             "centres_file": to_file(centres),
             "normals_file": normals @ rot.T,
+            "centres_mm": centres,
+            "normals": normals,
+            "inclination_deg": b_inc,
+            "azimuth_deg": b_az,
+            "thickness_above_mm": np.append(record.thickness_mm, np.nan),
+            "specimen_frame_note": "centres_mm / normals: the same planes in the specimen frame (mm, z "
+                                   "paleo-up); inclination_deg / azimuth_deg: of each normal (azimuth "
+                                   "clockwise from north, atan2(x, y)); thickness_above_mm: the lamina "
+                                   "above each boundary along the centreline (null for the last)",
         },
         "mesh": dict(mesh.info, n_vertices=int(n_vertices), n_faces=int(mesh.faces.shape[0]),
-                     sampling=p.sampling, base=p.base, top=p.top,
-                     closed=bool(p.base == "cut" and p.top != "open" and p.holes == 0)),
+                     mesh_kind=p.mesh_kind, sampling=p.sampling if p.mesh_kind == "rings" else None,
+                     base=p.base, top=p.top,
+                     closed=bool(p.base == "cut" and p.top != "open" and p.holes == 0),
+                     max_curvature_times_radius=float(curv.max() * p.radius_mm * (1 + max(p.radius_taper, 0)))),
     }
