@@ -507,6 +507,9 @@ def run(folder, host="127.0.0.1", port=0, open_browser=True, token=None, echo=pr
         server.stop()
     unsaved = " (unsaved edits were discarded)" if server.app.session.dirty else ""
     path = server.app.folder / "review.json"
-    where = f"saved edits are in {path}" if path.exists() else "no review was saved"
+    if server.app.set_apart is not None:
+        where = f"{path} (another analysis's review) was left as it was"
+    else:
+        where = f"saved edits are in {path}" if path.exists() else "no review was saved"
     echo(f"Review server stopped{unsaved}; {where}.")
     return 0
