@@ -95,7 +95,7 @@ def test_bad_parameters():
 
 def test_power_command_prints_the_table_with_units(tmp_path):
     proc = subprocess.run([sys.executable, "-m", "bandgeo.cli", "power", "--noise-cv", "0.2", "--amplitude",
-                           "0.3", "--years", "2,6", "--days-per-year", "60", "--trials", "4", "--n-sim",
+                           "0.3", "--years", "2,6", "--days-per-year", "60", "--trials", "4", "--simulations",
                            str(N_SIM), "--out", str(tmp_path / "power out")],
                           capture_output=True, text=True, timeout=300)
     assert proc.returncode == 0, proc.stderr

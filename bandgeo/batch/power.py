@@ -179,7 +179,9 @@ def _trial(model: dict, years: float, trial_seed: int, n_sim: int, use_tilt: boo
         return out
     ci = dpy.get("ci95") or [None, None]
     band = dpy.get("searched_band_bands_per_cycle") or [None, None]
-    out.update(detected=bool(dpy.get("significant")), estimate=dpy.get("estimate"), ci95_low=ci[0],
+    # A cycle found on too few cycles of record has its interval refused: no days per year, not detected.
+    out.update(detected=bool(dpy.get("significant")) and dpy.get("estimate") is not None and ci[0] is not None,
+               estimate=dpy.get("estimate"), ci95_low=ci[0],
                ci95_high=ci[1], p_value=dpy.get("p_value"), searched_max_bands=band[1])
     return out
 

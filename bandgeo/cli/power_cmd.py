@@ -29,21 +29,24 @@ def _years(ctx, param, value):
               show_default=True, help="Lag-1 autocorrelation of the lamina noise.")
 @click.option("--trials", type=click.IntRange(min=1), default=200, show_default=True,
               help="Simulated records per years value.")
-@click.option("--n-sim", type=click.IntRange(min=19), default=200, show_default=True,
+@click.option("--simulations", "n_sim", type=click.IntRange(min=99), default=200, show_default=True,
               help="Monte Carlo replicates inside each periodicity test.")
+@click.option("--n-sim", "n_sim_alias", type=click.IntRange(min=99), default=None, hidden=True)
 @click.option("--workers", type=click.IntRange(min=1), default=1, show_default=True,
               help="Local processes to spread the trials over.")
 @click.option("--use-tilt", is_flag=True, help="Also test the sway of the growth direction.")
 @seed_option()
 @out_dir_option()
 @click.pass_context
-def power(ctx, noise_cv, amplitude, years, days_per_year, ar1_phi, trials, n_sim, workers, use_tilt,
-          seed, out):
+def power(ctx, noise_cv, amplitude, years, days_per_year, ar1_phi, trials, n_sim, n_sim_alias, workers,
+          use_tilt, seed, out):
     """Probability of detecting the annual cycle, and the expected interval width, against years of
     record, simulated with the forward model and tested as 'bandgeo analyze' does."""
     from ..batch import power_analysis
     from ..progress import bar
 
+    if n_sim_alias is not None:
+        n_sim = n_sim_alias
     with bar("power analysis") as cb:
         table = power_analysis(noise_cv=noise_cv, annual_amplitude=amplitude, years=years,
                                days_per_year=days_per_year, n_trials=trials, seed=seed, ar1_phi=ar1_phi,
