@@ -84,7 +84,7 @@ def test_units_guessed_from_size_with_warning(column, factor, unit):
 
 
 def test_implausible_size_warns(column):
-    # hand specimens: columns 1-10 cm wide and 5-50 cm tall (/work/shared/USERS.md; common practice)
+    # hand specimens: columns 1-10 cm wide and 5-50 cm tall (common practice)
     v, f = column
     # a 64 mm column declared in metres would be a 64 m hand specimen
     spec = prepare(_scan(v, f), units="m")

@@ -12,7 +12,7 @@ from .types import Scan, ScaleReference, Specimen, SpecimenSheet
 
 #: Faces needed for a mesh to be worth orienting at all.
 MIN_FACES = 20
-#: Plausible overall size of a hand specimen, mm (USERS.md: columns 1-10 cm wide, 5-50 cm tall).
+#: Plausible overall size of a hand specimen, mm (columns are about 1-10 cm wide and 5-50 cm tall; common practice).
 PLAUSIBLE_MM = (10.0, 2000.0)
 TYPICAL_MM = (20.0, 1000.0)
 #: Sizes refused outright, mm: below 1 um or above 10 km no unit slip explains the scan (and later stages'

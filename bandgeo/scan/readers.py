@@ -1,7 +1,7 @@
 """Read a mesh file (PLY, OBJ, STL, OFF, glTF/GLB) into a ``Scan``, refusing broken files with one clear line.
 
 The bytes are read once (hashed with SHA-256) and parsed by trimesh without processing, the fastest
-general loader measured here (see /work/shared/PERF-NOTES.md); plain binary triangle PLY files (the
+general loader measured here (benchmarks/bench_load.py); plain binary triangle PLY files (the
 usual scan export) are read straight from their blocks with numpy instead, giving the same arrays
 several times faster. All cleanup happens later, vectorized, in :mod:`bandgeo.scan.clean`. The PLY
 and STL headers are checked here against the file size, because the parsers do not always notice a
