@@ -46,6 +46,14 @@ class PipelineRerun:
         with self._lock:
             if self._runner is None and hasattr(pipeline, "Rerunner"):
                 self._runner = pipeline.Rerunner(folder)
+        import importlib
+
+        names = ("measure", "series", "spectral", "uncertainty", "astro") + (("report",) if self.report else ())
+        for name in names:
+            try:  # the stages' first import costs seconds; pay it now rather than on the first save
+                importlib.import_module(f"bandgeo.{name}")
+            except ImportError:
+                pass
 
     def __call__(self, folder, progress=None):
         from .. import pipeline
