@@ -53,3 +53,20 @@ def test_several_missing_libraries_in_one_line(monkeypatch):
 
 def test_deep_check_imports_open3d():
     syscheck.check_system_libraries("review", deep=True)  # open3d imports on this machine
+
+
+@linux_only
+def test_cli_stops_before_any_work(monkeypatch, tmp_path, capsys):
+    from bandgeo.cli import main
+
+    monkeypatch.setattr(syscheck, "LIBRARIES", syscheck.LIBRARIES + (FAKE,))
+    scan = tmp_path / "KRB-07.ply"
+    scan.write_bytes(b"not even read")
+    out = tmp_path / "out"
+    status = main(["analyze", str(scan), "--out", str(out)])
+    err = capsys.readouterr().err
+    assert status == 2 and err.count("\n") == 1
+    assert "libabsent-7 is missing: install the system package libbandgeo-absent7" in err
+    assert not out.exists()  # stopped before the scan was read or anything written
+    assert main(["inspect", str(scan)]) == 2  # inspect needs no such library: it goes on to the bad scan
+    assert "does not start with 'ply'" in capsys.readouterr().err
