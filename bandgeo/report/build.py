@@ -139,10 +139,12 @@ def figure_specs(state: Any, tilt=None) -> tuple[list[dict], list[str]]:
                       "build": lambda: figures.counts_figure(counts, cc.get("estimate") if isinstance(cc, Mapping) else None),
                       "caption": "Bands counted in each successive yearly cycle of the thickness series. Each count "
                                  "is a minimum."})
-    elif period is not None:
+    elif period is not None and counts:
         omitted.append(f"The cycle-by-cycle counts are left out: the record holds {len(counts)} whole yearly "
-                       f"cycle{'s' if len(counts) != 1 else ''}, too few to plot one against another "
-                       f"(the count is in the results table).")
+                       f"cycle, too few to plot one count against another (the count is in the routes table).")
+    elif period is not None:
+        omitted.append("The cycle-by-cycle counts are left out: counting cycle by cycle gave no estimate for "
+                       "this record.")
     else:
         omitted.append("The cycle-by-cycle counts are left out: no yearly cycle was found to count.")
     if tilt is not None:

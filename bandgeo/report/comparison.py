@@ -24,7 +24,8 @@ def days_per_year_figure(estimates, references, age_ma=None, age_err_ma=None, si
     significant : bool
         When False no estimate is drawn and the figure says so.
     """
-    fig = Figure(figsize=(8.0, 5.2), layout="constrained")
+    fig = Figure(figsize=(7.2, 4.8))
+    fig.subplots_adjust(left=0.1, right=0.98, top=1 - 0.5 / 4.8, bottom=0.95 / 4.8)   # fixed: quick
     ax = fig.add_subplot(1, 1, 1)
     for k, ref in enumerate(references):
         err = ref.get("err")
@@ -50,7 +51,7 @@ def days_per_year_figure(estimates, references, age_ma=None, age_err_ma=None, si
                     ax.axhspan(lo, hi, color=color, alpha=0.15 if j == 0 else 0.07, lw=0)
                 ax.axhline(est, color=color, lw=1.3 if j == 0 else 0.8, ls="-" if j == 0 else "--",
                            label=f"{label} (specimen age not given)")
-        fig.legend(fontsize=7, loc="outside lower center", ncol=2, frameon=False)
+        fig.legend(fontsize=7, loc="lower center", ncol=2, frameon=False, bbox_to_anchor=(0.5, 0.0))
     else:
         ax.text(0.5, 0.92, "No significant annual cycle in this specimen: no estimate is shown.",
                 transform=ax.transAxes, ha="center", fontsize=10, color=LINE["fit"])

@@ -17,6 +17,19 @@ from .palette import IMAGE_CMAP, LINE
 _OUTLINE = [patheffects.withStroke(linewidth=2.2, foreground="black")]
 
 
+def _fixed(fig, height, left=0.1, right=0.98, top_in=0.3, bottom_in=0.5, **kw):
+    """Fixed margins in inches (constrained layout measures every tick label several times: slow)."""
+    fig.subplots_adjust(left=left, right=right, top=1 - top_in / height, bottom=bottom_in / height, **kw)
+
+
+def _thin(x, y, n_max=1500):
+    """At most about ``2 n_max`` points of a long curve, every extreme kept (see :func:`envelope`)."""
+    if len(x) <= 2 * n_max:
+        return x, y
+    ok = np.isfinite(y)
+    return envelope(np.asarray(x, float)[ok], np.asarray(y, float)[ok], n_bins=n_max, log=False)
+
+
 def sinusoid_fit(x, y, period):
     """Least-squares fit ``a + b x + c cos(2 pi x / P) + d sin(2 pi x / P)``.
 
@@ -54,18 +67,20 @@ def series_figure(series, period_bands=None, sway_azimuth_deg=None):
     x = np.asarray(series.band_number, float)
     hiatus = np.asarray(getattr(series, "hiatus_flags", None) if getattr(series, "hiatus_flags", None)
                         is not None else np.zeros(len(x), bool), bool)
-    fig = Figure(figsize=(7.2, 1.9 * len(panels) + 0.7), layout="constrained")
+    height = 1.75 * len(panels) + 0.6
+    fig = Figure(figsize=(7.2, height))
+    _fixed(fig, height, left=0.11, top_in=0.15, bottom_in=0.45, hspace=0.12)
     axes = fig.subplots(len(panels), 1, sharex=True, squeeze=False)[:, 0]
     unit = {"thickness_mm": "mm", "sway_deg": "°", "inclination_deg": "°"}
     for ax, (attr, label, kind) in zip(axes, panels):
         y = np.asarray(getattr(series, attr), float)
-        ax.plot(x, y, color=LINE["data"], lw=0.5, label="measured, one point per band")
+        ax.plot(*_thin(x, y), color=LINE["data"], lw=0.5, label="measured, one point per band")
         if hiatus.any() and hiatus.size == y.size:
             ax.plot(x[hiatus], y[hiatus], "v", color=LINE["hiatus"], ms=4, label="possible hiatus after this band")
         if kind == "sine" and period_bands and np.isfinite(period_bands) and np.isfinite(y).sum() > 8:
             fitted, amp = sinusoid_fit(x, y, period_bands)
             amp_text = f"{amp:.3f} mm" if unit[attr] == "mm" else f"{amp:.2f}°"
-            ax.plot(x, fitted, color=LINE["fit"], lw=1.4,
+            ax.plot(*_thin(x, fitted, 400), color=LINE["fit"], lw=1.4,
                     label=f"annual sinusoid + trend: period {period_bands:.0f} bands, amplitude {amp_text}")
         elif kind == "mean" and np.isfinite(y).sum() > 8:
             win = int(max(15, round(period_bands / 10))) if period_bands and np.isfinite(period_bands) else 15
@@ -74,7 +89,8 @@ def series_figure(series, period_bands=None, sway_azimuth_deg=None):
             num = np.convolve(np.where(ok, y, 0.0), kernel, mode="same")
             den = np.convolve(ok.astype(float), kernel, mode="same")
             with np.errstate(invalid="ignore", divide="ignore"):
-                ax.plot(x, num / den, color=LINE["reference"], lw=1.3, label=f"running mean over {win} bands")
+                ax.plot(*_thin(x, num / den, 400), color=LINE["reference"], lw=1.3,
+                        label=f"running mean over {win} bands")
         ax.set_ylabel(label, fontsize=7.5)
         ax.tick_params(labelsize=7)
         ax.legend(fontsize=6.5, loc="upper right", framealpha=0.85)
@@ -130,15 +146,15 @@ def periodogram_figure(spectra, searched=None, estimate_frequency=None):
             f_lo, f_hi = 1.0 / max(searched), 1.0 / min(searched)
             ax.axvspan(f_lo, f_hi, color=LINE["search"], alpha=0.18, lw=0,
                        label=f"periods searched for a yearly cycle: {min(searched):.0f} to {max(searched):.0f} bands")
-        ax.plot(*envelope(f[pos], p[pos]), color=LINE["data"], lw=0.8, label="power of the series")
+        ax.plot(*envelope(f[pos], p[pos], n_bins=700), color=LINE["data"], lw=0.8, label="power of the series")
         if spec.get("multitaper") is not None:
-            ax.plot(*envelope(f[pos], spec["multitaper"][pos]), color=LINE["reference"], lw=0.8, alpha=0.8,
+            ax.plot(*envelope(f[pos], spec["multitaper"][pos], n_bins=500), color=LINE["reference"], lw=0.8, alpha=0.8,
                     label="power, averaged over tapers")
         for key, style, text in (("background", ":", "expected from red noise alone"),
                                  ("level95", "--", "red noise exceeds this 5 % of the time"),
                                  ("level99", "-.", "red noise exceeds this 1 % of the time")):
             if spec.get(key) is not None:
-                ax.plot(*envelope(f[pos], spec[key][pos], n_bins=400), ls=style, lw=1.1,
+                ax.plot(*envelope(f[pos], spec[key][pos], n_bins=150), ls=style, lw=1.1,
                         color=LINE[key if key != "background" else "background"], label=text)
         if estimate_frequency and np.isfinite(estimate_frequency):
             ax.axvline(estimate_frequency, color=LINE["estimate"], lw=1.0,
@@ -147,6 +163,10 @@ def periodogram_figure(spectra, searched=None, estimate_frequency=None):
             ax.set_yscale("log")
         ax.set_xscale("log")
         ax.set_xlim(float(np.min(f[pos])), float(np.max(f)))
+        from matplotlib.ticker import LogLocator, NullLocator
+        ax.xaxis.set_minor_locator(NullLocator())          # fewer marks: quicker to typeset, easier to read
+        ax.yaxis.set_minor_locator(NullLocator())
+        ax.yaxis.set_major_locator(LogLocator(numticks=6))
         ax.text(0.01, 0.03, f"{name.replace('_', ' ')} series", transform=ax.transAxes, fontsize=8.5,
                 weight="bold", va="bottom", bbox={"fc": "white", "ec": "none", "alpha": 0.8, "pad": 1.5})
         ax.set_ylabel(f"power, {spec['power_unit']}", fontsize=7.5)
@@ -179,7 +199,9 @@ def evolutive_figure(evolutive, searched=None):
     from matplotlib.colors import LogNorm
 
     usable = [ev for ev in evolutive if len(ev["centre"]) >= 3]
-    fig = Figure(figsize=(7.2, 2.8 * len(usable) + 0.4), layout="constrained")
+    height = 2.6 * len(usable) + 0.3
+    fig = Figure(figsize=(7.2, height))
+    _fixed(fig, height, right=0.9, top_in=0.3, bottom_in=0.45, hspace=0.45)
     axes = fig.subplots(len(usable), 1, squeeze=False)[:, 0]
     for ax, ev in zip(axes, usable):
         f = np.asarray(ev["frequency"], float)
@@ -195,6 +217,8 @@ def evolutive_figure(evolutive, searched=None):
             for b in searched:
                 ax.axhline(1.0 / b, color="white", lw=0.9, ls="--", path_effects=_OUTLINE)
         ax.set_yscale("log")
+        from matplotlib.ticker import NullLocator
+        ax.yaxis.set_minor_locator(NullLocator())
         ax.set_xlabel("centre of the window, band number", fontsize=8)
         ax.set_ylabel("frequency, cycles per band", fontsize=8)
         ax.tick_params(labelsize=7)
@@ -208,7 +232,8 @@ def counts_figure(counts, estimate=None):
     Dots rather than bars, because the value axis does not start at zero.
     """
     counts = np.asarray([c for c in counts if c is not None], float)
-    fig = Figure(figsize=(7.2, 2.6), layout="constrained")
+    fig = Figure(figsize=(7.2, 2.6))
+    _fixed(fig, 2.6, top_in=0.3, bottom_in=0.45)
     ax = fig.add_subplot(1, 1, 1)
     idx = np.arange(1, len(counts) + 1)
     ax.plot(idx, counts, "o-", color=LINE["data"], lw=0.8, ms=5, label="bands in the cycle")
@@ -241,8 +266,9 @@ def plan_view_figure(east_deg, north_deg, sway_azimuth_deg=None, mean_lean=None,
 
     e, n = np.asarray(east_deg, float), np.asarray(north_deg, float)
     k = np.arange(len(e))
-    fig = Figure(figsize=(7.2, 3.9), layout="constrained")
-    ax, bx = fig.subplots(1, 2, gridspec_kw={"width_ratios": [1.0, 1.25]})
+    fig = Figure(figsize=(7.2, 3.9))
+    _fixed(fig, 3.9, left=0.08, right=0.98, top_in=0.3, bottom_in=0.5, wspace=0.35)
+    ax, bx = fig.subplots(1, 2, gridspec_kw={"width_ratios": [1.0, 1.15]})
     norm = Normalize(0, max(len(e) - 1, 1))
     sc = ax.scatter(e, n, c=k, cmap=IMAGE_CMAP, norm=norm, s=4, lw=0, rasterized=True)
     win = int(max(5, round(period_bands / 12))) if period_bands else 9
@@ -272,7 +298,7 @@ def plan_view_figure(east_deg, north_deg, sway_azimuth_deg=None, mean_lean=None,
     ax.grid(alpha=0.25)
     ax.legend(fontsize=6.5, loc="lower left", framealpha=0.85)
     ax.set_title("seen from above (+: upright)", fontsize=8.5)
-    cb = fig.colorbar(sc, ax=ax, shrink=0.8, pad=0.02)
+    cb = fig.colorbar(sc, ax=ax, shrink=0.8, pad=0.03, fraction=0.06)
     cb.set_label("band number (0 = lowest)", fontsize=7)
     cb.ax.tick_params(labelsize=6)
     # the same vectors against band number, in the sway plane and across it
