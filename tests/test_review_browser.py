@@ -112,6 +112,14 @@ def test_thousand_boundary_workflow(long_record, browser):
         listed = [by_id[int(i)]["height_mm"] for i in page.locator("#blist tbody tr").evaluate_all(
             "rows => rows.map(r => r.dataset.id)")]
         assert listed and all(v0 <= h <= v1 for h in listed)
+        # The 3-D view turned to the region being edited.
+        page.wait_for_function(f"() => Math.abs(+document.getElementById('view3d').dataset.focus - {b['height_mm']}) < 1e-6")
+        # No label is cut off: nothing in the header, toolbar or list headings overflows its box.
+        clipped = page.evaluate("""() => [...document.querySelectorAll(
+            'header *, .toolbar *, #blist th, .legend span, footer span, .box h3, .box .facts')]
+            .filter(e => e.offsetParent !== null && e.scrollWidth > e.clientWidth + 1 && e.clientWidth > 0)
+            .map(e => e.id || e.className || e.textContent.slice(0, 30))""")
+        assert clipped == [], clipped
         # The next one starts from the selection, not from the base.
         page.keyboard.press("PageDown")
         second = _selected(page, server)

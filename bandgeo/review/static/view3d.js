@@ -100,6 +100,7 @@ export function createView3D(canvas, note) {
     controls.target.copy(p); camera.up.copy(t);
     camera.position.copy(p.clone().add(dir.multiplyScalar(want)));
     camera.lookAt(p); controls.update(); request();
+    canvas.dataset.focus = String(s);            // the height the view is centred on (mm), for tests
   }
   function whole() {
     if (!data) return;
