@@ -306,3 +306,40 @@ def test_many_parallel_attack_requests_leave_the_server_serving(served):
     assert statuses and all(s in (403, 415) for s in statuses)
     assert server.app.session.edits == [] and not (folder / "review.json").exists()
     assert send(server, "GET", "/api/state", headers={"X-Review-Token": server.app.token})[0] == 200
+
+
+# ---------------------------------------------------------------------------------------------- kills
+def test_a_save_killed_at_any_moment_never_leaves_a_half_written_review(tmp_path):
+    """A process saving reviews over and over is killed (SIGKILL) at pseudo-random moments, 12 times:
+    each time review.json is either absent or a whole review, and the next save or server start
+    removes the temporary files the killed save left."""
+    import random
+    import subprocess
+    import sys
+    import textwrap
+
+    from bandgeo.review.store import clean_temp_files
+
+    script = textwrap.dedent(f"""
+        from bandgeo.review.store import save_review
+        i = 0
+        print("go", flush=True)
+        while True:
+            edits = [{{"op": "note", "text": "save %d item %d " % (i, j) + "x" * 400}} for j in range(i % 40 + 1)]
+            save_review({str(tmp_path)!r}, {{"edits": edits}})
+            i += 1
+    """)
+    rng = random.Random(20261202)
+    for _ in range(12):
+        proc = subprocess.Popen([sys.executable, "-c", script], stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+        try:
+            assert proc.stdout.readline().strip() == b"go"
+            time.sleep(rng.uniform(0.05, 0.6))
+        finally:
+            proc.kill()
+            proc.wait(30)
+        review = read_review(tmp_path)            # raises on a half-written file
+        assert review is None or (review["edits"] and review["history"][-1]["edits_after"] == len(review["edits"]))
+    clean_temp_files(tmp_path)
+    assert not list(tmp_path.glob(".review.*.json"))
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["review.json"]
