@@ -1,6 +1,13 @@
-"""Regenerate the bundled sample specimens, their truth files and specimen sheets (same bytes every time).
+"""Regenerate the bundled sample specimens, their truth files and specimen sheets.
 
-Usage:  python sample_meshes/make_samples.py [--out FOLDER]
+Usage:  python sample_meshes/make_samples.py [--out FOLDER] [--legacy]
+
+The default set (SAMPLES) is realistic: six years of record on columns 9-11 mm across, swaying and
+meandering, scanned as unaligned photogrammetry-like meshes with noise of about 10 % and groove relief
+of 25 % of a lamina. To keep each PLY under about 15 MB the triangles are short along the column (a
+quarter of a lamina) and stretched around it (17-19 times longer), with one smoothing pass (see
+README.md). ``--legacy`` writes the earlier three-year, ring-mesh set (LEGACY_SAMPLES) instead.
+The same seed gives the same specimen; floats may differ in the last bits between machines.
 
 The scenario (Karrabin Formation, Tallow Creek, Mirrin Ranges) is invented; see README.md here.
 Each sheet's ``up`` and ``north`` are the field vertical and geographic north at collection, in the
@@ -26,7 +33,51 @@ from bandgeo.synth import SynthParams, simulate, write_specimen  # noqa: E402
 COMMON = dict(formation="Karrabin Formation", locality="Tallow Creek, Mirrin Ranges",
               collector="A. Okonkwo-Reyes", age_ma=1105.0, age_err_ma=12.0)
 
+#: The realistic set (the default). Six years at 400 days a year: 2400 laminae of about 0.2 mm.
 SAMPLES = [
+    {
+        "file": "KRB-07_annual.ply", "sheet": "KRB-07.sheet.toml", "specimen_id": "KRB-07",
+        "horizon": "lower Karrabin, columnar biostrome bed 14", "bedding": (35.0, 14.0), "north": True,
+        "notes": "clear annual banding, sway and meander; a few short missing-day gaps",
+        "params": dict(days_per_year=400, years=6.0, mean_thickness_mm=0.2, annual_amplitude=0.35,
+                       noise_cv=0.12, ar1_phi=0.4, hiatus_rate_per_year=0.7, hiatus_mean_days=2.0,
+                       sway_amplitude_deg=4.5, sway_azimuth_deg=25.0, meander_amplitude_deg=1.2,
+                       meander_correlation_laminae=40.0, mean_tilt_deg=1.5, mean_tilt_azimuth_deg=110.0,
+                       radius_mm=5.0, radius_variation=0.06, dome_height_mm=1.2, groove_depth_mm=0.05,
+                       groove_width_fraction=0.4, scanner_noise_mm=0.02, mesh_kind="photogrammetric",
+                       edge_length_mm=0.05, edge_aspect=19.0, smoothing_iterations=1, holes=1,
+                       pose="random", units="mm", seed=707),
+    },
+    {
+        "file": "KRB-12_null.ply", "sheet": "KRB-12.sheet.toml", "specimen_id": "KRB-12",
+        "horizon": "lower Karrabin, columnar biostrome bed 16", "bedding": None, "north": False,
+        "notes": "null case: red-noise thickness and meander, no annual cycle, no sway; way-up from the sheet",
+        "params": dict(days_per_year=400, years=6.0, mean_thickness_mm=0.2, annual_amplitude=0.0,
+                       noise_cv=0.25, ar1_phi=0.7, sway_amplitude_deg=0.0, meander_amplitude_deg=1.2,
+                       meander_correlation_laminae=40.0, mean_tilt_deg=1.5, mean_tilt_azimuth_deg=200.0,
+                       radius_mm=4.5, radius_variation=0.06, dome_height_mm=1.0, groove_depth_mm=0.05,
+                       groove_width_fraction=0.4, scanner_noise_mm=0.02, mesh_kind="photogrammetric",
+                       edge_length_mm=0.05, edge_aspect=17.0, smoothing_iterations=1, pose="random",
+                       units="mm", seed=1212),
+    },
+    {
+        "file": "KRB-31_anisotropic.ply", "sheet": "KRB-31.sheet.toml", "specimen_id": "KRB-31",
+        "horizon": "upper Karrabin, tidal-flat stromatolite bed 3", "bedding": (212.0, 9.0), "north": True,
+        "notes": "strongly anisotropic triangles, file in centimetres; fortnightly and monthly tidal "
+                 "modulation",
+        "params": dict(days_per_year=400, years=6.0, mean_thickness_mm=0.22, annual_amplitude=0.25,
+                       noise_cv=0.12, ar1_phi=0.4, days_per_synodic_month=30.5, tidal_amplitude=0.25,
+                       sway_amplitude_deg=5.0, sway_azimuth_deg=160.0, meander_amplitude_deg=1.0,
+                       meander_correlation_laminae=50.0, mean_tilt_deg=2.0, mean_tilt_azimuth_deg=300.0,
+                       radius_mm=5.5, radius_variation=0.08, radius_taper=-0.15, dome_height_mm=1.0,
+                       groove_depth_mm=0.055, groove_width_fraction=0.35, scanner_noise_mm=0.022,
+                       mesh_kind="photogrammetric", edge_length_mm=0.055, edge_aspect=19.0,
+                       smoothing_iterations=1, base="cut", top="domed", pose="random", units="cm", seed=3131),
+    },
+]
+
+#: The earlier set (three years, ring meshes, old defaults): ``--legacy``.
+LEGACY_SAMPLES = [
     {
         "file": "KRB-07_annual.ply", "sheet": "KRB-07.sheet.toml", "specimen_id": "KRB-07",
         "horizon": "lower Karrabin, columnar biostrome bed 14", "bedding": (35.0, 14.0), "north": True,
@@ -111,9 +162,13 @@ def sheet_text(sample: dict, truth: dict) -> str:
 def main(argv=None) -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--out", type=Path, default=HERE, help="folder to write into (default: this one)")
+    ap.add_argument("--legacy", action="store_true", help="write the earlier three-year ring-mesh set")
+    ap.add_argument("--only", default=None, help="write only the sample whose file name starts with this")
     args = ap.parse_args(argv)
     total = 0
-    for sample in SAMPLES:
+    for sample in (LEGACY_SAMPLES if args.legacy else SAMPLES):
+        if args.only and not sample["file"].startswith(args.only):
+            continue
         spec = simulate(SynthParams(**sample["params"]))
         written = write_specimen(spec, args.out / sample["file"])
         write_text(args.out / sample["sheet"], sheet_text(sample, spec.truth))
@@ -122,7 +177,8 @@ def main(argv=None) -> int:
         total += size
         print(f"{sample['file']}: {written['mesh_bytes'] / 2**20:.1f} MB mesh + "
               f"{written['truth_bytes'] / 2**10:.0f} kB truth, {spec.n_faces:,} faces, "
-              f"{lam['n_recorded']} laminae, {lam['recorded_laminae_per_year']:.1f} recorded laminae/yr "
+              f"{spec.n_vertices:,} vertices, {lam['n_recorded']} laminae, "
+              f"{lam['recorded_laminae_per_year']:.1f} recorded laminae/yr "
               f"(nominal {lam['laminae_per_year_nominal']:.0f}), units {spec.truth['units']}")
     print(f"total {total / 2**20:.1f} MB")
     return 0

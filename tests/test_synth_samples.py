@@ -1,6 +1,7 @@
-"""The bundled sample specimens: small, regenerable byte for byte, loadable, and consistent with their
-truth files and specimen sheets."""
+"""The bundled sample specimens: small, regenerable (to float tolerance), loadable, and consistent with
+their truth files and specimen sheets."""
 import json
+import math
 import subprocess
 import sys
 from pathlib import Path
@@ -24,16 +25,76 @@ def _truth(stem):
 
 def test_samples_are_small():
     sizes = {p.name: p.stat().st_size for p in SAMPLES.iterdir() if p.is_file()}
-    assert all(size <= 10 * 2**20 for size in sizes.values())
-    assert sum(sizes.values()) <= 25 * 2**20
+    assert all(size <= 15 * 2**20 for size in sizes.values())
+    assert sum(sizes.values()) <= 50 * 2**20
 
 
-def test_make_samples_regenerates_the_same_bytes(tmp_path):
-    proc = subprocess.run([sys.executable, str(SAMPLES / "make_samples.py"), "--out", str(tmp_path)],
-                          capture_output=True, text=True)
+def _sample_sets():
+    sys.path.insert(0, str(SAMPLES))
+    try:
+        import make_samples
+    finally:
+        sys.path.remove(str(SAMPLES))
+    return {"default": make_samples.SAMPLES, "legacy": make_samples.LEGACY_SAMPLES}
+
+
+def _same(a, b, path="", rel=1e-6):
+    """Compare the committed value ``a`` with the regenerated ``b``: every key of ``a`` (extra keys in
+    ``b`` are new fields), numbers to a relative tolerance (floats need not agree to the last bit
+    across machines), lists element by element."""
+    if isinstance(a, dict):
+        assert isinstance(b, dict), path
+        for k in a:
+            assert k in b, f"{path}/{k} missing"
+            _same(a[k], b[k], f"{path}/{k}", rel)
+    elif isinstance(a, list):
+        assert isinstance(b, list) and len(a) == len(b), path
+        if a and all(isinstance(x, (int, float)) and not isinstance(x, bool) for x in a):
+            np.testing.assert_allclose(np.asarray(b, float), np.asarray(a, float), rtol=rel,
+                                       atol=rel * max(1.0, float(np.abs(np.asarray(a, float)).max())),
+                                       err_msg=path)
+        else:
+            for i, (x, y) in enumerate(zip(a, b)):
+                _same(x, y, f"{path}[{i}]", rel)
+    elif isinstance(a, float) or isinstance(b, float):
+        assert b is not None and math.isclose(a, b, rel_tol=rel, abs_tol=rel), (path, a, b)
+    else:
+        assert a == b, (path, a, b)
+
+
+def test_make_samples_regenerates_the_samples(tmp_path):
+    """make_samples.py rebuilds the committed files (whichever of its sets they come from): same
+    faces, vertices and colours within float tolerance, same truth and sheet values."""
+    sets = _sample_sets()
+    committed = _truth("KRB-07_annual")["params"]
+    chosen = None
+    for name, samples in sets.items():
+        params = dict(samples[0]["params"])
+        if all(k in committed and (committed[k] == v or (isinstance(v, float) and math.isclose(committed[k], v)))
+               for k, v in params.items()):
+            chosen = name
+    assert chosen is not None, "the committed samples match no set of make_samples.py; regenerate them"
+    args = [sys.executable, str(SAMPLES / "make_samples.py"), "--out", str(tmp_path)]
+    proc = subprocess.run(args + (["--legacy"] if chosen == "legacy" else []), capture_output=True, text=True)
     assert proc.returncode == 0, proc.stderr
-    for path in tmp_path.iterdir():
-        assert path.read_bytes() == (SAMPLES / path.name).read_bytes(), path.name
+    if sys.version_info >= (3, 11):
+        import tomllib
+    else:  # pragma: no cover - tomli is a dependency below 3.11
+        import tomli as tomllib
+    for path in sorted(tmp_path.iterdir()):
+        ref = SAMPLES / path.name
+        if path.suffix == ".ply":
+            a, b = trimesh.load(ref, process=False), trimesh.load(path, process=False)
+            np.testing.assert_array_equal(np.asarray(a.faces), np.asarray(b.faces))
+            va, vb = np.asarray(a.vertices), np.asarray(b.vertices)
+            np.testing.assert_allclose(vb, va, rtol=0, atol=1e-5 * np.abs(va).max())
+            ca = np.asarray(a.visual.vertex_colors, int)[:, :3]
+            cb = np.asarray(b.visual.vertex_colors, int)[:, :3]
+            assert np.abs(ca - cb).max() <= 1
+        elif path.name.endswith(".json"):
+            _same(json.loads(ref.read_text()), json.loads(path.read_text()))
+        else:
+            _same(tomllib.loads(ref.read_text()), tomllib.loads(path.read_text()))
 
 
 @pytest.mark.parametrize("stem", sorted(STEMS))
@@ -78,7 +139,9 @@ def test_annual_sample_has_a_cycle_and_null_sample_has_none():
     assert _annual_amplitude(_truth("KRB-07_annual")) == pytest.approx(0.35, abs=0.04)
     assert _annual_amplitude(_truth("KRB-12_null")) < 0.05
     null = _truth("KRB-12_null")
-    assert null["params"]["sway_amplitude_deg"] == 0 and np.ptp(null["laminae"]["sway_deg"]) == 0
+    # No annual sway (the meander, red noise, may still turn the growth direction).
+    annual = null["laminae"].get("annual_sway_deg", null["laminae"]["sway_deg"])
+    assert null["params"]["sway_amplitude_deg"] == 0 and np.ptp(annual) == 0
 
 
 @pytest.mark.parametrize("stem", sorted(STEMS))
