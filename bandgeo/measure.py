@@ -200,7 +200,7 @@ def measure_bands(specimen, segmentation) -> BandTable:
     bs = sorted(bs, key=lambda b: b.height_mm)
     nb = max(0, len(bs) - 1)
     warnings = []
-    north_known = bool(getattr(specimen, "north_known", True))
+    north_known = bool(specimen.north_known)
     if not north_known and nb:
         warnings.append("north is not known: azimuths are measured from the specimen's y axis, not north")
     if nb == 0:

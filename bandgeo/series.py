@@ -7,11 +7,16 @@ import io
 import os
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Optional
+from typing import TYPE_CHECKING, Optional
 
 import numpy as np
 
 from .errors import InputError, SeriesError
+
+if TYPE_CHECKING:  # pragma: no cover - types only
+    from .measure import BandTable
+    from .scan import Specimen
+    from .segment import Segmentation
 
 #: Fewest bands a series may have.
 MIN_BANDS = 24
@@ -152,7 +157,8 @@ def _hiatus_from_flags(flags, n: int) -> np.ndarray:
     return np.zeros(n, bool)
 
 
-def build_series(band_table, segmentation=None, specimen=None) -> BandSeries:
+def build_series(band_table: "BandTable", segmentation: "Optional[Segmentation]" = None,
+                 specimen: "Optional[Specimen]" = None) -> BandSeries:
     """Series of one specimen from its band table (and, for the depth profile, its mesh).
 
     Parameters
@@ -171,7 +177,7 @@ def build_series(band_table, segmentation=None, specimen=None) -> BandSeries:
     BandSeries
     """
     h = np.asarray(band_table.thickness_axis_mm, dtype=float).copy()
-    alt = getattr(band_table, "thickness_median_mm", None)
+    alt = band_table.thickness_median_mm
     warnings: list[str] = []
     if alt is not None:
         alt = np.asarray(alt, dtype=float)
@@ -187,7 +193,7 @@ def build_series(band_table, segmentation=None, specimen=None) -> BandSeries:
                         f"the median thickness was used for them - check them in review")
     inc, az = _tilt_columns(band_table, h.size, warnings)
     series = series_from_thickness(h, inc, az, source="band table",
-                                   hiatus_flags=_hiatus_from_flags(getattr(band_table, "flags", None), h.size))
+                                   hiatus_flags=_hiatus_from_flags(band_table.flags, h.size))
     series.warnings = warnings + series.warnings
     if segmentation is not None and specimen is not None:
         try:
@@ -198,19 +204,18 @@ def build_series(band_table, segmentation=None, specimen=None) -> BandSeries:
     return series
 
 
-def _tilt_columns(band_table, n: int, warnings: list):
+def _tilt_columns(band_table: "BandTable", n: int, warnings: list):
     """The per-band tilt to analyse: the base boundary normals when measured, else the growth direction.
 
     The growth direction averages a band's two boundary normals, which neighbouring bands share, so its
     series is a moving average (MA(1)) of the boundary fit noise; the base normals are independent.
     """
-    inc = getattr(band_table, "base_inclination_deg", None)
-    az = getattr(band_table, "base_azimuth_deg", None)
+    inc, az = band_table.base_inclination_deg, band_table.base_azimuth_deg
     if inc is not None and az is not None:
         inc, az = np.asarray(inc, dtype=float).reshape(-1), np.asarray(az, dtype=float).reshape(-1)
         if inc.size == n and az.size == n and np.all(np.isfinite(inc)) and np.all(np.isfinite(az)):
             return inc, az
-    inc, az = getattr(band_table, "inclination_deg", None), getattr(band_table, "azimuth_deg", None)
+    inc, az = band_table.inclination_deg, band_table.azimuth_deg
     if inc is not None:
         warnings.append("the band table has no base-boundary tilt; the growth direction (mean of two boundary "
                         "normals shared with the neighbours) was used, whose noise is smoothed over two bands")

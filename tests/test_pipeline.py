@@ -1,7 +1,7 @@
 """The whole job on forward-model specimens whose truth is known (the forward model is the oracle).
 
 References: the days-per-year truth is the forward model's own parameter (invented data, oracle only);
-length of day = Y / N with Y = 365.24219 d (standard almanac value, /work/shared/reference-values.md).
+length of day = Y / N with Y = 365.24219 d (standard almanac value).
 """
 import json
 import subprocess
