@@ -1,4 +1,5 @@
-"""Astronomy conversions against the published values in /work/shared/reference-values.md."""
+"""Astronomy conversions against published values (sources named beside each check) and worked numbers
+computed from the published constants (Meeus; IAU; Yoder 1995; Williams 2000)."""
 import math
 
 import pytest
@@ -11,14 +12,14 @@ def test_length_of_day_of_williams_2000():
     # Williams (2000) Rev. Geophys. 38:37-59: 400 +- 7 solar days per year <-> 21.9 +- 0.4 h.
     r = astro.rotation_from_days_per_year(400, [393, 407])
     lod = r["length_of_day_hours"]
-    assert lod["estimate"] == pytest.approx(21.91, abs=0.005)   # worked value, reference-values.md
+    assert lod["estimate"] == pytest.approx(21.91, abs=0.005)   # worked value from the published constants
     assert lod["ci95"][0] == pytest.approx(21.9 - 0.4, abs=0.05)
     assert lod["ci95"][1] == pytest.approx(21.9 + 0.4, abs=0.05)
     assert r["sidereal_day_hours"]["estimate"] < lod["estimate"]
 
 
 def test_length_of_day_of_vanyo_awramik_1985():
-    # Vanyo & Awramik (1985): 435 laminae per annual wave; worked value 20.15 h (reference-values.md).
+    # Vanyo & Awramik (1985): 435 laminae per annual wave; worked value 20.15 h (from the published constants).
     assert astro.rotation_from_days_per_year(435)["length_of_day_hours"]["estimate"] == pytest.approx(20.15, abs=0.005)
 
 
@@ -30,7 +31,7 @@ def test_present_day_is_consistent():
 
 
 def test_present_angular_momenta():
-    # reference-values.md: spin 5.859e33 and orbital 2.858e34 kg m^2/s (ratio 4.88). Our orbital value
+    # worked numbers from the published constants: spin 5.859e33 and orbital 2.858e34 kg m^2/s (ratio 4.88). Our orbital value
     # keeps the lunar eccentricity term sqrt(1 - e^2) = 0.9985 of the formula, 0.15% below the worked figure.
     am = astro.present_angular_momenta()
     assert am["spin_kg_m2_per_s"] == pytest.approx(5.859e33, rel=1e-3)
@@ -39,7 +40,7 @@ def test_present_angular_momenta():
 
 
 def test_earth_moon_distance_by_angular_momentum():
-    # reference-values.md: N = 400 -> a/a0 0.9615 (369,590 km, 57.95 Earth radii); N = 435 -> 0.923.
+    # worked numbers (angular momentum, published constants): N = 400 -> a/a0 0.9615 (369,590 km, 57.95 Earth radii); N = 435 -> 0.923.
     # Williams (2000): a/a0 = 0.965 +- 0.005 at ~620 Ma.
     d = astro.earth_moon_distance(days_per_year=400, days_per_year_ci95=[393, 407])["angular_momentum"]
     assert d["a_over_a0"]["estimate"] == pytest.approx(0.9615, abs=5e-4)
@@ -52,7 +53,7 @@ def test_earth_moon_distance_by_angular_momentum():
 
 
 def test_earth_moon_distance_by_kepler():
-    # reference-values.md: 13.1 synodic months/yr (14.1 sidereal) -> Kepler a/a0 0.966; Williams (2000)
+    # Williams (2000) Rev. Geophys. 38:37-59: 13.1 synodic months/yr (14.1 sidereal) -> Kepler a/a0 0.966; Williams:
     # 0.965 +- 0.005. The ratio form (T/T0)^(2/3) gives 0.9651, the two-body absolute form 0.9660.
     k = astro.earth_moon_distance(synodic_months_per_year=13.1, months_ci95=[13.0, 13.2])["kepler"]
     assert k["a_over_a0"]["estimate"] == pytest.approx(0.965, abs=0.005)

@@ -83,7 +83,7 @@ def test_compilation_flags_the_planted_outlier(batch_folder):
     assert "horizon_outlier" in rows["KRB-05"]["flags"]
     # No annual cycle: listed, never given an estimate.
     assert rows["KRB-31"]["days_per_year"] == "" and "no annual cycle" in rows["KRB-31"]["flags"]
-    # LOD = Y / N with Y = 365.24219 d: N = 400 -> 21.91 h (reference-values.md, worked numbers).
+    # LOD = Y / N with Y = 365.24219 d: N = 400 -> 21.91 h (worked number from the published constants).
     _specimen(batch_folder, "KRB-77", "Karrabin mid", 1090.0, 400.0, 7.0)
     rows = {r["specimen_id"]: r for r in csv.DictReader(open(compile_results(batch_folder).files["csv"]))}
     assert float(rows["KRB-77"]["length_of_day_h"]) == pytest.approx(21.91, abs=0.005)
@@ -100,7 +100,7 @@ def test_figures_and_page_are_self_contained(batch_folder):
     html = comp.files["html"].read_text()
     assert "<svg" in html and "KRB-05" in html and "no annual cycle" in html
     assert not re.search(r"""(src|href)\s*=\s*["']https?://""", html)  # nothing fetched from the network
-    # Published points, cited (reference-values.md).
+    # Published points, each with its citation.
     assert "Williams (2000)" in html and "Meyers &amp; Malinverno (2018)" in html
     assert "How outliers are flagged" in html
     assert "No age given" not in html  # every specimen here has an age

@@ -87,7 +87,7 @@ def test_compilation_of_the_real_results(local_run, collection):
     assert comp.rows[-1]["status"] == "failed"
     for row, outcome in zip(comp.rows[:2], summary.outcomes[:2]):
         assert row["days_per_year"] == outcome.digest["days_per_year"]
-        if row["days_per_year"] is not None:  # LOD = Y / N, Y = 365.24219 d (reference-values.md)
+        if row["days_per_year"] is not None:  # LOD = Y / N, Y = 365.24219 d (standard almanac value)
             assert row["length_of_day_h"] == pytest.approx(365.24219 * 24.0 / row["days_per_year"], rel=1e-6)
     assert comp.files["html"].is_file() and comp.files["pdf"].is_file()
     # At least one estimate, so that the local/Dask comparison above compared numbers, not only nulls.

@@ -52,7 +52,7 @@ def test_clear_case_interval_contains_truth_and_is_narrow(clear_case):
     # the target: the interval is at most 5% wide on the clear case
     assert (hi - lo) / dpy["estimate"] <= 0.05
     lod = state.result["length_of_day_hours"]
-    # LOD = Y / N (reference-values.md formula)
+    # LOD = Y / N (Y the tropical year, standard almanac value)
     assert lod["estimate"] == pytest.approx(YEAR_H / dpy["estimate"], rel=1e-6)
     assert lod["ci95"][0] <= YEAR_H / true_n <= lod["ci95"][1]
 

@@ -89,7 +89,7 @@ def test_summary_never_turns_no_cycle_into_an_estimate():
 
 
 def test_summary_derives_length_of_day_from_days_per_year():
-    # LOD = Y / N, Y = 365.24219 d (reference-values.md formula; standard almanac year)
+    # LOD = Y / N, Y = 365.24219 d (standard almanac year)
     result = {"days_per_year": {"significant": True, "estimate": 400.0, "ci95": [393.0, 407.0]}}
     lod = ResultSummary.from_json(result).length_of_day_hours
     assert lod.estimate == pytest.approx(365.24219 * 24 / 400.0, rel=1e-12)

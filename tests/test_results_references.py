@@ -33,7 +33,7 @@ def test_williams_1989_rhythmites():
     # Williams (1989) J. Geol. Soc. London 146:97-111: ~650 Ma, 400 +/- 20 days/yr
     w = _by_author("Williams (1989)")
     assert (w.age_ma, w.days_per_year, w.dpy_err) == (650.0, 400.0, 20.0)
-    # LOD derived as Y / N (reference-values formula), interval mapped through the end points
+    # LOD derived as Y / N (Y the tropical year), interval mapped through the end points
     assert w.length_of_day_h == pytest.approx(YEAR_HOURS / 400.0, rel=1e-12)
     assert w.lod_ci == pytest.approx((YEAR_HOURS / 420.0, YEAR_HOURS / 380.0), rel=1e-12)
     assert "length_of_day_h" in w.derived
