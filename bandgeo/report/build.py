@@ -95,7 +95,7 @@ def figure_specs(state: Any, tilt=None) -> tuple[list[dict], list[str]]:
                                  "band in one of seven colours that repeat so that neighbours differ. Top: the "
                                  "whole column in strips. Middle: a close view of forty bands with their numbers. "
                                  "Bottom: the same stretch unrolled, azimuth measured from the sway plane against "
-                                 "height; the ticks on both edges mark the boundaries."})
+                                 "height; the ticks outside both edges mark the boundaries."})
     else:
         omitted.append("The specimen figure is left out: the folder holds no oriented mesh or segmentation.")
     if series is not None:

@@ -118,17 +118,27 @@ def specimen_figure(vertices_mm, faces, vertex_band, axis, boundaries, view_azim
     radius_s = (s_lo + (np.arange(nb) + 0.5) * length / nb, rmax)
 
     window = close_window(boundaries, s_range=(s_lo, s_hi))
-    strip_h = 2 * half_width / strip * width_in * 0.98
-    fig = Figure(figsize=(width_in, n_strips * (strip_h + 0.32) + 3.9), layout="constrained")
-    heights = [strip_h + 0.32] * n_strips + [2.1, 1.6]
-    gs = fig.add_gridspec(n_strips + 2, 1, height_ratios=heights)
+    left_in, right_in = 0.75, 0.75
+    ax_w = width_in - left_in - right_in
+    strip_h = 2 * half_width / strip * ax_w
+    close_h = 1.6
+    if window is not None and window[1] > window[0]:
+        close_h = ax_w * 2 * min(half_width, (window[1] - window[0]) / 7.0) / (window[1] - window[0])
+    # panels from the top, in inches: (height, space above it for a title and the previous x labels)
+    plan = [(strip_h, 0.3 if k == 0 else 0.3) for k in range(n_strips)] + [(close_h, 0.95), (1.35, 0.65)]
+    total = sum(h + g for h, g in plan) + 0.5
+    fig = Figure(figsize=(width_in, total))
+    rects, y = [], total
+    for h, g in plan:
+        y -= g + h
+        rects.append((left_in / width_in, y / total, ax_w / width_in, h / total))
     side_word = "east" if north_known else "+x"
     for k in range(n_strips):
         a0, a1 = s_lo + k * strip, s_lo + (k + 1) * strip
         sel = front & (s >= a0) & (s < a1)
         img = _rasterise(s[sel], lat[sel], depth[sel], rgb[sel], a0, a1, half_width, px, radius_s)
-        ax = fig.add_subplot(gs[k])
-        ax.imshow(img, extent=(a0, a1, -half_width, half_width), interpolation="nearest", aspect="equal",
+        ax = fig.add_axes(rects[k])
+        ax.imshow(img, extent=(a0, a1, -half_width, half_width), interpolation="nearest", aspect="auto",
                   rasterized=True)
         ax.set_xlim(a0, a1)
         ax.set_ylim(-half_width, half_width)
@@ -145,8 +155,8 @@ def specimen_figure(vertices_mm, faces, vertex_band, axis, boundaries, view_azim
             ax.set_xlabel("height along the column axis, mm", fontsize=8)
 
     # close view, triangle by triangle
-    axc = fig.add_subplot(gs[n_strips])
-    axu = fig.add_subplot(gs[n_strips + 1])
+    axc = fig.add_axes(rects[n_strips])
+    axu = fig.add_axes(rects[n_strips + 1])
     if window is None:
         return fig
     w0, w1, b0, b1 = window
@@ -181,7 +191,7 @@ def specimen_figure(vertices_mm, faces, vertex_band, axis, boundaries, view_azim
     axc.set_xlim(w0, w1)
     across = min(half_width, (w1 - w0) / 7.0)
     axc.set_ylim(-across, across)
-    axc.set_aspect("equal")
+    axc.set_aspect("equal", adjustable="box")
     axc.set_xlabel("height along the column axis, mm", fontsize=8)
     axc.set_ylabel("across, mm", fontsize=8)
     axc.tick_params(labelsize=7)
@@ -212,13 +222,15 @@ def specimen_figure(vertices_mm, faces, vertex_band, axis, boundaries, view_azim
         lim = float(np.percentile(np.abs(finite), 98)) if finite.size else 1.0
         m = axu.pcolormesh(s_edges, az_edges, np.ma.masked_invalid(image.T), cmap=IMAGE_CMAP, vmin=-lim,
                            vmax=lim, shading="flat", rasterized=True)
-        cb = fig.colorbar(m, ax=axu, pad=0.01, aspect=12)
+        r = rects[n_strips + 1]
+        cax = fig.add_axes((r[0] + r[2] + 0.01, r[1], 0.015, r[3]))
+        cb = fig.colorbar(m, cax=cax)
         cb.set_label("relief, mm", fontsize=7)
         cb.ax.tick_params(labelsize=6)
         for h, _ in hb:
             if w0 < h < w1:
-                axu.plot([h, h], [-180, -160], color="black", lw=0.9)
-                axu.plot([h, h], [160, 180], color="black", lw=0.9)
+                axu.plot([h, h], [-200, -180], color="black", lw=0.9, clip_on=False)
+                axu.plot([h, h], [180, 200], color="black", lw=0.9, clip_on=False)
         axu.set_xlim(w0, w1)
         axu.set_ylim(-180, 180)
         axu.set_yticks([-180, -90, 0, 90, 180])
@@ -226,7 +238,7 @@ def specimen_figure(vertices_mm, faces, vertex_band, axis, boundaries, view_azim
         axu.set_ylabel("azimuth from the\nsway plane, degrees", fontsize=8)
         axu.tick_params(labelsize=7)
         axu.set_title("the stretch's side surface unrolled (relief: radius minus its smooth trend); "
-                      "ticks on both edges mark the boundaries", fontsize=8.5)
+                      "ticks outside both edges mark the boundaries", fontsize=8.5, pad=9)
     else:
         axu.set_visible(False)
     return fig
