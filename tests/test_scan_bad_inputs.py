@@ -3,6 +3,7 @@
 The corpus is generated here in tmp_path. Expected behaviour from the issue text (common practice for
 command-line tools: one message on stderr, non-zero status, no traceback).
 """
+import re
 import subprocess
 import sys
 
@@ -250,5 +251,25 @@ def test_no_warning_leaks_before_the_error(tmp_path, good, case):
 
 def load_scan_from_arrays(v, f):
     from bandgeo.scan import Scan
-    return Scan(vertices=np.asarray(v, float), faces=np.asarray(f, np.int64), colors=None, path="arrays.ply",
+    return Scan(vertices=np.asarray(v), faces=np.asarray(f), colors=None, path="arrays.ply",
                 sha256="0" * 64, file_format="ply-binary-le")
+
+
+@pytest.mark.parametrize("vertices, faces, expected", [
+    (np.zeros((5, 2)), np.zeros((1, 3), int), "(n, 3) array of numbers"),
+    (np.zeros((5, 3)), np.array([[0, 1, 9]]), "outside 0..4"),
+    (np.zeros((5, 3)), np.zeros((1, 3)), "whole numbers"),
+    (np.zeros((0, 3)), np.zeros((0, 3), int), "(n, 3) array of numbers"),
+])
+def test_hand_built_scan_is_checked(vertices, faces, expected):
+    # issue 15 F12 was an IndexError inside the cleanup; arrays of the wrong shape are refused up front
+    with pytest.raises(ParameterError, match=re.escape(expected)):
+        prepare(load_scan_from_arrays(vertices, faces))
+
+
+def test_float32_int32_scan_gives_the_same_specimen(good):
+    v, f = good
+    a = prepare(load_scan_from_arrays(v.astype(np.float32).astype(float), f))
+    b = prepare(load_scan_from_arrays(v.astype(np.float32), f.astype(np.int32)))
+    np.testing.assert_array_equal(a.vertices_mm, b.vertices_mm)
+    np.testing.assert_array_equal(a.faces, b.faces)

@@ -124,8 +124,7 @@ def prepare(scan: Scan, *, units=None, up=None, north=None, strike_dip=None, she
 
 
 def _prepare(scan: Scan, *, units, up, north, strike_dip, sheet, scale, progress) -> Specimen:
-    if not isinstance(scan, Scan):
-        raise ParameterError(f"expected a Scan from bandgeo.scan.load_scan but got {type(scan).__name__}")
+    _check_scan_arrays(scan)
     if sheet is not None and not isinstance(sheet, SpecimenSheet):
         from .sheet import read_sheet
         sheet = read_sheet(sheet)
@@ -184,6 +183,23 @@ def _prepare(scan: Scan, *, units, up, north, strike_dip, sheet, scale, progress
         scan_path=scan.path, scan_sha256=scan.sha256, scan_vertex_index=clean.scan_index, summary=summary)
 
 
+def _check_scan_arrays(scan) -> None:
+    """ParameterError unless ``scan`` is a Scan with (n, 3) numeric vertices and (m, 3) whole-number faces
+    that index them (load_scan guarantees this; a Scan built by hand may not)."""
+    if not isinstance(scan, Scan):
+        raise ParameterError(f"expected a Scan from bandgeo.scan.load_scan but got {type(scan).__name__}")
+    v, f = np.asarray(scan.vertices), np.asarray(scan.faces)
+    if v.ndim != 2 or v.shape[1] != 3 or v.dtype.kind not in "fiu" or len(v) == 0:
+        raise ParameterError(f"expected Scan.vertices to be an (n, 3) array of numbers but got shape {v.shape} "
+                             f"of {v.dtype}; read the scan with bandgeo.scan.load_scan")
+    if f.ndim != 2 or f.shape[1] != 3 or f.dtype.kind not in "iu" or len(f) == 0:
+        raise ParameterError(f"expected Scan.faces to be an (m, 3) array of whole numbers but got shape {f.shape} "
+                             f"of {f.dtype}; read the scan with bandgeo.scan.load_scan")
+    if f.min() < 0 or f.max() >= len(v):
+        raise ParameterError(f"Scan.faces index vertices outside 0..{len(v) - 1}; read the scan with "
+                             "bandgeo.scan.load_scan")
+
+
 def _given_units(units, sheet):
     """(unit name, its source) from the argument, else the sheet, else (None, None)."""
     if units is not None:
@@ -231,7 +247,9 @@ def _clean(scan: Scan, warnings: list, progress):
     """:func:`clean_mesh` of the scan, refusing fragments and flat meshes; notes removed pieces and
     non-orientable patches in ``warnings``."""
     try:
-        clean = clean_mesh(scan.vertices, scan.faces, progress=progress)
+        # as float64 and int64 (no copy for what load_scan gives; a hand-built Scan may hold other types)
+        clean = clean_mesh(np.ascontiguousarray(scan.vertices, dtype=np.float64),
+                           np.ascontiguousarray(scan.faces, dtype=np.int64), progress=progress)
     except InputError as exc:  # say which file
         raise InputError(f"'{scan.path}': {exc}") from None
     v, faces = clean.vertices, clean.faces
