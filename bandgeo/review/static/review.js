@@ -433,6 +433,11 @@ function drawLists() {
     li.textContent = (n.id !== undefined ? `[boundary ${n.id}] ` : "") + n.text + (n.time_utc ? ` (${n.time_utc})` : "");
     nl.append(li);
   }
+  const bs = S.basis || {};
+  $("basis").textContent = `Edits are kept for scan ${String(bs.scan_sha256 || "unknown").slice(0, 12)}…` +
+    `${bs.scan_path ? ` (${String(bs.scan_path).split(/[\\/]/).pop()})` : ""}, units ${bs.units ?? "?"} (${bs.mm_per_unit ?? "?"} mm per unit), ` +
+    `segmentation ${bs.segmentation_id} of ${bs.n_boundaries} boundaries; heights in mm along its centreline, ` +
+    "specimen frame. They are not applied to any other.";
   const el = $("edits"); el.replaceChildren();
   for (const e of S.edits) {
     const li = document.createElement("li");
