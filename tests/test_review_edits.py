@@ -218,3 +218,47 @@ def test_apply_review_with_the_real_segmentation(tmp_path):
     far = np.min(np.abs(z[:, None] - heights[None, :]), axis=1) > 0.05
     assert np.array_equal(edited.vertex_band[far], expected[far].astype(np.int32))
     assert edited.resolution["flagged"] == [] and "review" in edited.params
+
+
+def test_accept_stretch_confirms_the_automatic_boundaries_in_place_in_one_undo_step(tmp_path):
+    # Worked out by hand: boundaries at 1.0, 2.5, 4.0, 5.5 mm; boundary 1 removed and one added at 3.0
+    # before the stretch 2.0-4.5 mm is confirmed -> only boundary 2 (4.0 mm) is an automatic one in place.
+    session = ReviewSession(BASE, SPAN)
+    session.push({"op": "reject", "id": 1})
+    session.push({"op": "add", "height_mm": 3.0})
+    session.push({"op": "accept_stretch", "s0_mm": 2.0, "s1_mm": 4.5})
+    status = {b.id: b.status for b in session.state.boundaries.values()}
+    assert status == {0: "auto", 1: "rejected", 2: "accepted", 3: "auto", 4: "added"}
+    assert session.undo() and session.state.boundaries[2].status == "auto"
+    with pytest.raises(ReviewError, match="no boundary in place"):
+        session.push({"op": "accept_stretch", "s0_mm": 6.0, "s1_mm": 6.9})
+    # In the pipeline's replay the confirmed boundaries get confidence 1.0, the others keep theirs.
+    folder, seg, specimen = make_folder(tmp_path / "KRB-12", n_bounds=8, spacing=1.5)
+    edited = apply_review(seg, specimen, {"edits": [{"op": "accept_stretch", "s0_mm": 3.0, "s1_mm": 7.0}]})
+    conf = {b.id: b.confidence for b in edited.boundaries}
+    inside = [b.id for b in seg.boundaries if 3.0 <= b.height_mm <= 7.0]
+    assert inside == [2, 3, 4] and all(conf[i] == 1.0 for i in inside)
+    assert all(conf[b.id] == b.confidence for b in seg.boundaries if b.id not in inside)
+
+
+def test_segmentation_id_and_fit_of_a_review(tmp_path):
+    from bandgeo.review.basis import check_fit, check_review, segmentation_id
+
+    folder, seg, specimen = make_folder(tmp_path / "KRB-12", n_bounds=8, spacing=1.5)
+    sid = segmentation_id(seg)
+    assert sid == segmentation_id(seg) and sid.startswith("seg-") and len(sid) == 20
+    moved = type(seg)(**{**seg.__dict__, "boundaries": [
+        type(b)(**{**b.__dict__, "height_mm": b.height_mm + 1e-3}) if b.id == 3 else b for b in seg.boundaries]})
+    assert segmentation_id(moved) != sid                       # one boundary 1 micrometre away: another id
+    specimen.scan_sha256, specimen.units, specimen.mm_per_unit = "0" * 64, "mm", 1.0
+    specimen.scan_to_specimen = np.eye(4)
+    basis = {"scan_sha256": "0" * 64, "units": "mm", "mm_per_unit": 1.0, "scan_to_specimen": np.eye(4).tolist(),
+             "segmentation_id": sid, "n_boundaries": 8}
+    assert check_review({"basis": basis}, specimen, seg) == []
+    assert check_review({"basis": basis}, specimen, moved) != []
+    scaled = dict(basis, units="cm", mm_per_unit=10.0, scan_to_specimen=(np.eye(4) * [10, 10, 10, 1]).tolist())
+    assert any("units cm" in r for r in check_review({"basis": scaled}, specimen, seg))
+    turned = dict(basis, scan_to_specimen=[[0, -1, 0, 0], [1, 0, 0, 0], [0, 0, 1, 0], [0, 0, 0, 1]])
+    assert any("frame" in r for r in check_review({"basis": turned}, specimen, seg))
+    assert check_fit({"scan_sha256": "0" * 64}, dict(basis)) == []          # older file, same scan
+    assert check_fit({}, dict(basis)) != []                                 # nothing recorded at all
