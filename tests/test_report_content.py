@@ -174,3 +174,43 @@ def test_routes_table_in_the_result_without_weights_uses_the_intervals(tmp_path)
     state = make_state(tmp_path, **SMALL)
     rows = route_rows(state.result)
     assert [r["weight"] for r in rows] and all(r["weight"] != "combined" for r in rows)
+
+
+def test_specimen_figure_is_our_own_layout_not_a_compass_unrolling(tmp_path):
+    # The unrolled strip measures azimuth from the sway plane (-180..180) with height running
+    # horizontally; no compass-point ticks and no boundary drawn as a curve across it.
+    from bandgeo.report.specimen_view import close_window, specimen_figure
+
+    state = make_state(tmp_path, **SMALL)
+    seg, spec = state.segmentation, state.specimen
+    fig = specimen_figure(spec.vertices_mm, spec.faces, seg.vertex_band, seg.axis, seg.boundaries,
+                          view_azimuth_deg=115.0, sway_azimuth_deg=25.0)
+    labels = " ".join(t.get_text() for ax in fig.axes for t in ax.get_xticklabels() + ax.get_yticklabels())
+    assert not re.search(r"\d°?\s*[NESW]\b", labels)
+    unrolled = [ax for ax in fig.axes if "sway plane" in ax.get_ylabel()]
+    assert len(unrolled) == 1
+    ax = unrolled[0]
+    assert ax.get_ylim() == (-180.0, 180.0) and "height" in ax.get_xlabel()
+    for line in ax.get_lines():                     # boundary marks are short vertical ticks
+        x = np.asarray(line.get_xdata(), float)
+        assert np.ptp(x) == 0.0 and len(x) == 2
+    # the close view holds forty bands from the middle of the record (band i lies between boundaries i, i+1)
+    s0, s1, b0, b1 = close_window(seg.boundaries)
+    n = len(seg.boundaries)
+    assert b1 - b0 == 40 and abs((b0 + b1) / 2 - n / 2) <= 1
+    heights = sorted(b.height_mm for b in seg.boundaries)
+    assert s0 < heights[b0] and s1 > heights[b1]
+
+
+def test_series_figure_fits_no_annual_sine_to_the_inclination(tmp_path):
+    from bandgeo.report.figures import series_figure
+
+    state = make_state(tmp_path, **SMALL)
+    fig = series_figure(state.series, period_bands=400.0, sway_azimuth_deg=25.0)
+    by_label = {ax.get_ylabel(): [ln.get_label() for ln in ax.get_lines()] for ax in fig.axes}
+    incl = next(v for k, v in by_label.items() if k.startswith("inclination"))
+    assert not any("sinusoid" in lab for lab in incl) and any("running mean" in lab for lab in incl)
+    sway = next(v for k, v in by_label.items() if k.startswith("tilt in the sway plane"))
+    assert any("sinusoid" in lab and "°" in lab for lab in sway)
+    thick = next(v for k, v in by_label.items() if k.startswith("band thickness"))
+    assert any("sinusoid" in lab and "mm" in lab for lab in thick)
