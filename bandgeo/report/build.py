@@ -142,6 +142,8 @@ def figure_specs(state: Any, tilt=None) -> tuple[list[dict], list[str]]:
     elif period is not None and counts:
         omitted.append(f"The cycle-by-cycle counts are left out: the record holds {len(counts)} whole yearly "
                        f"cycle, too few to plot one count against another (the count is in the routes table).")
+    elif period is not None and isinstance(cc, Mapping) and cc.get("refused"):
+        omitted.append(f"The cycle-by-cycle counts are left out: {str(cc['refused']).rstrip('.')}.")
     elif period is not None:
         omitted.append("The cycle-by-cycle counts are left out: counting cycle by cycle gave no estimate for "
                        "this record.")

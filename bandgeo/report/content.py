@@ -167,13 +167,19 @@ def route_rows(result: Mapping) -> list[dict]:
             continue
         value, interval = fmt_estimate(block.get("estimate"), block.get("ci95"))
         w = weights.get(key) if key in used else None
-        if block.get("estimate") is None:
+        refused = str(block.get("refused") or "")
+        if block.get("estimate") is None and refused:
+            value, why = "refused (see below)", "—"
+        elif block.get("estimate") is None:
             why = "no estimate"
         elif key not in used:
             why = "not combined"
         else:
             why = f"{100 * w:.0f} %" if w is not None else "combined"
-        rows.append({"key": key, "name": short, "long": long, "value": value, "ci95": interval,
+        peak = block.get("period_bands_no_interval")
+        if refused and peak is not None:
+            refused += f" (the peak itself lies at {fmt_sig(peak)} bands)"
+        rows.append({"key": key, "name": short, "long": long, "value": value, "ci95": interval, "refused": refused,
                      "p_value": fmt_p(block.get("p_value"), n_sim) if block.get("p_value") is not None else "—",
                      "weight": why, "method": str(block.get("method") or "—")})
     return rows
