@@ -270,7 +270,7 @@ def make_column(**overrides):
     # Groove relief, radial in the horizontal plane, from each wall vertex's lamina position.
     li, lf = lamina_position(wall, centres, normals)
     local_t = thickness[np.clip(li, 0, thickness.size - 1)]
-    relief = _groove(p, lf, depth * np.minimum(local_t / T, 1.5))
+    relief = _groove(p, lf, depth)
     # Below the first boundary or above the last one (the flat cuts cross tilted planes): no groove.
     first = np.einsum("ij,j->i", wall - centres[0], normals[0]) < 0
     last = np.einsum("ij,j->i", wall - centres[-1], normals[-1]) >= 0
@@ -321,8 +321,22 @@ def make_column(**overrides):
                         [2 * (x * z - y * w), 2 * (y * z + x * w), 1 - 2 * (x * x + y * y)]])
         shift = gen.uniform(-50.0, 50.0, 3)
     file_vertices = vertices @ rot.T + shift
+    # What the mesh shows of the groove: the profile of a mean lamina averaged over one row spacing and
+    # blurred by the noise along the axis (the sharp side is finer than the sampling).
+    ds = T / 400.0
+    x = np.arange(-3.0 * T, 3.0 * T, ds)
+    prof = _groove(p, np.mod(x / T, 1.0), depth)
+    kern_x = np.arange(-4.0 * noise - edge, 4.0 * noise + edge + ds, ds)
+    box = (np.abs(kern_x) <= 0.5 * edge * math.sqrt(3.0) / 2.0).astype(float)
+    gauss = np.exp(-0.5 * (kern_x / max(noise, ds)) ** 2)
+    kern = np.convolve(box, gauss, mode="same")
+    seen = np.convolve(prof, kern / kern.sum(), mode="same")
+    inner = np.abs(x) < 2.0 * T
+    depth_seen = float(seen[inner].max() - seen[inner].min())
     truth = _truth(p, t, thickness, centres, normals, heights, rot, shift, file_vertices, faces,
                    edge, depth, noise, z1)
+    truth["mesh"]["groove_depth_mm"] = depth
+    truth["mesh"]["groove_depth_effective_mm"] = depth_seen
     return file_vertices, faces, truth
 
 

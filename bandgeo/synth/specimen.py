@@ -242,3 +242,28 @@ def _truth(p, record, mesh, rot, shift, mm_per_unit, file_from_spec, n_vertices)
                      closed=bool(p.base == "cut" and p.top != "open" and p.holes == 0),
                      max_curvature_times_radius=float(curv.max() * p.radius_mm * (1 + max(p.radius_taper, 0)))),
     }
+
+
+def make_mesh(params: SynthParams | None = None, progress=None, **changes):
+    """Convenience for checks: ``(vertices, faces, truth)`` of a simulated specimen.
+
+    Parameters
+    ----------
+    params : SynthParams or None
+        The parameters (None: the defaults); keyword ``changes`` replace fields, e.g.
+        ``make_mesh(mesh_kind="ct", years=0.5, seed=3)``.
+
+    Returns
+    -------
+    vertices : (n, 3) float64
+        File frame and units (``truth["frames"]["specimen_from_file"]`` maps them to the specimen frame).
+    faces : (m, 3) int64
+    truth : dict
+        As written to ``<stem>.truth.json`` (numpy arrays not yet converted to lists).
+    """
+    if params is None:
+        params = SynthParams(**changes)
+    elif changes:
+        params = params.replace(**changes)
+    spec = simulate(params, progress=progress)
+    return spec.vertices, spec.faces, spec.truth
