@@ -350,3 +350,32 @@ def _stop_with_ctrl_c(proc, port):
         sock.setsockopt(socket.SOL_SOCKET, socket.SO_REUSEADDR, 1)
         sock.bind(("127.0.0.1", port))
         sock.listen()
+
+
+def test_rerun_reports_its_progress_and_the_page_stays_usable(tmp_path):
+    """While the re-run works, /api/status gives its stage and step, and edits are still answered."""
+    folder, seg, _ = make_folder(tmp_path / "KRB-07")
+    reached, release = threading.Event(), threading.Event()
+
+    def slow_rerun(folder, progress=None):
+        progress("measure", 5, 10)
+        reached.set()
+        release.wait(30)
+        progress("periodicity done", 8, 10)
+
+    server = serve(folder, open_browser=False, segmentation=seg, rerun=slow_rerun)
+    try:
+        request(server, "POST", "/api/edit", {"edit": {"op": "reject", "id": 2}})
+        request(server, "POST", "/api/save", {})
+        assert reached.wait(30)
+        status, st, _ = request(server, "GET", "/api/status")
+        assert st["state"] == "running" and (st["stage"], st["done"], st["total"]) == ("measure", 5, 10)
+        status, r, _ = request(server, "POST", "/api/edit", {"edit": {"op": "reject", "id": 3}})
+        assert status == 200 and r["state"]["n_bands"] == 9 and r["state"]["rerun"]["state"] == "running"
+        release.set()
+        server.app.wait(30)
+        st = request(server, "GET", "/api/status")[1]
+        assert st["state"] == "done" and st["runs"] == 1 and st["seconds"] is not None
+    finally:
+        release.set()
+        server.stop()
