@@ -109,6 +109,7 @@ MESHES = {
     "ply_text_renamed": ("t.ply", b"Field notes, Karrabin Formation, KRB-07\n", "does not start with 'ply'"),
     "obj_v_line_one_number": ("s.obj", obj_text(lines_v=_obj_v()[:5] + ["v 1.5"] + _obj_v()[6:]), "1 number"),
     "obj_v_line_two_numbers": ("s.obj", obj_text(lines_v=_obj_v()[:5] + ["v 1.5 2.5"] + _obj_v()[6:]), "2 numbers"),
+    "obj_bare_v_line": ("s.obj", obj_text(lines_v=_obj_v()[:5] + ["v"] + _obj_v()[6:]), "0 numbers"),
     "obj_ragged_v_lines": ("s.obj", obj_text(lines_v=_obj_v()[:5] + ["v 1 2 3 1"] + _obj_v()[6:]),
                            "different numbers of values"),
     "obj_text_in_v_line": ("s.obj", obj_text(lines_v=_obj_v()[:5] + ["v 1 2 abc"] + _obj_v()[6:]),
