@@ -343,3 +343,20 @@ def test_a_save_killed_at_any_moment_never_leaves_a_half_written_review(tmp_path
     clean_temp_files(tmp_path)
     assert not list(tmp_path.glob(".review.*.json"))
     assert sorted(p.name for p in tmp_path.iterdir()) == ["review.json"]
+
+
+def test_cross_site_reads_are_refused_but_opening_the_address_is_not(served):
+    server, *_ = served
+    tok = {"X-Review-Token": server.app.token}
+    status, _ = send(server, "GET", "/api/state", headers={**tok, "Sec-Fetch-Site": "cross-site",
+                                                          "Sec-Fetch-Mode": "cors"})
+    assert status == 403
+    status, _ = send(server, "GET", "/api/mesh", headers={**tok, "Origin": "http://localhost:9999"})
+    assert status == 403
+    status, page = send(server, "GET", "/?token=" + server.app.token,
+                        headers={"Sec-Fetch-Site": "cross-site", "Sec-Fetch-Mode": "navigate"})
+    assert status == 200 and b"review.js" in page
+    status, _ = send(server, "POST", "/api/edit", body=b'{"edit": {"op": "reject", "id": 1}}',
+                     headers={**tok, "Content-Type": "application/json", "Sec-Fetch-Site": "cross-site",
+                              "Sec-Fetch-Mode": "navigate"})
+    assert status == 403 and server.app.session.edits == []

@@ -127,6 +127,9 @@ class Handler(BaseHTTPRequestHandler):
         if origin is not None and origin.strip().lower() not in self._own_origins():
             return False
         site = (self.headers.get("Sec-Fetch-Site") or "").strip().lower()
+        mode = (self.headers.get("Sec-Fetch-Mode") or "").strip().lower()
+        if self.command == "GET" and mode == "navigate":
+            return True  # opening the printed address from another page or app is fine (token still needed)
         return site not in ("cross-site", "same-site")
 
     def _own_origins(self) -> set:
