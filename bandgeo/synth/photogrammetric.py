@@ -243,9 +243,12 @@ def build_photogrammetric(record: LaminaRecord, gen: np.random.Generator, noise_
     parts_v, parts_f, parts_c, parts_n = [wall], [faces], [s], [radial]
     n_total = n_wall
     top_ring = np.arange(n_wall - n_b, n_wall)
+    # The caps (saw cut, last dome) carry no laminae: sampled twice as coarsely inside (Delaunay grades
+    # from the wall's end row to that spacing).
+    cap_step = max(2.0 * e, e * aspect)
     if p.base == "cut":
         c0, t0, f1, f2 = (a[0] for a in centreline.at(np.array([0.0])))
-        new, f, rho = _cap(wall[:n_b], c0, t0, f1, f2, float(r[:n_b].mean()), e * aspect, 0.0, False,
+        new, f, rho = _cap(wall[:n_b], c0, t0, f1, f2, float(r[:n_b].mean()), cap_step, 0.0, False,
                            (0, n_total))
         parts_v.append(new), parts_f.append(f), parts_n.append(np.tile(-t0, (new.shape[0], 1)))
         parts_c.append(-p.dome_height_mm * (1.0 - np.clip(rho, 0.0, 1.0) ** 2))
@@ -253,7 +256,7 @@ def build_photogrammetric(record: LaminaRecord, gen: np.random.Generator, noise_
     if p.top in ("domed", "flat"):
         dome = p.dome_height_mm if p.top == "domed" else 0.0
         c1, t1, f1, f2 = (a[0] for a in centreline.at(np.array([top])))
-        new, f, rho = _cap(wall[top_ring], c1, t1, f1, f2, float(r[top_ring].mean()), e * aspect, dome, True,
+        new, f, rho = _cap(wall[top_ring], c1, t1, f1, f2, float(r[top_ring].mean()), cap_step, dome, True,
                            (int(top_ring[0]), n_total))
         parts_v.append(new), parts_f.append(f), parts_n.append(np.tile(t1, (new.shape[0], 1)))
         if p.top == "domed":
