@@ -10,7 +10,6 @@ from types import SimpleNamespace
 import numpy as np
 from scipy.signal import savgol_filter
 
-from ..features.spacing import PEAK_TO_NOISE_MIN
 from . import cluster, repair, resolution, tilt
 from . import trace as tr
 from .axis import Centreline, _base_height
@@ -81,7 +80,7 @@ def spacing(fr, features, run):
         lim = resolution.resolvable_lamina_mm(fr.samp, fr.noise)
         return float("nan"), (f"no periodic relief stands out of the scanner noise along the side wall "
                               f"(spectral peak/noise {info.get('peak_to_noise', 0):.2f} < "
-                              f"{PEAK_TO_NOISE_MIN}; wall relief scatter {noise:.4f} mm rms, sampling "
+                              f"{info.get('peak_to_noise_needed', 0):.2f}; wall relief scatter {noise:.4f} mm rms, sampling "
                               f"{fr.samp:.4f} mm); with this scan {lim['rule']}")
     ratio = sp / fr.samp if fr.samp > 0 else np.inf
     if ratio < resolution.MIN_SAMPLES_COUNT:
@@ -206,6 +205,11 @@ def trace(fr, s_flat, sp, p_groove, est, run):
 
     rings, gaps = repair.repair(rings, sp, trace_weak, run.log)
     refuse = None
+    expected = fr.W.length_mm / sp
+    if len(rings) < 0.5 * expected:
+        refuse = (f"only {len(rings)} boundaries stand out of the noise along the flattened side wall where "
+                  f"about {expected:.0f} are expected at the band spacing of the relief spectrum ({sp:.4f} mm; "
+                  f"profile noise {run.info.get('profile_noise_mm', float('nan')):.4f} mm per vertex)")
     if len(rings) < 3:
         refuse = (f"only {len(rings)} boundaries stand out of the noise along the flattened side wall "
                   f"(profile noise {run.info.get('profile_noise_mm', float('nan')):.4f} mm per vertex)")

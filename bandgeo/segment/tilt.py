@@ -23,7 +23,9 @@ from __future__ import annotations
 import numpy as np
 from scipy.ndimage import gaussian_filter1d
 
-from ..features.spacing import estimate_spacing_from_profile
+
+#: A whitened spectral peak must stand this many times above the floor (more when few columns).
+PEAK_MIN = 1.3
 
 #: Largest residual tilt (deg) between laminae and the coarse centreline the first pass is built for.
 MAX_RESIDUAL_TILT_DEG = 6.0
@@ -50,7 +52,10 @@ def estimate_spacing(s, theta, relief, sampling_mm, radius_mm):
 
     Columns about eight sampling intervals wide keep a tilted boundary sharp inside each column; the
     tilt only shifts the phase of each column's periodogram, not its frequency (Bartlett's averaged
-    periodogram; common practice).
+    periodogram; common practice). The spectrum is whitened by its running median; the strongest peak
+    between four cycles per record and the sampling's Nyquist frequency counts when it stands
+    ``PEAK_MIN`` times above the floor, or more when few columns are averaged (the whitened level of
+    an average of ``m`` periodograms scatters by about ``1 / sqrt(m)``).
 
     Returns
     -------
@@ -64,44 +69,56 @@ def estimate_spacing(s, theta, relief, sampling_mm, radius_mm):
     sums, cnt = column_image(s, theta, relief, s0, b, nb, n_az)
     with np.errstate(invalid="ignore", divide="ignore"):
         prof = np.where(cnt > 0, sums / np.maximum(cnt, 1), np.nan)
-    spacing, info = estimate_spacing_from_profile({"profiles": prof, "bin_mm": b, "s0_mm": s0})
-    if np.isfinite(spacing):
-        # the significance test above takes the lowest strong peak as the fundamental; the grooves'
-        # own frequency is the strongest one: take it (power-weighted within +-20 %) when they differ
-        best = _strongest(prof, b)
-        if np.isfinite(best) and abs(best / spacing - 1.0) > 0.05:
-            info["lowest_peak_mm"] = float(spacing)
-            spacing = best
-    info["method"] = (f"periodogram of the side-wall relief along the centreline, averaged over {n_az} "
-                      f"azimuth columns")
-    info["columns"] = n_az
-    return spacing, info
+    spacing, ratio, n_rows = _strongest(prof, b)
+    need = max(PEAK_MIN, 1.0 + 3.0 / np.sqrt(3.0 * max(n_rows, 1)))
+    info = {"method": f"strongest peak of the whitened periodogram of the side-wall relief along the "
+                      f"centreline, averaged over {n_az} azimuth columns",
+            "columns": n_az, "peak_to_noise": float(ratio), "peak_to_noise_needed": float(need),
+            "significant": bool(np.isfinite(spacing) and ratio >= need)}
+    return (spacing if info["significant"] else float("nan")), info
 
 
 def _strongest(prof, b):
-    """Spacing (mm) at the strongest peak of the averaged periodogram of the rows of ``prof``, weighted
-    by power within +-20 % of the peak frequency; frequencies from 4 cycles per record to 0.45 / b."""
-    rows = np.where(np.isfinite(prof), prof, 0.0)
+    """Strongest peak of the averaged, whitened periodogram of the rows of ``prof`` (NaN = empty).
+
+    Returns (spacing_mm, whitened peak height, rows averaged); the spacing is power-weighted within
+    +-20 % of the peak frequency; frequencies from 4 cycles per record to 0.45 / b.
+    """
+    from scipy.ndimage import median_filter
+
     occ = np.isfinite(prof)
-    rows = np.where(occ, rows - (rows * occ).sum(1, keepdims=True) / np.maximum(occ.sum(1, keepdims=True), 1), 0.0)
+    keep = occ.sum(axis=1) >= 16
+    prof, occ = prof[keep], occ[keep]
+    if len(prof) == 0:
+        return float("nan"), 0.0, 0
+    rows = np.where(occ, prof, 0.0)
+    rows = np.where(occ, rows - rows.sum(1, keepdims=True) / np.maximum(occ.sum(1, keepdims=True), 1), 0.0)
     nb = rows.shape[1]
     nfft = int(2 ** np.ceil(np.log2(max(nb, 16))))
     pw = np.mean(np.abs(np.fft.rfft(rows * np.hanning(nb)[None, :], nfft, axis=1)) ** 2, axis=0)
     f = np.fft.rfftfreq(nfft, d=b)
     band = (f >= 4.0 / (nb * b)) & (f <= 0.45 / b)
-    if band.sum() < 4:
-        return float("nan")
-    # whiten by a broad running median so a red background does not win
-    from scipy.ndimage import median_filter
-
-    floor = median_filter(pw, size=max(5, int(band.sum() // 8) | 1), mode="nearest")
+    if band.sum() < 8:
+        return float("nan"), 0.0, len(rows)
+    floor = median_filter(pw, size=max(7, int(band.sum() // 6) | 1), mode="nearest")
     ratio = np.where(band, pw / np.maximum(floor, 1e-300), 0.0)
     ratio = np.convolve(ratio, np.ones(3) / 3.0, mode="same")
-    f_pk = f[int(np.argmax(ratio))]
+    rb = np.where(band, ratio, 0.0)
+    k = int(np.argmax(rb))
+    # the fundamental: a local maximum near a half, third or quarter of the strongest frequency, at
+    # least half as strong, wins (narrow grooves put much power in the harmonics)
+    is_max = np.r_[False, (rb[1:-1] >= rb[:-2]) & (rb[1:-1] >= rb[2:]), False]
+    for div in (4, 3, 2):  # the lowest subharmonic that stands out is the fundamental
+        near = (f > (1.0 - 0.16) / div * f[k]) & (f < (1.0 + 0.16) / div * f[k])
+        cand = np.flatnonzero(is_max & (rb >= max(0.5 * rb[k], PEAK_MIN)) & near)
+        if len(cand):
+            k = int(cand[np.argmax(rb[cand])])
+            break
+    f_pk = f[k]
     sel = band & (f >= 0.8 * f_pk) & (f <= 1.2 * f_pk)
     w = np.maximum(pw[sel] - floor[sel], 0.0)
     f0 = float(np.sum(f[sel] * w) / np.sum(w)) if w.sum() > 0 else float(f_pk)
-    return 1.0 / f0 if f0 > 0 else float("nan")
+    return (1.0 / f0 if f0 > 0 else float("nan")), float(ratio[k]), len(rows)
 
 
 def _analytic(sums, cnt, f0, bin_mm):
