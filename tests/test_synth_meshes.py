@@ -281,3 +281,19 @@ def test_cli_writes_a_ct_specimen(tmp_path):
     assert proc.returncode == 0, proc.stderr
     truth = json.loads((tmp_path / "synth.truth.json").read_text())
     assert truth["mesh"]["mesh_kind"] == "ct" and "ct mesh" in proc.stdout
+
+
+def test_radius_taper_narrows_the_column():
+    """radius_taper = -0.3: the radius falls linearly to 70 % at the top (analytic), read from the mesh
+    as the distance of wall vertices from the truth's boundary planes' axis."""
+    p = SynthParams(**SMALL, radius_taper=-0.3, radius_variation=0.0, groove_depth_mm=0.0,
+                    scanner_noise_mm=0.0, top="flat", meander_amplitude_deg=0.5)
+    spec = simulate(p)
+    b = spec.truth["boundaries"]
+    h = np.asarray(b["heights_mm"])
+    s, r = lamina_coordinates(_specimen_frame(spec), np.asarray(b["centres_mm"]), np.asarray(b["normals"]), h)
+    top = h[-1]
+    low = (s > 0.1 * top) & (s < 0.2 * top) & (r > 0.5 * p.radius_mm)
+    high = (s > 0.8 * top) & (s < 0.9 * top) & (r > 0.5 * p.radius_mm)
+    expected = (1 - 0.3 * 0.85) / (1 - 0.3 * 0.15)
+    assert np.median(r[high]) / np.median(r[low]) == pytest.approx(expected, rel=0.02)
