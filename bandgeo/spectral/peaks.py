@@ -134,31 +134,34 @@ def residual_surrogates(rng: np.random.Generator, size: int, n: int, spectrum: n
 
 
 def cycle_phase_matrices(n: int, f: float):
-    """(n, m) cosine and sine columns, each non-zero on one whole cycle ``[j/f, (j+1)/f)`` of the
-    record (``m = floor(n f)``): ``y @ C`` and ``y @ S`` give each cycle's phase at frequency ``f``."""
+    """Cosine and sine at ``f`` and the start index of each whole cycle ``[j/f, (j+1)/f)`` of the record
+    (``m = floor(n f)`` cycles): per-cycle sums of ``y * cos`` and ``y * sin`` give each cycle's phase.
+
+    Returns ``(cos (n,), sin (n,), starts (m + 1,))``, ``starts[-1]`` being the end of the last whole cycle,
+    and ``m``."""
     t = np.arange(n)
     m = int(np.floor(n * f + 1e-9))
     j = np.floor(t * f).astype(int)
-    C = np.zeros((n, max(m, 1)))
-    S = np.zeros((n, max(m, 1)))
-    ok = j < m
-    C[t[ok], j[ok]] = np.cos(2 * np.pi * f * t[ok])
-    S[t[ok], j[ok]] = np.sin(2 * np.pi * f * t[ok])
-    return C, S, m
+    starts = np.searchsorted(j, np.arange(m + 1))
+    return np.cos(2 * np.pi * f * t), np.sin(2 * np.pi * f * t), starts, m
 
 
-def phase_scatter(y: np.ndarray, C: np.ndarray, S: np.ndarray) -> np.ndarray:
+def phase_scatter(y: np.ndarray, C: np.ndarray, S: np.ndarray, starts: np.ndarray | None = None) -> np.ndarray:
     """Residual variance of per-cycle phases about their straight line (batched over rows of ``y``).
 
     Each whole cycle of the record gives one phase; a record whose season keeps time scatters about a
     line. Excess scatter (phase wander, a changing season) makes the frequency less certain than a
-    stationary-noise model says. Returns (B,) radians squared (NaN with fewer than three cycles).
+    stationary-noise model says. ``C, S, starts`` come from :func:`cycle_phase_matrices`. Returns (B,)
+    radians squared (NaN with fewer than three cycles).
     """
     y = np.atleast_2d(y)
-    m = C.shape[1]
+    m = starts.size - 1
     if m < 3:
         return np.full(y.shape[0], np.nan)
-    ph = np.unwrap(np.arctan2(-(y @ S), y @ C), axis=1)
+    end = int(starts[-1])
+    a = np.add.reduceat(y[:, :end] * C[:end], starts[:-1], axis=1)
+    b = np.add.reduceat(y[:, :end] * S[:end], starts[:-1], axis=1)
+    ph = np.unwrap(np.arctan2(-b, a), axis=1)
     j = np.arange(m) - 0.5 * (m - 1)
     slope = (ph - ph.mean(axis=1, keepdims=True)) @ j / (j @ j)
     res = ph - ph.mean(axis=1, keepdims=True) - slope[:, None] * j[None, :]
@@ -219,7 +222,7 @@ def peak_monte_carlo(x: np.ndarray, f_hat: float, other_freqs, n_fft: int, n_boo
     lo, hi = local_window(f_hat, n)
     f_star = np.empty(n_boot)
     cyc = np.empty(n_boot) if cycle_fn is not None else None
-    Cm, Sm, m_cyc = cycle_phase_matrices(n, f_hat)
+    Cm, Sm, st_cyc, m_cyc = cycle_phase_matrices(n, f_hat)
     d_star = np.empty(n_boot)
     block = max(1, min(n_boot, BLOCK_SAMPLES // max(n_fft, 1)))
     single = n > LARGE_N          # single precision halves the cost; ample for a periodogram peak
@@ -235,14 +238,14 @@ def peak_monte_carlo(x: np.ndarray, f_hat: float, other_freqs, n_fft: int, n_boo
         P = fft_power(y, n_fft, spectrum=X)
         fs = estimate_in_window(y, P, freq, n_fft, np.full(size, lo), np.full(size, hi))
         f_star[start:start + size] = fs
-        d_star[start:start + size] = phase_scatter(y.astype(float, copy=False), Cm, Sm)
+        d_star[start:start + size] = phase_scatter(y.astype(float, copy=False), Cm, Sm, st_cyc)
         if cycle_fn is not None:
             cyc[start:start + size] = cycle_fn(X, fs)
         report(progress, label, start + size, n_boot)
     r = resid - resid.mean()
     lag1 = float(r[1:] @ r[:-1] / max(r @ r, 1e-300))
     return {"f_star": f_star, "cycle_star": cyc, "phi": phi, "var_e": var_e,
-            "phase_scatter": float(phase_scatter(x, Cm, Sm)[0]), "phase_scatter_star": d_star,
+            "phase_scatter": float(phase_scatter(x, Cm, Sm, st_cyc)[0]), "phase_scatter_star": d_star,
             "n_whole_cycles": int(m_cyc),
             "amplitude": float(amp[0]), "window": (lo, hi), "residual_sd": float(np.std(resid)),
             "residual_lag1": lag1, "residual_spectrum_at_peak": float(np.interp(f_hat, freq, S)),
