@@ -36,7 +36,7 @@ LABELS = {
     "spacing_cv": ("spread of band spacing (coefficient of variation)", ""),
     "spacing_cv_null_median": ("the same for randomly spaced boundaries (median)", ""),
     "peak_sharpness": ("sharpness of the spacing peak", ""),
-    "peak_sharpness_null_95": ("the same that random spacing exceeds 5 % of the time", ""),
+    "peak_sharpness_null_95": ("the same, reached by random spacing 5 % of the time", ""),
     "n_bands": ("bands tested", ""),
     "mean_spacing_mm": ("mean band spacing", "mm"),
     "note": ("note", ""),
@@ -94,7 +94,11 @@ def value_text(value: Any, unit: str = "") -> str:
     if isinstance(value, (int,)) and not isinstance(value, bool):
         return f"{value}" + (f" {unit}" if unit else "")
     if isinstance(value, float):
-        return fmt_sig(value) + (f" {unit}" if unit and unit != "×" else ("×" if unit == "×" else ""))
+        if value != value or value in (float("inf"), float("-inf")):
+            return "—"
+        text = f"{value:,.0f}" if abs(value) >= 1000 else (f"{value:.3g}" if abs(value) >= 1e-4 or value == 0
+                                                          else f"{value:.2e}")
+        return text + (f" {unit}" if unit and unit != "×" else ("×" if unit == "×" else ""))
     if isinstance(value, (list, tuple)):
         if len(value) > 6:
             return f"{len(value)} values (listed in result.json)"
@@ -321,7 +325,10 @@ def detail_sections(result: Mapping) -> list[dict]:
     if daily:
         n = daily.get("n_sim")
         rows = []
-        for key, value in daily.items():
+        order = ("verdict", "spacing_cv", "spacing_cv_null_median", "peak_sharpness", "peak_sharpness_null_95",
+                 "n_bands", "mean_spacing_mm")
+        items = [(k, daily[k]) for k in order if k in daily] + [(k, v) for k, v in daily.items() if k not in order]
+        for key, value in items:
             if key in ("p_value", "cv_p_value", "n_sim"):
                 continue
             if key == "depth_profile" and isinstance(value, Mapping):
@@ -422,7 +429,8 @@ def specimen_rows(result: Mapping) -> list[tuple[str, str]]:
     if "north_known" in sp:
         rows.append(("north known", "yes" if sp["north_known"] else "no: azimuths are from an arbitrary horizontal axis"))
     if sheet.get("strike_deg") is not None and sheet.get("dip_deg") is not None:
-        rows.append(("bedding corrected", f"strike {fmt_sig(sheet['strike_deg'])}°, dip {fmt_sig(sheet['dip_deg'])}° (right-hand rule)"))
+        rows.append(("bedding corrected", f"strike {float(sheet['strike_deg']):.3g}°, dip {float(sheet['dip_deg']):.3g}° "
+                     "(right-hand rule)"))
     cleaning = sp.get("cleaning") or {}
     changed = [f"{CLEANING_LABELS.get(k, humanise(k)[0])}: {v}" for k, v in cleaning.items() if v]
     rows.append(("mesh cleaning", "; ".join(changed) if changed else "nothing needed changing"))
@@ -504,7 +512,7 @@ def cautions(result: Mapping, tilt=None) -> list[tuple[str, str]]:
             out.append(("The routes disagree", "The estimates of the routes differ by more than their "
                         "intervals allow; the combination uses only the routes named in its method."))
         cc = (dpy.get("methods") or {}).get("cycle_count") or {}
-        if isinstance(cc, Mapping) and cc.get("n_cycles") is not None and int(cc["n_cycles"]) < 2:
+        if isinstance(cc, Mapping) and cc.get("n_cycles") is not None and int(cc["n_cycles"]) == 1:
             out.append(("Few cycles", f"The cycle count rests on {cc['n_cycles']} whole yearly cycle; "
                         "its interval says little about year-to-year change."))
     if any("long-period end" in str(w) for w in result.get("warnings") or []):
