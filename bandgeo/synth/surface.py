@@ -78,12 +78,12 @@ class Centreline:
 
     def locate_near(self, x: np.ndarray, s0: float):
         """Arc length ``s`` and distance ``rho`` of points ``x`` that lie near the plane at ``s0``:
-        one step along the tangent at ``s0``, then two Newton steps (``theta`` is not computed)."""
+        one step along the tangent at ``s0``, then one Newton step (``theta`` is not computed). The
+        distance is second-order insensitive to what error in ``s`` remains."""
         c0, t0 = self.point_tangent(np.array([float(s0)]))
         s = float(s0) + (x - c0[0]) @ t0[0]
-        for _ in range(2):
-            c, t = self.point_tangent(s)
-            s += np.einsum("ij,ij->i", x - c, t)
+        c, t = self.point_tangent(s)
+        s += np.einsum("ij,ij->i", x - c, t)
         c, t = self.point_tangent(s)
         rel = x - c
         along = np.einsum("ij,ij->i", rel, t)
