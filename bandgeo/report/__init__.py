@@ -5,11 +5,13 @@ Public API::
     write_report(state, folder=None, formats=("html", "pdf", "csv", "ply"), progress=None)
         -> dict[str, Path]
 
-Modules: ``build`` (orchestration), ``model`` (formatting of result.json), ``figures`` and
-``comparison`` (2-D figures), ``render3d`` (headless mesh views), ``unroll`` (azimuth × height),
-``spectra`` (reading the saved spectra), ``references`` (published reference points), ``html``,
-``pdf``, ``exports`` (CSV, PLY) and ``palette`` (colour-blind-safe colours). Matplotlib and jinja2
-are imported only when a report is built.
+Modules: ``build`` (orchestration), ``content`` (what the page says: plain labels, units, headline,
+cautions), ``numbers`` (rounding to the uncertainty, p-values at the Monte Carlo floor), ``tilt``
+(sway plane, sway amplitude, mean lean), ``figures``, ``comparison`` and ``specimen_view`` (figures),
+``spectra`` (reading the saved spectra), ``references`` (published reference points), ``html`` (the
+page), ``pdf`` (the same page typeset by WeasyPrint), ``exports`` (CSV, PLY) and ``palette``
+(colour-blind-safe colours). ``model``, ``unroll`` and ``render3d`` are older helpers kept for
+callers. Matplotlib, jinja2 and WeasyPrint are imported only when a report is built.
 """
 from __future__ import annotations
 
@@ -29,7 +31,8 @@ def write_report(state, folder=None, formats=("html", "pdf", "csv", "ply"), prog
     folder : path, optional
         Where to write; defaults to ``state.folder``.
     formats : sequence of {"html", "pdf", "csv", "ply"}
-        ``html`` -> report.html, ``pdf`` -> report.pdf, ``csv`` -> bands.csv and spectra.csv,
+        ``html`` -> report.html, ``pdf`` -> report.pdf (the same page on A4), ``csv`` -> bands.csv and
+        spectra.csv,
         ``ply`` -> labelled_mesh.ply (per-vertex ``band`` property and one colour per band).
     progress : callable, optional
         ``progress(description, done, total)``.
