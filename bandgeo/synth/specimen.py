@@ -1,4 +1,29 @@
-"""A full synthetic specimen: lamina record, mesh in the file's frame and units, colours, and truth."""
+"""A full synthetic specimen: lamina record, mesh in the file's frame and units, colours, and truth.
+
+Truth file (``<stem>.truth.json``, schema ``bandgeo.synth-truth/1``; fields are only ever added):
+
+- ``params`` (every parameter, resolved: rebuild with ``SynthParams.from_dict``), ``seed``, ``units``,
+  ``mm_per_unit``.
+- ``frames``: ``file_from_specimen`` / ``specimen_from_file`` (4x4, scale included), ``paleo_up_file``,
+  ``north_file``, ``east_file``, ``growth_direction_file`` / ``_specimen`` (thickness-weighted mean),
+  ``sway_plane_direction_file``, ``sway_plane_azimuth_deg``, ``base_centre_file``.
+- ``laminae`` (one entry per recorded lamina, base to top): ``thickness_mm`` (along the centreline),
+  ``day_index``, ``inclination_deg`` / ``azimuth_deg`` of the growth direction, ``sway_deg`` (tilt
+  component along the sway-plane azimuth), ``tilt_east_deg`` / ``tilt_north_deg`` (the realised tilt
+  vector) = mean lean + ``annual_sway_deg`` along the sway azimuth + ``meander_east_deg`` /
+  ``meander_north_deg``; counts (``n_recorded``, ``n_nominal``, ``recorded_laminae_per_year``, ...),
+  ``hiatus_after``, ``hiatuses``.
+- ``boundaries`` (N + 1 entries): ``heights_mm`` (arc length along the true centreline), the boundary
+  plane's centre and unit normal (pointing up the column) in the file frame (``centres_file``,
+  ``normals_file``) and in the specimen frame (``centres_mm``, ``normals``), ``inclination_deg`` /
+  ``azimuth_deg`` of each normal, ``thickness_above_mm`` (null for the last). Each boundary is a dome
+  rising ``dome_height_mm`` above its plane on the axis; the plane is where it meets the side wall.
+- ``mesh``: ``mesh_kind``, counts, ``column_length_mm``, radius range, ``sampling_step_mm`` (ring spacing,
+  lattice row spacing or voxel), ``groove_depth_effective_mm`` (what the mesh shows: widened to the
+  sampling, and for photogrammetric meshes after smoothing), kind-specific figures (edge lengths,
+  lattice angle, smoothing gains, CT chunks and seam welding), ``max_curvature_times_radius`` (near 1
+  the laminae would fold), ``holes``, ``closed``.
+"""
 from __future__ import annotations
 
 from dataclasses import dataclass
