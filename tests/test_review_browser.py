@@ -36,12 +36,13 @@ def long_record(tmp_path_factory):
     return make_long_folder(tmp_path_factory.mktemp("long") / "KRB-41 result", n_bands=1100)
 
 
-def _rerun(folder, progress=None):
-    """The real re-run after a save: measurement, series, periodicity (the report's own tests cover
-    the report stage, left out here to keep this file inside its time budget)."""
-    from bandgeo import pipeline
+def _rerun():
+    """The server's own re-run after a save (the pipeline's in-memory re-runner: measurement, series,
+    periodicity), without the report, which the report's own tests cover, to keep this file inside its
+    time budget."""
+    from bandgeo.review.app import PipelineRerun
 
-    return pipeline.rerun(folder, report=False, progress=progress)
+    return PipelineRerun(report=False)
 
 
 @pytest.fixture(scope="module")
@@ -81,7 +82,7 @@ def _x_of(page, h):
 def test_thousand_boundary_workflow(long_record, browser):
     from playwright.sync_api import expect
 
-    server = serve(long_record, open_browser=False, rerun=_rerun)
+    server = serve(long_record, open_browser=False, rerun=_rerun())
     errors = []
     try:
         page = browser.new_page(viewport={"width": 1440, "height": 900})

@@ -379,3 +379,36 @@ def test_rerun_reports_its_progress_and_the_page_stays_usable(tmp_path):
     finally:
         release.set()
         server.stop()
+
+
+def test_new_figures_are_shown_before_the_report_is_written(tmp_path):
+    """A re-run that hands over the analysis before writing the report (``partial``): the page's state
+    has the new figures while the re-run is still writing the report."""
+    folder, seg, _ = make_folder(tmp_path / "KRB-07")
+    in_report, release = threading.Event(), threading.Event()
+
+    class Analysis:
+        result = {"days_per_year": {"estimate": 366.0, "ci95": [360.0, 372.0], "significant": True,
+                                    "method": "stand-in"}, "bands": {"count": 10, "mean_thickness_mm": 1.5}}
+        band_table = None
+
+    def rerun(folder, progress=None, partial=None):
+        partial(Analysis())
+        in_report.set()
+        release.wait(30)
+        return Analysis()
+
+    server = serve(folder, open_browser=False, segmentation=seg, rerun=rerun)
+    try:
+        request(server, "POST", "/api/edit", {"edit": {"op": "reject", "id": 2}})
+        request(server, "POST", "/api/save", {})
+        assert in_report.wait(30)
+        state = request(server, "GET", "/api/state")[1]
+        assert state["rerun"]["state"] == "running" and state["rerun"]["result_utc"]
+        assert state["result"]["days_per_year"]["estimate"] == 366.0       # not the fixture's 401.5
+        release.set()
+        server.app.wait(30)
+        assert request(server, "GET", "/api/status")[1]["state"] == "done"
+    finally:
+        release.set()
+        server.stop()

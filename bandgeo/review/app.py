@@ -55,11 +55,19 @@ class PipelineRerun:
             except ImportError:
                 pass
 
-    def __call__(self, folder, progress=None):
+    def __call__(self, folder, progress=None, partial=None):
+        """Re-run; with ``partial`` given, the analysis is handed to ``partial(analysis)`` as soon as
+        result.json and bands.csv are written, and the report is written after (so the page shows the
+        new figures without waiting for the report)."""
         from .. import pipeline
 
         if hasattr(pipeline, "Rerunner"):
             self.warm(folder)
+            if partial is not None and self.report and hasattr(pipeline, "write_analysis_report"):
+                analysis = self._runner(report=False, progress=progress)
+                partial(analysis)
+                pipeline.write_analysis_report(analysis, folder, progress=progress)
+                return analysis
             return self._runner(report=self.report, progress=progress)
         kwargs = {"report": self.report}
         if _takes_progress(pipeline.rerun):
@@ -70,12 +78,16 @@ class PipelineRerun:
 _default_rerun = PipelineRerun()  # kept for callers of the old name
 
 
-def _takes_progress(fn) -> bool:
+def _takes(fn, name) -> bool:
     try:
         params = inspect.signature(fn).parameters
     except (TypeError, ValueError):
         return False
-    return "progress" in params or any(p.kind is p.VAR_KEYWORD for p in params.values())
+    return name in params or any(p.kind is p.VAR_KEYWORD for p in params.values())
+
+
+def _takes_progress(fn) -> bool:
+    return _takes(fn, "progress")
 
 
 class ReviewApp:
@@ -100,7 +112,7 @@ class ReviewApp:
         self._pending = False
         self.last_result = result_summary(self.data.result())
         self.status = {"state": "idle", "error": None, "started_utc": None, "finished_utc": None,
-                       "runs": 0, "stage": None, "done": 0, "total": 0, "seconds": None}
+                       "runs": 0, "stage": None, "done": 0, "total": 0, "seconds": None, "result_utc": None}
 
     # -- the review file -------------------------------------------------------------------------
     def _read_fitting(self, base):
@@ -192,14 +204,23 @@ class ReviewApp:
         with self._lock:
             self.status.update(stage=str(description)[:80], done=int(done or 0), total=int(total or 0))
 
+    def _partial(self, analysis) -> None:
+        """The new figures are written (the report follows): show them at once."""
+        summary = result_summary(getattr(analysis, "result", None), getattr(analysis, "band_table", None))
+        with self._lock:
+            self.last_result = summary or self.last_result
+            self.status.update(result_utc=utc_now(), stage="report")
+
     def _work(self) -> None:
         while True:
             start = time.perf_counter()
             try:
-                if _takes_progress(self.rerun):
-                    state = self.rerun(self.folder, progress=self._progress)
-                else:
-                    state = self.rerun(self.folder)
+                kwargs = {}
+                if _takes(self.rerun, "progress"):
+                    kwargs["progress"] = self._progress
+                if _takes(self.rerun, "partial"):
+                    kwargs["partial"] = self._partial
+                state = self.rerun(self.folder, **kwargs)
                 summary = result_summary(getattr(state, "result", None), getattr(state, "band_table", None))
                 with self._lock:
                     self.last_result = summary or self.last_result

@@ -55,8 +55,10 @@ async function poll() {
     for (let i = 0; i < 7200; i++) {           // at most an hour, twice a second
       await new Promise((ok) => setTimeout(ok, 500));
       const st = await call("/api/status");
+      const fresh = st.result_utc && st.result_utc !== (S.rerun || {}).result_utc;
       S.rerun = st; drawStatus();
       if (st.state !== "running") { setState(await call("/api/state")); break; }
+      if (fresh) setState(await call("/api/state"));   // new figures are in; the report follows
     }
   } catch (e) { toast(e.message); } finally { polling = false; }
 }
@@ -313,7 +315,8 @@ function drawStatus() {
   const bar = $("progress");
   if (r.state === "running") {
     const part = r.total ? ` ${r.stage || ""} (${r.done}/${r.total})` : "";
-    text += ` · refreshing the analysis…${part}`;
+    text += r.result_utc && r.started_utc && r.result_utc >= r.started_utc ?
+      " · figures updated, writing the report…" : ` · refreshing the analysis…${part}`;
     bar.hidden = false; $("progress-bar").style.width = `${r.total ? Math.round(100 * r.done / r.total) : 5}%`;
   } else bar.hidden = true;
   if (r.state === "failed") { text += ` · refresh failed: ${r.error} (last good result shown)`; st.classList.add("error"); }
