@@ -311,8 +311,6 @@ def _documents(state, folder, formats, paths, seconds, tick, t_start):
     t0 = time.perf_counter()
     ctx = report_context(state, figs, omitted, tilt, report_seconds=time.perf_counter() - t_start)
     page = render_html(ctx)
-    if "html" in formats:
-        paths["report.html"] = write_text(folder / "report.html", page)
     seconds["html"] = time.perf_counter() - t0
     if "pdf" in formats:
         from .pdf import write_pdf
@@ -321,4 +319,12 @@ def _documents(state, folder, formats, paths, seconds, tick, t_start):
         title = f"Specimen {ctx['specimen_id']}: growth-band periodicity report"
         paths["report.pdf"] = write_pdf(page, folder / "report.pdf", title=title)
         seconds["pdf"] = time.perf_counter() - t0
+        # the page written last knows the whole report time, the PDF's typesetting included
+        ctx["provenance"]["stages"] = content.stage_rows(state.result, time.perf_counter() - t_start,
+                                                         note="figures, page and PDF")
+        page = render_html(ctx)
+    if "html" in formats:
+        t0 = time.perf_counter()
+        paths["report.html"] = write_text(folder / "report.html", page)
+        seconds["html"] += time.perf_counter() - t0
     tick("report: done")

@@ -532,12 +532,13 @@ def cautions(result: Mapping, tilt=None) -> list[tuple[str, str]]:
     return out
 
 
-def stage_rows(result: Mapping, report_seconds: float | None) -> list[tuple[str, str]]:
+def stage_rows(result: Mapping, report_seconds: float | None,
+               note: str = "figures and page; PDF typesetting after") -> list[tuple[str, str]]:
     stages = dict((result.get("provenance") or {}).get("stage_seconds") or {})
     stages.pop("report", None)
     rows = [(STAGE_LABELS.get(k, humanise(k)[0]), f"{float(v):.2f} s") for k, v in stages.items()]
     if report_seconds is not None:
-        rows.append((STAGE_LABELS["report"], f"{report_seconds:.2f} s (figures and page; PDF typesetting after)"))
+        rows.append((STAGE_LABELS["report"], f"{report_seconds:.2f} s ({note})"))
     total = sum(float(v) for v in stages.values()) + (report_seconds or 0.0)
     rows.append(("total", f"{total:.1f} s"))
     return rows
