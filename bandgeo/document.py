@@ -1,5 +1,5 @@
 """``result.json`` built from an analysis held in memory (schema ``bandgeo.result/1``,
-docs/result-schema.md), and the astronomy block derived from days per year and tidal months."""
+docs/result-schema.md)."""
 from __future__ import annotations
 
 import datetime as _dt
@@ -45,30 +45,11 @@ def library_versions() -> dict[str, str]:
 
 
 def astronomy_block(per: dict) -> dict:
-    """Length of day, sidereal day and (with significant tidal months) the Earth-Moon distance, from
-    the ``days_per_year`` and ``tidal`` blocks (``bandgeo.astro``; docs/astronomy.md). Empty (all None)
-    when days per year are not significant."""
-    from . import astro
+    """The astronomy block from the ``days_per_year`` and ``tidal`` blocks
+    (``bandgeo.spectral.astronomy_block``, shared with the ``periodicity`` command)."""
+    from .spectral import astronomy_block as _block
 
-    dpy = per.get("days_per_year") or {}
-    block: dict = {"length_of_day_hours": None, "sidereal_day_hours": None,
-                   "earth_moon_distance": None, "synodic_months_per_year": None}
-    if not dpy.get("significant") or dpy.get("estimate") is None:
-        return block
-    rot = astro.rotation_from_days_per_year(dpy["estimate"], dpy.get("ci95"))
-    block["length_of_day_hours"] = rot.get("length_of_day_hours")
-    block["sidereal_day_hours"] = rot.get("sidereal_day_hours")
-    block["rotation"] = rot
-    tidal = (per.get("tidal") or {}).get("days_per_synodic_month")
-    if tidal and tidal.get("significant") and tidal.get("estimate"):
-        months = astro.months_per_year(dpy["estimate"], tidal["estimate"],
-                                       days_per_year_ci95=dpy.get("ci95"),
-                                       days_per_month_ci95=tidal.get("ci95"))
-        block["synodic_months_per_year"] = months
-        block["earth_moon_distance"] = astro.earth_moon_distance(
-            synodic_months_per_year=months["estimate"], days_per_year=dpy["estimate"],
-            months_ci95=months.get("ci95"), days_per_year_ci95=dpy.get("ci95"))
-    return block
+    return _block(per)
 
 
 def _mean_ci95(values: np.ndarray):
@@ -127,7 +108,7 @@ def result_document(specimen: "Specimen", seg: "Segmentation", table: "BandTable
     """The ``result.json`` document of one analysis (every block documented in docs/result-schema.md)."""
     all_warnings = list(specimen.warnings) + list(seg.warnings) + list(per.get("warnings", [])) + warnings
     parameters = params.to_json()
-    return {
+    document = {
         "schema": RESULT_SCHEMA,
         "bandgeo_version": __version__,
         "specimen": specimen_block(specimen),
@@ -153,3 +134,6 @@ def result_document(specimen: "Specimen", seg: "Segmentation", table: "BandTable
             "platform": platform.platform(),
         },
     }
+    if astronomy.get("length_of_day_hours_thickness_route") is not None:
+        document["length_of_day_hours_thickness_route"] = astronomy["length_of_day_hours_thickness_route"]
+    return document

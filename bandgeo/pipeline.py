@@ -22,7 +22,7 @@ from typing import TYPE_CHECKING, Callable, Optional
 import numpy as np
 
 from .constants import DEFAULT_SEED
-from .document import ASSUMPTIONS, astronomy_block, library_versions, result_document  # noqa: F401
+from .document import ASSUMPTIONS, library_versions, result_document  # noqa: F401
 from .errors import InputError
 from .progress import report as _report
 from .results import DERIVED_FILES, REVIEW_FILE, RUN_FILE, ResultFolder, ReviewInfo, RunParams, save_specimen
@@ -166,17 +166,18 @@ def review_stage(specimen, auto, review: Optional[dict], warnings: list):
                            notes=str(review.get("notes") or ""), marked_stretches=list(review.get("stretches") or []))
 
 
-def _periodicity(series, params: RunParams, segmentation):
+def _periodicity(series, params: RunParams, segmentation, table):
+    """The periodicity figures (``bandgeo.spectral.periodicity_figures``, the same function the
+    ``periodicity`` command calls): tests, days per year widened by the band-count uncertainty, and the
+    astronomy block (length of day, tidal months, Earth-Moon distance)."""
     from . import spectral as _spectral
     from . import uncertainty as _uncertainty
 
-    periodicity = _spectral.test_periodicity(series, min_period_bands=params.min_period_bands,
-                                             max_period_bands=params.max_period_bands, n_sim=params.n_sim,
-                                             seed=params.seed)
-    per = periodicity.to_dict()
-    counting = _uncertainty.count_uncertainty(segmentation)
-    per["days_per_year"] = _uncertainty.widen_days_per_year(per.get("days_per_year") or {}, counting)
-    return periodicity, per
+    figures = _spectral.periodicity_figures(
+        series, count_uncertainty=_uncertainty.count_uncertainty(segmentation),
+        min_period_bands=params.min_period_bands, max_period_bands=params.max_period_bands, n_sim=params.n_sim,
+        seed=params.seed, band_flags=list(table.flags))
+    return figures["periodicity"], figures["blocks"], figures["astronomy"]
 
 
 def downstream(specimen: "Specimen", segmentation: "Segmentation", review: Optional[dict], params: RunParams,
@@ -203,8 +204,7 @@ def downstream(specimen: "Specimen", segmentation: "Segmentation", review: Optio
     seg, info = timer.run("review", review_stage, specimen, segmentation, review, warnings)
     table = timer.run("measure", _measure.measure_bands, specimen, seg)
     series = timer.run("series", _series.build_series, table, seg, specimen)
-    periodicity, per = timer.run("periodicity", _periodicity, series, params, seg)
-    astronomy = timer.run("astronomy", astronomy_block, per)
+    periodicity, per, astronomy = timer.run("periodicity", _periodicity, series, params, seg, table)
     seconds = {**(stage_seconds or {}), **timer.seconds}
     result = result_document(specimen, seg, table, per, astronomy, info, params, seconds, warnings)
     return Analysis(specimen=specimen, segmentation=seg, auto_segmentation=segmentation, band_table=table,
