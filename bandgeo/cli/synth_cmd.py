@@ -64,7 +64,7 @@ DEFAULT_TEXT = {
     "groove_depth_mm": "25% of --mean-thickness-mm; 0.04 with a rings-only option",
     "scanner_noise_mm": "10% of --mean-thickness-mm; 0.004 with a rings-only option",
     "sway_amplitude_deg": "5.0; 3.0 with a rings-only option",
-    "meander_amplitude_deg": "1.5; 0 with a rings-only option",
+    "meander_amplitude_deg": "1.0; 0 with a rings-only option",
     "edge_length_mm": "a third of --mean-thickness-mm",
     "voxel_size_mm": "a third of --mean-thickness-mm",
     "mesh_kind": "photogrammetric",

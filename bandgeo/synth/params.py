@@ -29,7 +29,7 @@ LEGACY_DEFAULTS = {"sway_amplitude_deg": 3.0, "meander_amplitude_deg": 0.0, "sca
                    "groove_depth_mm": 0.04}
 #: Realistic defaults of the sway and the meander (degrees).
 REALISTIC_SWAY_DEG = 5.0
-REALISTIC_MEANDER_DEG = 1.5
+REALISTIC_MEANDER_DEG = 1.0
 
 #: Scanner noise and groove depth, as fractions of the mean lamina thickness, when not given.
 DEFAULT_NOISE_FRACTION = 0.10
@@ -77,13 +77,16 @@ class SynthParams:
     sway_amplitude_deg, sway_azimuth_deg, sway_phase_rad : float, default=None (5), 30, 0
         Heliotropic annual sway of the growth direction: amplitude, azimuth of the sway plane
         (clockwise from north) and phase at day 0.
-    meander_amplitude_deg : float or None, default=None (1.5)
+    meander_amplitude_deg : float or None, default=None (1.0)
         Growth meander: standard deviation, degrees, of each horizontal component (east, north) of a
         red-noise wander of the growth direction added to the sway and the mean lean. Each component
         is a stationary Gaussian AR(1) series in the (nominal) lamina index.
-    meander_correlation_laminae : float, default=40
+    meander_correlation_laminae : float, default=100
         Correlation length of the meander in laminae: lag-1 correlation exp(-1 / length) (the
-        Ornstein-Uhlenbeck process sampled once a lamina).
+        Ornstein-Uhlenbeck process sampled once a lamina). The direction changes from one lamina to the
+        next by about amplitude x sqrt(2 / length); times the radius, that must stay well below the
+        thinnest lamina or the laminae would pinch out (``simulate`` refuses a column whose laminae
+        would fold and reports ``max_curvature_times_radius`` in the truth file).
     mean_tilt_deg, mean_tilt_azimuth_deg : float, default=2, 120
         Mean lean of the growth direction from the paleo-vertical, and its azimuth.
     radius_mm, radius_variation : float, default=8, 0.08
@@ -183,7 +186,7 @@ class SynthParams:
     smoothing_iterations: int = 2
     edge_aspect: float = 1.0
     meander_amplitude_deg: Optional[float] = None
-    meander_correlation_laminae: float = 40.0
+    meander_correlation_laminae: float = 100.0
     radius_taper: float = 0.0
 
     def __post_init__(self):

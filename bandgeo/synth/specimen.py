@@ -121,6 +121,18 @@ def _pose(p: SynthParams, gen: np.random.Generator, length_mm: float):
     return rot, shift
 
 
+def _fold_index(record: LaminaRecord) -> float:
+    """Largest curvature of the centreline times the largest radius (>= 1: rings would cross)."""
+    d = record.growth_directions()
+    if d.shape[0] < 2:
+        return 0.0
+    h = record.boundary_heights_mm
+    mid = 0.5 * (h[:-1] + h[1:])
+    curv = np.linalg.norm(np.diff(d, axis=0), axis=1) / np.maximum(np.diff(mid), 1e-12)
+    p = record.params
+    return float(curv.max() * p.radius_mm * (1.0 + p.radius_variation) * (1.0 + max(p.radius_taper, 0.0)))
+
+
 def build_mesh(record: LaminaRecord, gens: dict, progress=None) -> ColumnMesh:
     """The column mesh of ``record.params.mesh_kind`` (specimen frame, mm; noise added by the
     photogrammetric and CT builders, not yet by the ring builder)."""
@@ -159,6 +171,12 @@ def simulate(params: SynthParams, progress=None) -> SynthSpecimen:
                              f"mean_thickness_mm")
     report(progress, "simulating laminae", 0, 4)
     record = simulate_laminae(params)
+    fold = _fold_index(record)
+    if fold >= 1.0:
+        from ..errors import ParameterError
+        raise ParameterError(f"the growth direction turns so fast that the laminae would fold over each other "
+                             f"(curvature x radius {fold:.2f}, must stay below 1); lower "
+                             f"meander_amplitude_deg or radius_mm, or raise meander_correlation_laminae")
     gens = _streams(params.seed)
     report(progress, f"building the column mesh ({params.mesh_kind})", 1, 4)
     mesh = build_mesh(record, gens, progress)
@@ -174,6 +192,10 @@ def simulate(params: SynthParams, progress=None) -> SynthSpecimen:
     file_from_spec[:3, :3] = rot / mm_per_unit
     file_from_spec[:3, 3] = shift / mm_per_unit
     truth = _truth(params, record, mesh, rot, shift, mm_per_unit, file_from_spec, file_verts.shape[0])
+    truth["warnings"] = []
+    if fold > 0.7:
+        truth["warnings"].append(f"the growth direction turns fast: curvature x radius reaches {fold:.2f}, so "
+                                 f"the thinnest laminae nearly pinch out on one side of the column")
     report(progress, "specimen ready", 4, 4)
     return SynthSpecimen(file_verts, mesh.faces, colors, truth, record, file_from_spec)
 
