@@ -23,6 +23,7 @@ from .unroll import relief_image, unroll_vertices
 
 MAX_POINTS = 250_000
 CLOSE_BANDS = 40
+MAX_CLOSE_TRIANGLES = 8000
 
 
 def _straight_axis_s(vertices: np.ndarray, axis) -> np.ndarray:
@@ -185,11 +186,20 @@ def specimen_figure(vertices_mm, faces, vertex_band, axis, boundaries, view_azim
     fb = vb[fsel[vis]]
     band = np.where((fb[:, 1] == fb[:, 2]), fb[:, 1], fb[:, 0])[order]
     col = band_colors(band).astype(float) / 255.0 * (0.35 + 0.65 * facing[vis][order])[:, None]
-    pc = PolyCollection(tri[vis][order], facecolors=np.clip(col, 0, 1), edgecolors="face", linewidths=0.15,
-                        antialiased=False, rasterized=True)
-    axc.add_collection(pc)
-    axc.set_xlim(w0, w1)
     across = min(half_width, (w1 - w0) / 7.0)
+    if vis.sum() <= MAX_CLOSE_TRIANGLES:
+        pc = PolyCollection(tri[vis][order], facecolors=np.clip(col, 0, 1), edgecolors="face", linewidths=0.15,
+                            antialiased=False, rasterized=True)
+        axc.add_collection(pc)
+    else:
+        # a dense mesh: its vertices alone cover the picture, so draw them as points (z-buffered)
+        keep = (vs > w0) & (vs < w1) & (vdep > 0) & (np.abs(vlat) < across * 1.05) & (vr > 0.5 * radius)
+        shade_c = 0.35 + 0.65 * np.clip(vdep[keep] / np.maximum(vr[keep], 1e-9), 0, 1)
+        colour = band_colors(vb[near[keep]]).astype(float) / 255.0 * shade_c[:, None]
+        img = _rasterise(vs[keep], vlat[keep], vdep[keep], colour, w0, w1, across, (w1 - w0) / 1000.0,
+                         (np.array([w0, w1]), np.array([across, across]) * 2))
+        axc.imshow(img, extent=(w0, w1, -across, across), interpolation="nearest", aspect="auto", rasterized=True)
+    axc.set_xlim(w0, w1)
     axc.set_ylim(-across, across)
     axc.set_aspect("equal", adjustable="box")
     axc.set_xlabel("height along the column axis, mm", fontsize=8)
@@ -237,8 +247,8 @@ def specimen_figure(vertices_mm, faces, vertex_band, axis, boundaries, view_azim
         axu.set_xlabel("height along the column axis, mm", fontsize=8)
         axu.set_ylabel("azimuth from the\nsway plane, degrees", fontsize=8)
         axu.tick_params(labelsize=7)
-        axu.set_title("the stretch's side surface unrolled (relief: radius minus its smooth trend); "
-                      "ticks outside both edges mark the boundaries", fontsize=8.5, pad=9)
+        axu.set_title("the same stretch unrolled: relief = radius minus its smooth trend; "
+                      "ticks outside the edges: boundaries", fontsize=8.5, pad=9)
     else:
         axu.set_visible(False)
     return fig
