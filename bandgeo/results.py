@@ -385,3 +385,21 @@ def write_outputs_on_the_side(folder, writer, *, remove: Iterable[str] = (), set
         value = writer(staged)
         rf.swap_in(staged, remove=remove, set_aside=set_aside)
     return value
+
+
+def save_segment_folder(folder, specimen: "Specimen", segmentation: "Segmentation", params: RunParams,
+                        band_table=None) -> Path:
+    """What ``bandgeo segment`` writes: the segmentation, the specimen cache and ``run.json`` (and
+    ``bands.csv`` when a band table is given), on the side and swapped in. Such a folder opens in
+    ``bandgeo review`` and re-runs with :meth:`ResultFolder.load_inputs`."""
+    rf = ResultFolder(folder)
+
+    def write(staged: Path) -> None:
+        segmentation.save(staged)
+        save_specimen(staged, specimen, segmentation)
+        write_json(staged / RUN_FILE, params.document())
+        if band_table is not None:
+            band_table.to_csv(staged / "bands.csv")
+
+    write_outputs_on_the_side(rf.path, write)
+    return rf.path

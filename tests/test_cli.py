@@ -73,3 +73,27 @@ def test_readme_python_example_runs_and_covers_the_truth():
     truth = json.loads((root / "sample_meshes" / "KRB-07_annual.truth.json").read_text())
     lo, hi = namespace["days"]["ci95"]
     assert lo <= truth["laminae"]["recorded_laminae_per_year"] <= hi
+
+
+def test_a_segment_folder_opens_for_review_and_re_runs(tmp_path):
+    # 'bandgeo segment' promises its folder opens with 'bandgeo review': the folder must hold the
+    # specimen cache beside the segmentation, and the downstream stages must run from it alone.
+    import json
+
+    from bandgeo import pipeline
+    from bandgeo.results import ResultFolder
+    from bandgeo.review.data import FolderData
+    from bandgeo.synth import SynthParams, simulate, write_specimen
+
+    path = tmp_path / "KRB 08.ply"
+    write_specimen(simulate(SynthParams(years=0.06, radius_mm=3.0, seed=21)), path)
+    up = ",".join(str(x) for x in json.loads((tmp_path / "KRB 08.truth.json").read_text())["frames"]["paleo_up_file"])
+    out = tmp_path / "segment out"
+    assert main(["segment", str(path), "--out", str(out), "--units", "mm", "--up", up, "--seed", "3"]) == 0
+    assert {"specimen.npz", "run.json", "segmentation.json", "segmentation_labels.npz"} <= {p.name for p in out.iterdir()}
+    inputs = ResultFolder(out).load_inputs()
+    assert inputs.params.seed == 3 and inputs.specimen.vertices_mm.dtype == np.float64
+    page = FolderData(out)                          # what 'bandgeo review' loads
+    assert len(page.segmentation.boundaries) == len(inputs.segmentation.boundaries)
+    held = pipeline.Rerunner(out).segmentation     # the review page's re-runner reads the folder once
+    assert [b.id for b in held.boundaries] == [b.id for b in inputs.segmentation.boundaries]

@@ -61,11 +61,11 @@ def segment(ctx, scan, out, seed, n_classes, band_spacing, **opts):
     with progress.bar("segmenting") as cb:
         seg = BandSegmenter(n_classes=n_classes, random_state=seed).fit(specimen, feats, progress=cb).segmentation_
     table = measure_bands(specimen, seg)
-    out.mkdir(parents=True, exist_ok=True)
-    seg.save(out)
-    table.to_csv(out / "bands.csv")
+    from ..results import RunParams, save_segment_folder  # the specimen cache too: the folder opens in review
+
+    save_segment_folder(out, specimen, seg, RunParams.make(scan=scan, units=opts.get("units"), seed=seed), table)
     echo(ctx, summary_line(seg, table))
     for w in list(specimen.warnings) + list(seg.warnings) + list(table.warnings):
         echo(ctx, f"warning: {w}")
-    echo(ctx, f"wrote {Path(out) / 'segmentation.json'}, {Path(out) / 'segmentation_labels.npz'} and "
-              f"{Path(out) / 'bands.csv'}")
+    echo(ctx, f"wrote {Path(out) / 'segmentation.json'}, {Path(out) / 'segmentation_labels.npz'}, "
+              f"{Path(out) / 'specimen.npz'} and {Path(out) / 'bands.csv'}")
