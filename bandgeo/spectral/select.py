@@ -7,8 +7,10 @@ Every significant peak of a series (family-wise over the searched band) is read:
    power at the long-period end but is not a line, and fails. A peak whose line test is not applicable
    (fewer than about two cycles) cannot be the annual cycle either.
 2. of the peaks that pass, the strongest (largest ratio to the background) is the **annual** candidate -
-   not the longest, which is where a trend's remnant or a slow quasi-cycle sits. Longer lines are
-   reported as such, with a warning. Shorter peaks at 2-6 times its frequency
+   not the longest, which is where a trend's remnant or a slow quasi-cycle sits - unless a longer line
+   stands to it in the ratio of a year to a synodic month or a fortnight (12.0-15.45 months per year):
+   then the longer line is the year and the strongest its tidal cycle. Other longer lines are reported
+   as such, with a warning. Shorter peaks at 2-6 times its frequency
    (within one Fourier spacing, or 3%) are its **harmonics** - a season is rarely a sine - and are
    labelled so, never read as tidal. Peaks with fewer than three cycles in the record are never taken as
    the annual cycle (slow variation cannot be told from a cycle there).
@@ -100,6 +102,16 @@ def select_annual(search: dict) -> tuple[dict | None, list[dict]]:
             eligible.append(p)
         readings.append((p, r))
     annual = max(eligible, key=lambda p: p["ratio"]) if eligible else None
+    if annual is not None:
+        # A strong tidal line may outshine the year. A longer line standing to the strongest in the ratio
+        # of a year to a synodic month (or to a fortnight) is the year, the strongest its tidal cycle.
+        from .tidal import MONTHS_PER_YEAR_RANGE
+
+        lo, hi = MONTHS_PER_YEAR_RANGE
+        longer = [p for p in eligible if p["frequency"] < annual["frequency"]
+                  and any(lo <= annual["frequency"] / p["frequency"] / k <= hi for k in (1, 2))]
+        if longer:
+            annual = max(longer, key=lambda p: p["ratio"])
     for p, r in readings:
         if annual is None or r["reading"] != "line" and p is not annual:
             if annual is not None:
