@@ -175,6 +175,45 @@ def direction_angles(g: np.ndarray):
     return inc, az
 
 
+def _band_radii(v: np.ndarray, vband: np.ndarray, axis, nb: int) -> np.ndarray:
+    """Median wall radius of each band (from its labelled vertices; bands with none take the median of
+    the others), for the circumference samples of the thickness."""
+    _, radial = axis.project(v)
+    r = np.linalg.norm(radial, axis=1)
+    inside = vband >= 0
+    radius = np.full(nb, np.nan)
+    if inside.any():
+        order = np.argsort(vband[inside], kind="stable")
+        lab, rr = vband[inside][order], r[inside][order]
+        starts = np.searchsorted(lab, np.arange(nb))
+        ends = np.searchsorted(lab, np.arange(nb), side="right")
+        for k in range(nb):
+            if ends[k] > starts[k]:
+                radius[k] = np.median(rr[starts[k]:ends[k]])
+    fallback = np.nanmedian(radius) if np.isfinite(radius).any() else float(np.median(r))
+    return np.where(np.isfinite(radius), radius, fallback)
+
+
+def _band_flags(b0, b1, flagged, confidence: float, thickness_axis_mm: float) -> list:
+    """The remarks of the band between boundaries ``b0`` and ``b1``: flagged stretches it overlaps,
+    the boundaries' own flags, review edits, low confidence, crossing boundaries."""
+    fl = []
+    for st in flagged:
+        if _overlaps(b0.height_mm, b1.height_mm, float(st[0]), float(st[1])) and str(st[2]) not in fl:
+            fl.append(str(st[2]))
+    for b in (b0, b1):
+        for f in b.flags:
+            if not f.startswith("normal:") and f not in fl and f != "placed by height":
+                fl.append(f)
+        if b.origin == "review" and "edited in review" not in fl:
+            fl.append("edited in review")
+    if confidence < LOW_CONFIDENCE:
+        fl.append("low confidence")
+    if thickness_axis_mm <= 0:
+        fl.append("boundaries cross")
+    return fl
+
+
 def measure_bands(specimen, segmentation) -> BandTable:
     """Measure every band of ``segmentation`` on ``specimen``.
 
@@ -209,22 +248,7 @@ def measure_bands(specimen, segmentation) -> BandTable:
             warnings.append("fewer than two boundaries: no bands to measure")
         return BandTable(np.zeros(0, int), empty, empty, empty, empty, empty, empty, empty, empty, [],
                          np.zeros((0, 3)), warnings, north_known, empty, empty)
-    # median wall radius per band (from the labelled vertices), for the circumference samples
-    s, radial = axis.project(v)
-    r = np.linalg.norm(radial, axis=1)
-    inside = vband >= 0
-    radius = np.full(nb, np.nan)
-    if inside.any():
-        order = np.argsort(vband[inside], kind="stable")
-        lab, rr = vband[inside][order], r[inside][order]
-        starts = np.searchsorted(lab, np.arange(nb))
-        ends = np.searchsorted(lab, np.arange(nb), side="right")
-        for k in range(nb):
-            if ends[k] > starts[k]:
-                radius[k] = np.median(rr[starts[k]:ends[k]])
-    fallback = np.nanmedian(radius) if np.isfinite(radius).any() else float(np.median(r))
-    radius = np.where(np.isfinite(radius), radius, fallback)
-
+    radius = _band_radii(v, vband, axis, nb)
     flagged = (segmentation.resolution or {}).get("flagged", []) or []
     theta = 2 * np.pi * np.arange(N_AROUND) / N_AROUND
     rows = {k: np.zeros(nb) for k in ("base", "top", "tax", "tmed", "tiqr", "conf")}
@@ -250,20 +274,7 @@ def measure_bands(specimen, segmentation) -> BandTable:
         rows["tiqr"][k] = float(q75 - q25)
         rows["base"][k], rows["top"][k] = b0.height_mm, b1.height_mm
         rows["conf"][k] = min(b0.confidence, b1.confidence)
-        fl = []
-        for st in flagged:
-            if _overlaps(b0.height_mm, b1.height_mm, float(st[0]), float(st[1])) and str(st[2]) not in fl:
-                fl.append(str(st[2]))
-        for b in (b0, b1):
-            for f in b.flags:
-                if not f.startswith("normal:") and f not in fl and f != "placed by height":
-                    fl.append(f)
-            if b.origin == "review" and "edited in review" not in fl:
-                fl.append("edited in review")
-        if rows["conf"][k] < LOW_CONFIDENCE:
-            fl.append("low confidence")
-        if rows["tax"][k] <= 0:
-            fl.append("boundaries cross")
+        fl = _band_flags(b0, b1, flagged, rows["conf"][k], rows["tax"][k])
         flags.append("; ".join(fl))
     inc, az = direction_angles(gdir)
     base_inc, base_az = direction_angles(np.array([b.normal for b in bs[:-1]], dtype=float))
