@@ -102,7 +102,16 @@ def specimen_figure(vertices_mm, faces, vertex_band, axis, boundaries, view_azim
     lat, depth = _side_coords(az, r, view_azimuth_deg)
     front = side & (depth > 0)
     shade = 0.45 + 0.55 * np.clip(depth / np.maximum(r, 1e-9), 0, 1)
-    rgb = band_colors(vb[pick]).astype(float) / 255.0 * shade[:, None]
+    # Whole view: colour runs with band number (cividis, as in the plan-view figure), and alternate bands
+    # are a little darker, so the banding shows as texture without a seven-colour speckle at this scale.
+    from matplotlib import colormaps
+
+    bands_p = vb[pick].astype(np.int64)
+    top_band = max(int(bands_p.max()), 1)
+    rgb = colormaps[IMAGE_CMAP](np.clip(bands_p, 0, None) / top_band)[:, :3]
+    rgb = rgb * np.where(bands_p % 2 == 1, 0.82, 1.0)[:, None]
+    rgb[bands_p < 0] = UNASSIGNED_RGB / 255.0
+    rgb = rgb * shade[:, None]
     s_lo, s_hi = float(np.percentile(s, 0.01)), float(np.percentile(s, 99.99))
     length = max(s_hi - s_lo, 1e-6)
     half_width = float(np.percentile(r[side], 99.5)) * 1.05
@@ -126,7 +135,7 @@ def specimen_figure(vertices_mm, faces, vertex_band, axis, boundaries, view_azim
     if window is not None and window[1] > window[0]:
         close_h = ax_w * 2 * min(half_width, (window[1] - window[0]) / 7.0) / (window[1] - window[0])
     # panels from the top, in inches: (height, space above it for a title and the previous x labels)
-    plan = [(strip_h, 0.3 if k == 0 else 0.3) for k in range(n_strips)] + [(close_h, 0.95), (1.35, 0.65)]
+    plan = [(strip_h, 0.45 if k == 0 else 0.3) for k in range(n_strips)] + [(close_h, 0.95), (1.35, 0.65)]
     total = sum(h + g for h, g in plan) + 0.5
     fig = Figure(figsize=(width_in, total))
     rects, y = [], total
@@ -149,9 +158,9 @@ def specimen_figure(vertices_mm, faces, vertex_band, axis, boundaries, view_azim
             ax.add_patch(Rectangle((window[0], -half_width * 0.98), window[1] - window[0], 1.96 * half_width,
                                    fill=False, ec="black", lw=1.2))
         if k == 0:
-            ax.set_title(f"whole column, straightened along its axis, in {n_strips} strip"
-                         f"{'s' if n_strips > 1 else ''} (base at the top left); box: the close view below",
-                         fontsize=8.5)
+            ax.set_title(f"whole column straightened along its axis ({n_strips} strip{'s' if n_strips > 1 else ''}, "
+                         f"base at top left), coloured from the lowest band (dark blue) to the top (yellow);\n"
+                         f"alternate bands darker; the box marks the close view", fontsize=8)
         if k == n_strips - 1:
             ax.set_xlabel("height along the column axis, mm", fontsize=8)
 
