@@ -67,3 +67,35 @@ def test_each_method_interval_is_widened_alike():
     assert out["methods"]["cycle_count"]["ci95_spectral"] == [396.0, 404.0]
     assert out["methods"]["sway"] == {"estimate": None, "ci95": None}
     assert block["methods"]["cycle_count"]["ci95"] == [396.0, 404.0]  # input not modified
+
+
+def test_band_confidences_give_the_poisson_binomial_variance_too():
+    # The same law (sum c (1 - c)) from a band table's confidence column: what bands.csv carries, so
+    # that `bandgeo periodicity bands.csv` and analyze can use one count uncertainty.
+    from bandgeo.uncertainty import count_uncertainty_from_bands
+
+    rng = np.random.default_rng(2)
+    conf = rng.uniform(0.3, 1.0, 80)
+    got = count_uncertainty_from_bands(conf)
+    assert got["sd_boundaries"] ** 2 == pytest.approx(np.sum(conf * (1 - conf)), rel=1e-12)
+    assert got["relative_sd"] == pytest.approx(got["sd_boundaries"] / 80)
+    table = SimpleNamespace(confidence=conf, flags=[""] * 79 + ["possible missed boundary"],
+                            thickness_axis_mm=np.r_[np.full(79, 0.1), 0.35])
+    via_table = count_uncertainty(table)
+    assert via_table["relative_sd"] == pytest.approx(got["relative_sd"])
+    assert via_table["possibly_missed"] == pytest.approx(2.5)      # 0.35 / 0.1 - 1
+
+
+def test_stated_count_uncertainty_and_its_bad_values():
+    from bandgeo.errors import ParameterError
+    from bandgeo.uncertainty import count_uncertainty_stated
+
+    c = count_uncertainty_stated(0.02)
+    block = {"estimate": 400.0, "ci95": [396.0, 404.0], "thickness_route": {"estimate": 400.0, "ci95": [396.0, 404.0]}}
+    out = widen_days_per_year(block, c)
+    half = np.hypot(4.0, 1.959963984540054 * 0.02 * 400)       # quadrature sum
+    assert out["ci95"] == pytest.approx([400 - half, 400 + half])
+    assert out["thickness_route"]["ci95"] == pytest.approx(out["ci95"])
+    for bad in (-0.1, 1.0, float("nan")):
+        with pytest.raises(ParameterError):
+            count_uncertainty_stated(bad)
