@@ -544,6 +544,18 @@ def stage_rows(result: Mapping, report_seconds: float | None,
     return rows
 
 
+PARAM_LABELS = {
+    "features": "curvature", "segmenter": "boundary finding", "spectral": "periodicity",
+    "scales_mm": ("scales", "mm"), "band_spacing_mm": ("band spacing found first", "mm"),
+    "band_spacing_method": ("how that spacing was found", ""), "n_classes": ("surface classes", ""),
+    "max_classes": ("most surface classes tried", ""), "subsample": ("vertices used to fit the classes", ""),
+    "random_state": ("random seed", ""), "covariance_type": ("shape of each class (covariance)", ""),
+    "bic_subsample": ("vertices used to choose the number of classes", ""),
+    "use_luminance": ("surface brightness used", ""), "min_relief_to_noise": ("least relief over noise", ""),
+    "n_bootstrap": ("bootstrap resamples", ""),
+}
+
+
 def parameter_rows(result: Mapping) -> list[tuple[str, str]]:
     params = (result.get("provenance") or {}).get("parameters") or {}
     labels = {"scan": "scan given", "sheet": "specimen sheet", "units": "units given", "up": "way up given",
@@ -553,11 +565,13 @@ def parameter_rows(result: Mapping) -> list[tuple[str, str]]:
     rows = []
     for key, value in params.items():
         if isinstance(value, Mapping):
+            group = PARAM_LABELS.get(key, humanise(key)[0])
             for k2, v2 in value.items():
-                label, unit = humanise(k2)
-                if isinstance(v2, float) or (isinstance(v2, list) and v2 and isinstance(v2[0], float)):
-                    v2 = [round(x, 4) for x in v2] if isinstance(v2, list) else round(v2, 4)
-                rows.append((f"{humanise(key)[0]}: {label}", value_text(v2, unit) if v2 is not None else "default"))
+                label, unit = PARAM_LABELS.get(k2) or humanise(k2)
+                if isinstance(v2, list) and v2 and all(isinstance(x, float) for x in v2):
+                    v2 = ", ".join(f"{x:.3g}" for x in v2) + (f" {unit}" if unit else "")
+                    unit = ""
+                rows.append((f"{group}: {label}", value_text(v2, unit) if v2 is not None else "default"))
             continue
         lab = labels.get(key, humanise(key))
         label, unit = lab if isinstance(lab, tuple) else (lab, "")
