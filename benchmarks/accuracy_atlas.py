@@ -248,10 +248,17 @@ def main(argv=None):
     ap.add_argument("--json", default=None, help="write the rows as JSON")
     ap.add_argument("--png", default=None, help="draw the resolvable-region map here")
     ap.add_argument("--kinds", default=",".join(KINDS))
+    ap.add_argument("--max-faces", type=int, default=4_000_000, help="skip cells with larger meshes")
     args = ap.parse_args(argv)
     kinds = args.kinds.split(",")
     rows = []
+    from bandgeo.synth import SynthParams
+
     cells = [c for c in grid(args.quick) if c[0] in kinds]
+    big = [c for c in cells if SynthParams(**cell_params(*c)).estimated_faces > args.max_faces]
+    for c in big:
+        print(f"skipped (estimated mesh over {args.max_faces:,} faces): {c}")
+    cells = [c for c in cells if c not in big]
     for i, c in enumerate(cells):
         try:
             r = run_cell(*c)

@@ -20,9 +20,9 @@ from bandgeo.segment import BandSegmenter  # noqa: E402
 
 #: kind, lamina/edge, lamina/radius, sway (deg), noise/relief: narrow columns keep the meshes small.
 CELLS = {
-    "swaying-meandering-rings": ("rings", 3.0, 0.05, 15.0, 0.4),
-    "unaligned-photogrammetric": ("photogrammetric", 3.0, 0.05, 7.0, 0.4),
-    "ct-marching-cubes": ("ct", 3.0, 0.05, 7.0, 0.4),
+    "swaying-meandering-rings": ("rings", 4.0, 0.05, 15.0, 0.4),
+    "unaligned-photogrammetric": ("photogrammetric", 4.0, 0.05, 7.0, 0.4),
+    "ct-marching-cubes": ("ct", 4.0, 0.05, 7.0, 0.4),
 }
 
 

@@ -25,7 +25,8 @@ def inspect(ctx, scan, as_json, **opts):
     kwargs = prepare_kwargs(**opts)
     with progress.bar("inspecting") as cb:
         info = inspect_scan(scan, progress=cb, **kwargs)
+    info["resolvable_lamina"] = __import__("bandgeo.segment.resolution", fromlist=["x"]).inspect_summary(info, scan, kwargs)
     if as_json:
         click.echo(json.dumps(info, indent=2, allow_nan=False))
     else:
-        click.echo(format_inspection(info))
+        click.echo(format_inspection(info) + "\n" + info["resolvable_lamina"]["line"])

@@ -54,11 +54,49 @@ def resolvable_lamina_mm(edge_mm: float, noise_mm: float, relief_fraction: float
     noise_lim = WARN_RELIEF_TO_NOISE * noise / max(float(relief_fraction), 1e-9)
     lam = max(samp_lim, noise_lim)
     binding = "sampling" if samp_lim >= noise_lim else "noise"
-    rule = (f"laminae down to {1000 * lam:.0f} um are counted (>= {MIN_SAMPLES:g} edge lengths of "
+    rule = (f"laminae down to {1000 * lam:.0f} um are counted (>= {MIN_SAMPLES:g} sampling intervals of "
             f"{1000 * edge:.1f} um, and grooves {100 * relief_fraction:.0f}% of a lamina deep at >= "
             f"{WARN_RELIEF_TO_NOISE:g} x the noise of {1000 * noise:.1f} um); limited by {binding}")
     return {"lamina_mm": float(lam), "sampling_limit_mm": float(samp_lim), "noise_limit_mm": float(noise_lim),
             "binding": binding, "relief_fraction": float(relief_fraction), "rule": rule}
+
+
+def inspect_summary(info: dict, scan=None, prepare_kwargs=None) -> dict:
+    """The resolvable-lamina figure for ``bandgeo inspect``; JSON-safe, ``line`` is the sentence shown.
+
+    With ``scan`` (a path) the scan is prepared again to measure what the rule needs: the sampling
+    interval along the paleo-up axis (ring-structured meshes have long edges around and short ones
+    along) and the scanner noise (one-ring normal residual, :func:`bandgeo.features.noise_estimate`).
+    Without it the median edge of ``info`` stands in for the sampling and the noise is not judged.
+    """
+    edge = float(info.get("median_edge_mm") or float("nan"))
+    noise = float("nan")
+    how = "median edge"
+    if scan is not None:
+        from ..features import noise_estimate, rough_axis, sampling_along
+        from ..features.curvature import one_ring_curvature, orient_outward
+        from ..scan import load_scan, prepare
+
+        spec = prepare(load_scan(scan), **(prepare_kwargs or {}))
+        v, f = spec.vertices_mm, spec.faces
+        edge, how = sampling_along(v, f, np.array([0.0, 0.0, 1.0])), "sampling along the up axis"
+        _, _, _, normals, boundary = one_ring_curvature(v, f)
+        normals *= orient_outward(v, normals, rough_axis(v))
+        noise = noise_estimate(v, f, normals, ~boundary)
+    if not np.isfinite(edge) or edge <= 0:
+        return {"lamina_mm": None, "line": "resolvable   unknown (no edge length)"}
+    r = resolvable_lamina_mm(edge, noise if np.isfinite(noise) else 0.0)
+    if np.isfinite(noise):
+        line = (f"resolvable   {r['rule']} ({how} {1000 * edge:.1f} um, noise {1000 * noise:.1f} um rms; "
+                f"rule of the accuracy atlas, docs/segmentation.md)")
+    else:
+        line = (f"resolvable   laminae down to {1000 * r['sampling_limit_mm']:.0f} um are counted when their "
+                f"grooves stand above the scanner noise ({MIN_SAMPLES:g} x the {how} of {1000 * edge:.1f} um; "
+                f"rule of the accuracy atlas, docs/segmentation.md)")
+    return {"lamina_mm": r["lamina_mm"], "sampling_mm": float(edge), "sampling_method": how,
+            "noise_mm": float(noise) if np.isfinite(noise) else None, "binding": r["binding"],
+            "method": f"max({MIN_SAMPLES:g} x sampling, {WARN_RELIEF_TO_NOISE:g} x noise / relief fraction "
+                      f"{TYPICAL_RELIEF_FRACTION:g})", "line": line}
 
 
 def boundary_relief(samples, spacing_local: np.ndarray, n: int):

@@ -25,7 +25,10 @@ from scipy.ndimage import gaussian_filter1d
 
 
 #: A whitened spectral peak must stand this many times above the floor (more when few columns).
-PEAK_MIN = 1.3
+PEAK_MIN = 1.1
+
+#: A subharmonic of the strongest peak must stand this high to be taken as the fundamental.
+SUBHARMONIC_MIN = 1.6
 
 #: Largest residual tilt (deg) between laminae and the coarse centreline the first pass is built for.
 MAX_RESIDUAL_TILT_DEG = 6.0
@@ -70,7 +73,7 @@ def estimate_spacing(s, theta, relief, sampling_mm, radius_mm):
     with np.errstate(invalid="ignore", divide="ignore"):
         prof = np.where(cnt > 0, sums / np.maximum(cnt, 1), np.nan)
     spacing, ratio, n_rows = _strongest(prof, b)
-    need = max(PEAK_MIN, 1.0 + 3.0 / np.sqrt(3.0 * max(n_rows, 1)))
+    need = max(PEAK_MIN, 1.0 + 1.5 / np.sqrt(3.0 * max(n_rows, 1)))
     info = {"method": f"strongest peak of the whitened periodogram of the side-wall relief along the "
                       f"centreline, averaged over {n_az} azimuth columns",
             "columns": n_az, "peak_to_noise": float(ratio), "peak_to_noise_needed": float(need),
@@ -110,7 +113,7 @@ def _strongest(prof, b):
     is_max = np.r_[False, (rb[1:-1] >= rb[:-2]) & (rb[1:-1] >= rb[2:]), False]
     for div in (4, 3, 2):  # the lowest subharmonic that stands out is the fundamental
         near = (f > (1.0 - 0.16) / div * f[k]) & (f < (1.0 + 0.16) / div * f[k])
-        cand = np.flatnonzero(is_max & (rb >= max(0.5 * rb[k], PEAK_MIN)) & near)
+        cand = np.flatnonzero(is_max & (rb >= max(0.5 * rb[k], SUBHARMONIC_MIN)) & near)
         if len(cand):
             k = int(cand[np.argmax(rb[cand])])
             break
