@@ -62,6 +62,8 @@ class Analysis:
     result: dict
     stage_seconds: dict[str, float] = field(default_factory=dict)
     folder: Optional[Path] = None
+    #: What was found and done about an earlier run cut short in the folder (one line each).
+    recovered: list[str] = field(default_factory=list)
 
 
 #: Older names of :class:`Analysis` (same object).
@@ -292,7 +294,6 @@ def analyze(scan_path, out_dir, *, units=None, up=None, north=None, strike_dip=N
     folder = ResultFolder(out_dir)
     if folder.path.exists() and not folder.path.is_dir():
         raise InputError(f"the output {str(folder.path)!r} exists and is not a folder; give a folder for --out")
-    folder.recover()
     sheet_obj = _scan.read_sheet(sheet) if isinstance(sheet, (str, Path)) else sheet
     params = RunParams.make(scan=scan_path, units=units, up=up, north=north, strike_dip=strike_dip, sheet=sheet,
                             scale=scale, seed=seed, keep_review=keep_review, min_period_bands=min_period_bands,
@@ -301,6 +302,7 @@ def analyze(scan_path, out_dir, *, units=None, up=None, north=None, strike_dip=N
     specimen, auto, params = upstream(scan_path, params, sheet=sheet_obj, timer=timer)
     review = folder.load_review() if keep_review and folder.path.is_dir() else None
     analysis = downstream(specimen, auto, review, params, timer=timer)
+    analysis.recovered = folder.recover()  # only now: a run that fails on its input writes nothing
     save(analysis, folder.path, formats=ALL_FORMATS if report else (), inputs=True,
          set_aside_review=not keep_review, progress=progress)
     return analysis

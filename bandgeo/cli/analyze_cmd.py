@@ -62,5 +62,7 @@ def analyze(ctx, scan, out, seed, min_period, max_period, n_sim, discard_review,
         state = pipeline.analyze(scan, out, seed=seed, keep_review=not discard_review,
                                  report=not no_report, min_period_bands=min_period,
                                  max_period_bands=max_period, n_sim=n_sim, progress=cb, **kwargs)
+    for line in state.recovered:  # what was left of an earlier run cut short, and what was done with it
+        echo(ctx, f"note: {line}")
     for line in summary_lines(state.result, out, report=not no_report):
         echo(ctx, line)
