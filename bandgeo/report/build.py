@@ -92,7 +92,7 @@ def figure_specs(state: Any, tilt=None) -> tuple[list[dict], list[str]]:
                                    north_known=bool(getattr(spec, "north_known", True)), seed=_seed(result))
         specs.append({"id": "specimen", "title": "The specimen and its bands", "raster": True, "build": views,
                       "caption": "The column straightened along its axis and seen across its sway plane. Top: "
-                                 "the whole column in strips, coloured by band number with alternate bands darker. "
+                                 "the whole column in strips, coloured by band number with alternate bands darker (grey: outside any band). "
                                  "Middle: a close view of forty bands with their numbers, each band in one of seven "
                                  "colours that repeat so that neighbours differ. "
                                  "Bottom: the same stretch unrolled, azimuth measured from the sway plane against "
