@@ -249,7 +249,17 @@ def main(argv=None):
     ap.add_argument("--png", default=None, help="draw the resolvable-region map here")
     ap.add_argument("--kinds", default=",".join(KINDS))
     ap.add_argument("--max-faces", type=int, default=4_000_000, help="skip cells with larger meshes")
+    ap.add_argument("--merge", nargs="+", default=None, help="only merge these JSON row files, print and draw")
     args = ap.parse_args(argv)
+    if args.merge:
+        rows = [r for path in args.merge for r in json.loads(Path(path).read_text())]
+        print("\n".join(table(rows)))
+        print()
+        print("\n".join(summary(rows)))
+        if args.png:
+            draw_map(rows, args.png)
+            print(f"wrote {args.png}")
+        return 0
     kinds = args.kinds.split(",")
     rows = []
     from bandgeo.synth import SynthParams

@@ -26,6 +26,10 @@ MIN_GROOVE_Z = 4.0
 #: Below this groove z-score in its own frame a traced boundary is dropped (repair rule R5).
 MIN_KEEP_Z = 2.0
 
+#: Relief-to-noise ratio (per vertex) the resolvable-lamina rule asks for (the atlas refuses or warns
+#: at 1, and counts right at 2.5; docs/segmentation.md).
+RULE_RELIEF_TO_NOISE = 2.0
+
 #: Typical groove relief as a fraction of the lamina (real columns: 0.1-0.4, common practice).
 TYPICAL_RELIEF_FRACTION = 0.2
 
@@ -45,18 +49,18 @@ def resolvable_lamina_mm(edge_mm: float, noise_mm: float, relief_fraction: float
     Returns
     -------
     dict with ``lamina_mm`` (the larger of the two limits), ``sampling_limit_mm`` (``MIN_SAMPLES`` edge
-    lengths), ``noise_limit_mm`` (relief of ``WARN_RELIEF_TO_NOISE`` x the noise), ``binding``
+    lengths), ``noise_limit_mm`` (relief of ``RULE_RELIEF_TO_NOISE`` x the noise), ``binding``
     ('sampling' or 'noise'), ``rule`` (one sentence).
     """
     edge = float(edge_mm)
     noise = float(noise_mm) if np.isfinite(noise_mm) and noise_mm > 0 else 0.0
     samp_lim = MIN_SAMPLES * edge
-    noise_lim = WARN_RELIEF_TO_NOISE * noise / max(float(relief_fraction), 1e-9)
+    noise_lim = RULE_RELIEF_TO_NOISE * noise / max(float(relief_fraction), 1e-9)
     lam = max(samp_lim, noise_lim)
     binding = "sampling" if samp_lim >= noise_lim else "noise"
     rule = (f"laminae down to {1000 * lam:.0f} um are counted (>= {MIN_SAMPLES:g} sampling intervals of "
             f"{1000 * edge:.1f} um, and grooves {100 * relief_fraction:.0f}% of a lamina deep at >= "
-            f"{WARN_RELIEF_TO_NOISE:g} x the noise of {1000 * noise:.1f} um); limited by {binding}")
+            f"{RULE_RELIEF_TO_NOISE:g} x the noise of {1000 * noise:.1f} um); limited by {binding}")
     return {"lamina_mm": float(lam), "sampling_limit_mm": float(samp_lim), "noise_limit_mm": float(noise_lim),
             "binding": binding, "relief_fraction": float(relief_fraction), "rule": rule}
 
@@ -95,7 +99,7 @@ def inspect_summary(info: dict, scan=None, prepare_kwargs=None) -> dict:
                 f"rule of the accuracy atlas, docs/segmentation.md)")
     return {"lamina_mm": r["lamina_mm"], "sampling_mm": float(edge), "sampling_method": how,
             "noise_mm": float(noise) if np.isfinite(noise) else None, "binding": r["binding"],
-            "method": f"max({MIN_SAMPLES:g} x sampling, {WARN_RELIEF_TO_NOISE:g} x noise / relief fraction "
+            "method": f"max({MIN_SAMPLES:g} x sampling, {RULE_RELIEF_TO_NOISE:g} x noise / relief fraction "
                       f"{TYPICAL_RELIEF_FRACTION:g})", "line": line}
 
 
