@@ -207,3 +207,17 @@ def test_cli_report_rebuilds_a_stale_report(analysed, tmp_path):
                           capture_output=True, text=True)
     assert proc.returncode == 0, proc.stderr
     assert (folder / "report.html").is_file() and not (folder / "report.stale.html").exists()
+
+
+def test_cli_analyze_that_exits_2_late_leaves_the_folder_as_it_was(analysed, tmp_path):
+    # issue 15 F5: an analyze that fails after the scan was read (here on an unreadable review.json)
+    # must not have replaced the segmentation or the specimen cache of the folder.
+    scan, out, _ = analysed
+    folder = _copy(out, tmp_path)
+    (folder / "review.json").write_text("{ not json")
+    before = _snapshot(folder)
+    proc = subprocess.run([sys.executable, "-m", "bandgeo", "analyze", str(scan), "--out", str(folder),
+                           "--simulations", "99"], capture_output=True, text=True)
+    assert proc.returncode == 2, proc.stderr
+    assert proc.stderr.count("\n") == 1 and "review.json" in proc.stderr
+    assert _snapshot(folder) == before

@@ -92,7 +92,7 @@ def analysis_options(func):
                      help="Shortest annual period searched, in bands (default: a few bands)."),
         click.option("--max-period", "max_period", type=float, default=None,
                      help="Longest annual period searched, in bands (default: about a third of the record)."),
-        *simulations_options(default=1000, minimum=100),
+        *simulations_options(default=1000, minimum=99),  # the same range as the periodicity command
         click.option("--discard-review", is_flag=True,
                      help="Start from the automatic segmentation: an existing review.json is renamed aside."),
     ]
