@@ -175,6 +175,7 @@ def _one_independent(args):
            "sway_ci95": (d["methods"].get("sway") or {}).get("ci95"),
            "cycle_ci95": (d["methods"].get("cycle_count") or {}).get("ci95"),
            "spec_ci95": (d["methods"].get("thickness_spectrum") or {}).get("ci95"),
+           "consistency_p": (d.get("consistency") or {}).get("p_value"),
            "tidal": bool((res["tidal"] or {}).get("days_per_synodic_month"))}
     return rec
 
@@ -214,6 +215,13 @@ def independent(n_series: int = 400, n_sim: int = 199, workers: int = 1, batch_s
         with threadpool_limits(1):
             recs = [_one_independent(a) for a in args]
     secs = time.perf_counter() - t0
+    import json
+    import os
+
+    dump = os.environ.get("BANDGEO_CALIBRATION_JSON")
+    if dump:
+        with open(dump, "w") as fh:
+            json.dump(recs, fh, default=float)
     cyc = [r for r in recs if r["has_cycle"]]
     null = [r for r in recs if not r["has_cycle"]]
     given = [r for r in cyc if r["ci95"] is not None]
