@@ -218,8 +218,9 @@ def downstream(specimen: "Specimen", segmentation: "Segmentation", review: Optio
 # Saving: outputs written on the side and swapped in at the end
 
 
-def _write_outputs(analysis: Analysis, staged: Path, formats, progress) -> None:
-    """Write the report (``formats``) and result.json (once, last) into ``staged``."""
+def _write_outputs(analysis: Analysis, staged: Path, formats, progress, result: bool = True) -> None:
+    """Write the report (``formats``) and result.json (once, last; ``result=False``: not at all) into
+    ``staged``."""
     if formats:
         from . import report as _report_mod
 
@@ -233,7 +234,8 @@ def _write_outputs(analysis: Analysis, staged: Path, formats, progress) -> None:
         analysis.result["provenance"]["stage_seconds"] = dict(analysis.stage_seconds)
     else:
         analysis.band_table.to_csv(staged / "bands.csv")
-    write_json(staged / "result.json", analysis.result)
+    if result:
+        write_json(staged / "result.json", analysis.result)
 
 
 def save(analysis: Analysis, folder, *, formats=ALL_FORMATS, inputs: bool = False, set_aside_review: bool = False,
@@ -358,12 +360,16 @@ class Rerunner:
         return analysis
 
 
-def write_analysis_report(analysis: Analysis, folder, formats=ALL_FORMATS, progress=None) -> dict:
+def write_analysis_report(analysis: Analysis, folder, formats=ALL_FORMATS, progress=None,
+                          rewrite_result: bool = True) -> dict:
     """``bandgeo report``: rewrite result.json and the report ``formats`` from an analysis held in
-    memory (other derived outputs already in the folder are kept). Returns {name: path}."""
+    memory (other derived outputs already in the folder are kept). Returns {name: path}.
+
+    ``rewrite_result=False`` leaves result.json alone: for a caller that has just saved the same
+    analysis without its report (the review page shows the figures first, then the report follows)."""
     rf = ResultFolder(folder)
     with rf.staging() as staged:
-        _write_outputs(analysis, staged, tuple(formats), progress)
+        _write_outputs(analysis, staged, tuple(formats), progress, result=rewrite_result)
         names = sorted(p.name for p in staged.iterdir())
         rf.swap_in(staged, remove=("report.stale.html", "report.stale.pdf"))
     analysis.folder = rf.path
