@@ -210,3 +210,30 @@ def test_fuzz_review_loader(tmp_path):
     loaded, refused, failures = _run(load, _REVIEW, "review.json", folder, "review", N_OTHER, 103)
     assert not failures, "\n".join(failures[:20])
     assert refused > 0
+
+
+@pytest.mark.timeout(600)
+def test_fuzz_inspect_command(tmp_path, capfd):
+    """The same kind of mutations through ``bandgeo inspect``: exit 0, or exit 2 with one line; never an
+    internal error (exit 1), a traceback or a printed warning."""
+    from bandgeo.cli import main
+
+    seeds = _mesh_seeds()
+    rng = np.random.default_rng([SEED, 200])
+    problems = []
+    for k in range(60):
+        label = sorted(seeds)[k % len(seeds)]
+        suffix, data = seeds[label]
+        mutated, how = _mutate(data, rng)
+        path = tmp_path / f"fuzz{suffix}"
+        path.write_bytes(mutated)
+        capfd.readouterr()
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always")
+            status = main(["inspect", str(path)])
+        err = capfd.readouterr().err
+        caught = [w for w in caught if not issubclass(w.category, DeprecationWarning)]
+        if status not in (0, 2) or (status == 2 and err.count("\n") != 1) or "Traceback" in err or caught:
+            problems.append(f"{label} #{k} ({how}): exit {status}: {err.strip()[:200]} "
+                            f"{[str(w.message) for w in caught][:2]}")
+    assert not problems, "\n".join(problems[:20])
