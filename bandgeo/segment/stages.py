@@ -340,9 +340,11 @@ def honesty(est, boundaries, rings, gaps, refuse, fr, sp, features, run):
                                     f"{resolution.MIN_SAMPLES:g} x the sampling interval along the axis "
                                     f"({fr.samp:.4f} mm); their stretches are flagged")
     if refuse is None and res["spacing_to_sampling"] is not None and res["spacing_to_sampling"] < resolution.MIN_SAMPLES:
-        run.warnings.append(f"the band spacing {sp:.4f} mm is below {resolution.MIN_SAMPLES:g} x the sampling "
-                            f"interval along the growth axis ({fr.samp:.4f} mm); bands are at the resolution "
-                            f"limit of the scan")
+        run.warnings.insert(0, f"the scan is at its resolution limit: the band spacing {sp:.4f} mm is below "
+                               f"{resolution.MIN_SAMPLES:g} x the sampling interval along the growth axis "
+                               f"({fr.samp:.4f} mm), and laminae thinner than 2 sampling intervals cannot show at "
+                               f"all, so the count may miss laminae; a scan with edges of {sp / 4:.4f} mm or finer "
+                               f"would settle it")
     if gaps:
         run.warnings.append(f"{len(gaps)} gap(s) wider than the local spacing allows may hide missed "
                             f"boundaries; flagged for review")

@@ -202,38 +202,6 @@ def fit_boundaries(wall, s_flat, heights, spacing_local, axis, rounds=3, score=N
     return out
 
 
-def _refine_offset(kk, dist, rel, half, spacing_local, c, nbin=24):
-    """Offset (mm) of each boundary's groove minimum from its fitted plane, along the normal.
-
-    The relief of all vertices near the boundary, binned against their distance to the plane (bins of
-    a twenty-fourth of a lamina), smoothed, and its minimum located by a parabola through three bins.
-    Weighted centroids lock onto the sample rows of a mesh whose rows follow the laminae; the
-    interpolated minimum does not.
-    """
-    from scipy.ndimage import gaussian_filter1d as g1
-
-    L = spacing_local[kk]
-    u = dist / L  # -0.5..0.5
-    ib = np.floor((u + 0.5) * nbin).astype(np.int64)
-    ok = (ib >= 0) & (ib < nbin) & (np.abs(dist) < half)
-    key = kk[ok] * nbin + ib[ok]
-    sums = np.bincount(key, rel[ok], minlength=c * nbin).reshape(c, nbin)
-    cnt = np.bincount(key, minlength=c * nbin).reshape(c, nbin).astype(float)
-    ss = g1(sums, 1.2, axis=1, mode="constant")
-    cc = g1(cnt, 1.2, axis=1, mode="constant")
-    prof = np.where(cc > 1e-9, ss / np.maximum(cc, 1e-9), np.inf)
-    # search the middle half only (the groove is within a quarter lamina of the fitted plane)
-    lo, hi = nbin // 4, 3 * nbin // 4
-    j = lo + np.argmin(prof[:, lo:hi], axis=1)
-    rows = np.arange(c)
-    y0, y1, y2 = prof[rows, j - 1], prof[rows, j], prof[rows, j + 1]
-    den = y0 - 2 * y1 + y2
-    good = np.isfinite(den) & (den > 1e-15)
-    frac = np.where(good, 0.5 * (y0 - y2) / np.where(good, den, 1.0), 0.0)
-    u_min = (j + 0.5 + np.clip(frac, -0.5, 0.5)) / nbin - 0.5
-    return np.where(np.isfinite(y1), u_min * spacing_local, 0.0)
-
-
 def local_spacing_at(heights, spacing_mm, window=5):
     """Median spacing of the ``window`` nearest intervals at each height (the band spacing if too few)."""
     from .repair import local_spacing
