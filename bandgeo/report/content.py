@@ -174,6 +174,8 @@ def route_rows(result: Mapping) -> list[dict]:
         refused = str(block.get("refused") or "")
         if block.get("estimate") is None and refused:
             value, why = "refused (see below)", "—"
+        elif block.get("estimate") is None and block.get("significant") is False:
+            value, why = "not significant", "—"
         elif block.get("estimate") is None:
             why = "no estimate"
         elif key not in used:

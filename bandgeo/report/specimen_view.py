@@ -167,7 +167,9 @@ def specimen_figure(vertices_mm, faces, vertex_band, axis, boundaries, view_azim
     # close view, triangle by triangle
     axc = fig.add_axes(rects[n_strips])
     axu = fig.add_axes(rects[n_strips + 1])
-    if window is None:
+    if window is None:                                # nothing to magnify: no empty panels either
+        axc.set_visible(False)
+        axu.set_visible(False)
         return fig
     w0, w1, b0, b1 = window
     f = np.asarray(faces)
