@@ -99,7 +99,8 @@ def read_sheet(path) -> SpecimenSheet:
                          "(right-hand rule) or neither")
     if sheet.strike_deg is not None and not 0 <= sheet.strike_deg <= 360:
         raise InputError(f"'{label}' {_line_of(text, 'strike_deg')}: strike_deg must be 0..360 (azimuth clockwise "
-                         f"from north, right-hand rule) but got {sheet.strike_deg:g}; give it within 0..360")
+                         f"from north, right-hand rule) but got {sheet.strike_deg:g}; give it within 0..360"
+                         + (f" ({sheet.strike_deg % 360:g} is the same direction)" if abs(sheet.strike_deg) < 1e6 else ""))
     if sheet.dip_deg is not None and not 0 <= sheet.dip_deg <= 90:
         raise InputError(f"'{label}' {_line_of(text, 'dip_deg')}: dip_deg must be 0..90 (right-hand rule) but got "
                          f"{sheet.dip_deg:g}")
