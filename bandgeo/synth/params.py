@@ -339,7 +339,11 @@ class SynthParams:
         return cls(**data)
 
     def replace(self, **changes) -> "SynthParams":
-        """A validated copy with some fields changed."""
+        """A validated copy with some fields changed.
+
+        Defaults that depend on other fields (noise and groove depth from the lamina thickness, edge
+        length, voxel size) were resolved when this instance was made: changing
+        ``mean_thickness_mm`` here keeps them. Build a new ``SynthParams`` to have them follow."""
         return dataclasses.replace(self, **changes)
 
 
