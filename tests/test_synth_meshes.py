@@ -297,3 +297,35 @@ def test_radius_taper_narrows_the_column():
     high = (s > 0.8 * top) & (s < 0.9 * top) & (r > 0.5 * p.radius_mm)
     expected = (1 - 0.3 * 0.85) / (1 - 0.3 * 0.15)
     assert np.median(r[high]) / np.median(r[low]) == pytest.approx(expected, rel=0.02)
+
+
+@pytest.mark.parametrize("kw, word", [
+    (dict(mesh_kind="laser"), "mesh_kind"),
+    (dict(edge_length_mm=0.0), "edge_length_mm"),
+    (dict(voxel_size_mm=-1.0), "voxel_size_mm"),
+    (dict(meander_amplitude_deg=-1.0), "meander_amplitude_deg"),
+    (dict(meander_correlation_laminae=0.5), "meander_correlation_laminae"),
+    (dict(radius_taper=-1.0), "radius_taper"),
+    (dict(edge_aspect=0.5), "edge_aspect"),
+])
+def test_bad_new_parameters_give_one_line_errors(kw, word):
+    from bandgeo.errors import ParameterError
+    with pytest.raises(ParameterError) as info:
+        SynthParams(**kw)
+    assert word in str(info.value) and "\n" not in str(info.value)
+
+
+def test_meshes_too_coarse_or_folding_are_refused_before_meshing():
+    from bandgeo.errors import ParameterError
+    with pytest.raises(ParameterError, match="edge_length_mm"):
+        simulate(SynthParams(**SMALL, edge_length_mm=1.4))
+    with pytest.raises(ParameterError, match="fold"):
+        simulate(SynthParams(**SMALL, meander_amplitude_deg=8.0, meander_correlation_laminae=2.0))
+
+
+@pytest.mark.parametrize("args", [["--mesh-kind", "laser"], ["--edge-length-mm", "0"]])
+def test_cli_bad_mesh_options_exit_2_with_one_line(tmp_path, args):
+    proc = subprocess.run([sys.executable, "-m", "bandgeo.cli", "synth", "--out", str(tmp_path), *args],
+                          capture_output=True, text=True)
+    assert proc.returncode == 2 and proc.stderr.count("\n") == 1 and "Traceback" not in proc.stderr
+    assert not list(tmp_path.iterdir())

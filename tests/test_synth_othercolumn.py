@@ -88,3 +88,17 @@ def test_truth_has_the_synth_schema_fields(column):
     np.testing.assert_allclose(b["heights_mm"], arc, rtol=1e-9, atol=1e-9)
     with pytest.raises(TypeError):
         othercolumn.make_column(radius_mm=3.0)
+
+
+def test_random_pose_frames_map_the_file_back_to_the_specimen():
+    """In a random pose the truth's specimen_from_file takes the file back to the specimen frame: the
+    base centre to the origin and the top plane's centre to its specimen position (analytic)."""
+    v, f, truth = othercolumn.make_column(**dict(SMALL, pose="random", years=0.1))
+    m = np.asarray(truth["frames"]["specimen_from_file"])
+    c_file = np.asarray(truth["boundaries"]["centres_file"])
+    c_mm = np.asarray(truth["boundaries"]["centres_mm"])
+    np.testing.assert_allclose(c_file @ m[:3, :3].T + m[:3, 3], c_mm, atol=1e-9)
+    up = np.asarray(truth["frames"]["paleo_up_file"])
+    spec = v @ m[:3, :3].T + m[:3, 3]
+    assert spec[:, 2].min() == pytest.approx(0.0, abs=0.1)  # the base cut at z = 0 (noise 0.016 mm)
+    assert np.linalg.norm(up) == pytest.approx(1.0)
