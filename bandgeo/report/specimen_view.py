@@ -118,7 +118,7 @@ def specimen_figure(vertices_mm, faces, vertex_band, axis, boundaries, view_azim
     # strips of about 10 column widths each, at most 4
     n_strips = int(np.clip(np.ceil(length / (20 * half_width)), 1, 4))
     strip = length / n_strips
-    px = strip / 1400.0
+    px = strip / 900.0                      # about 1.5 image pixels per output pixel at 110 dpi
     # largest radius per height bin, for the outline
     nb = max(int(length / max(px * 4, 1e-6)), 10)
     bins = np.clip(((s[side] - s_lo) / length * nb).astype(int), 0, nb - 1)
