@@ -52,9 +52,10 @@ def line_alpha(cycles: float) -> float:
 #: Line-test level of the sub-harmonic check: one test at a frequency fixed in advance (f / k), not a
 #: search, so a plain 1% level.
 SUBHARMONIC_LINE_ALPHA = 0.01
-#: Fewest cycles in the record for a peak to be read as the annual cycle, and for a sub-harmonic to be
-#: looked for (a sub-harmonic line below MIN_CYCLES is reported, and its interval refused).
-MIN_CYCLES = 3.0
+#: Fewest cycles in the record for a peak to be read as the annual cycle (about three: the default
+#: search ends at a third of the record, and a three-year record's own estimate may fall a little
+#: short of 3.0), and for a sub-harmonic to be looked for (below MIN_CYCLES its interval is refused).
+MIN_CYCLES = 2.75
 SUBHARMONIC_MIN_CYCLES = 2.0
 #: Largest harmonic number recognised.
 MAX_HARMONIC = 6
