@@ -190,14 +190,20 @@ def trace(fr, s_flat, sp, p_groove, est, run):
     weak = [r for r, s in zip(rings_all, strong) if (not s) and r is not None]
     # R6: where the curvature classes are informative (most boundaries well inside the groove class),
     # a relief dip the groove class does not support at all is not a boundary
+    # (not within two laminae of the wall's ends, where the curvature features see the mesh's rim)
     support = np.array([r["class_support"] for r in rings])
+    lo_end, hi_end = float(s_flat.min()) + 2.0 * sp, float(s_flat.max()) - 2.0 * sp
+
+    def unsupported(r):
+        return r["class_support"] < MIN_CLASS_SUPPORT and lo_end < r["height"] < hi_end
+
     if len(support) >= 5 and np.median(support) >= 0.5:
         for r in rings:
-            if r["class_support"] < MIN_CLASS_SUPPORT:
+            if unsupported(r):
                 run.log.append(f"R6 dropped boundary at {r['height']:.3f} mm: groove-class support "
                                f"{r['class_support']:.2f} < {MIN_CLASS_SUPPORT}")
-        rings = [r for r in rings if r["class_support"] >= MIN_CLASS_SUPPORT]
-        weak = [r for r in weak if r["class_support"] >= MIN_CLASS_SUPPORT]
+        rings = [r for r in rings if not unsupported(r)]
+        weak = [r for r in weak if not unsupported(r)]
 
     def trace_weak(lo, hi):
         inside = [r for r in weak if lo < r["height"] < hi]
