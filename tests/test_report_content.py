@@ -214,3 +214,23 @@ def test_series_figure_fits_no_annual_sine_to_the_inclination(tmp_path):
     assert any("sinusoid" in lab and "°" in lab for lab in sway)
     thick = next(v for k, v in by_label.items() if k.startswith("band thickness"))
     assert any("sinusoid" in lab and "mm" in lab for lab in thick)
+
+
+def test_plots_stay_vector_in_the_pdf(tmp_path):
+    # A line plot typeset into the PDF must carry no embedded picture and keep its labels as text
+    # (poppler's pdfimages lists embedded images; pdftotext reads text drawn as glyphs).
+    import matplotlib
+
+    from bandgeo.report.figures import series_figure
+    from bandgeo.report.html import figure_data_uri
+    from bandgeo.report.pdf import write_pdf
+
+    state = make_state(tmp_path, **SMALL)
+    with matplotlib.rc_context({"font.size": 8}):
+        uri = figure_data_uri(series_figure(state.series, 400.0), raster=False)
+    assert uri.startswith("data:image/svg+xml")
+    pdf = write_pdf(f'<html><body><img style="width:100%" src="{uri}"></body></html>', tmp_path / "one.pdf")
+    images = subprocess.run(["pdfimages", "-list", str(pdf)], capture_output=True, text=True, check=True).stdout
+    assert len(images.strip().splitlines()) == 2           # the header lines only: no picture
+    text = subprocess.run(["pdftotext", str(pdf), "-"], capture_output=True, text=True, check=True).stdout
+    assert "band number" in text and "band thickness, mm" in text
