@@ -9,7 +9,8 @@ import numpy as np
 import pytest
 
 from bandgeo.report import write_report
-from bandgeo.report.content import headline, route_rows, warnings_list
+from bandgeo.report.content import headline, route_rows
+from bandgeo.report.cautions import warnings_list
 from bandgeo.report.numbers import decimals_for_uncertainty, fmt_estimate, fmt_p, weights_from_intervals
 from bandgeo.report.tilt import summarise_tilt
 from test_report_fixtures import make_state

@@ -5,8 +5,8 @@ Public API::
     write_report(state, folder=None, formats=("html", "pdf", "csv", "ply"), progress=None)
         -> dict[str, Path]
 
-Modules: ``build`` (orchestration), ``content`` (what the page says: plain labels, units, headline,
-cautions), ``numbers`` (rounding to the uncertainty, p-values at the Monte Carlo floor), ``tilt``
+Modules: ``build`` (orchestration), ``content`` (what the page says: headline, tables), ``labels``
+(plain labels and units of result keys), ``cautions`` (warnings once, cautions for this result), ``numbers`` (rounding to the uncertainty, p-values at the Monte Carlo floor), ``tilt``
 (sway plane, sway amplitude, mean lean), ``figures``, ``comparison`` and ``specimen_view`` (figures),
 ``spectra`` (reading the saved spectra), ``references`` (published reference points), ``html`` (the
 page), ``pdf`` (the same page typeset by WeasyPrint), ``exports`` (CSV, PLY) and ``palette``

@@ -13,7 +13,7 @@ from .. import __version__
 from ..atomic import write_text
 from ..errors import InputError, ParameterError
 from ..progress import report as _progress
-from . import content
+from . import cautions, content
 from .references import reference_points
 from .spectra import normalise_evolutive, normalise_spectra
 
@@ -218,7 +218,7 @@ def report_context(state: Any, figures: list[dict], omitted: list[str] | None = 
         "age": None if age is None else f"{content.fmt_sig(age, 4)} Ma" + (
             f" ± {content.fmt_sig(sp['age_err_ma'], 2)} Ma" if sp.get("age_err_ma") is not None else ""),
         "scan_name": Path(str((sp.get("scan") or {}).get("path") or "")).name,
-        "warnings": content.warnings_list(result, state),
+        "warnings": cautions.warnings_list(result, state),
         "headline": content.headline(result),
         "results": content.results_table(result, tilt),
         "tilt": None if tilt is None else {"rows": content.tilt_rows(tilt), "n_bands": tilt.n_bands,
@@ -227,7 +227,7 @@ def report_context(state: Any, figures: list[dict], omitted: list[str] | None = 
         "blocks": content.detail_sections(result),
         "figures": figures,
         "omitted": omitted or [],
-        "cautions": content.cautions(result, tilt),
+        "cautions": cautions.cautions(result, tilt),
         "specimen_rows": content.specimen_rows(result),
         "review_rows": _review_rows(result.get("review") or {}),
         "provenance": {"sha256": prov.get("input_sha256") or (sp.get("scan") or {}).get("sha256") or "—",

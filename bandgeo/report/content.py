@@ -1,4 +1,5 @@
-"""What the report says, in plain words: every row a reader sees gets a label and a unit here, and every
+"""What the report says, in plain words: every row a reader sees gets a label and a unit (labels in
+:mod:`bandgeo.report.labels`, warnings and cautions in :mod:`bandgeo.report.cautions`), and every
 number is rounded to its uncertainty (:mod:`bandgeo.report.numbers`). Raw keys stay in result.json.
 
 Nothing here estimates anything new except the heliotropic tilt summary (:mod:`bandgeo.report.tilt`)
@@ -11,6 +12,8 @@ import re
 from pathlib import Path
 from typing import Any, Mapping
 
+from .labels import (CLEANING_LABELS, LABELS, PARAM_LABELS, SPECIMEN_LABELS, STAGE_LABELS,  # noqa: F401
+                     humanise, rows_of, value_text)
 from .numbers import fmt_estimate, fmt_p, fmt_range, fmt_sig, weights_from_intervals
 
 DPY_UNIT = "solar days per year"
@@ -18,113 +21,6 @@ DPY_UNIT = "solar days per year"
 ROUTES = (("thickness_spectrum", "thickness spectrum", "the yearly peak in the spectrum of band thickness"),
           ("cycle_count", "cycle count", "bands counted cycle by cycle through the yearly thickness cycle"),
           ("sway", "sway", "the yearly swing of the growth direction (heliotropism)"))
-
-#: Plain labels (and units) of result.json keys shown in the detail tables.
-LABELS = {
-    # resolution
-    "sampling_along_mm": ("vertex spacing along the axis", "mm"),
-    "band_spacing_mm": ("band spacing seen in the curvature", "mm"),
-    "spacing_to_sampling": ("band spacing over vertex spacing", "×"),
-    "noise_mm": ("scanner noise", "mm"),
-    "noise_method": ("how the noise was measured", ""),
-    "relief_mm": ("groove relief between bands", "mm"),
-    "relief_to_noise": ("relief over noise", "×"),
-    "min_samples_per_band": ("fewest vertex rings in a band", ""),
-    "axis_ring_offset_mm": ("offset of the vertex rings from the axis", "mm"),
-    # daily test
-    "verdict": ("verdict", ""),
-    "spacing_cv": ("spread of band spacing (coefficient of variation)", ""),
-    "spacing_cv_null_median": ("the same for randomly spaced boundaries (median)", ""),
-    "peak_sharpness": ("sharpness of the spacing peak", ""),
-    "peak_sharpness_null_95": ("the same, reached by random spacing 5 % of the time", ""),
-    "n_bands": ("bands tested", ""),
-    "mean_spacing_mm": ("mean band spacing", "mm"),
-    "note": ("note", ""),
-    "method": ("method", ""),
-    # depth profile
-    "peak_frequency_per_mm": ("relief profile: strongest frequency", "cycles per mm"),
-    "peak_period_mm": ("relief profile: its period", "mm"),
-    "quality_factor": ("relief profile: sharpness of that peak (frequency over width)", ""),
-    "peak_over_mean_spacing": ("relief profile: its period over the mean band spacing", "×"),
-    # hiatus
-    "evidence": ("evidence of missing days", ""),
-    "counts_are_minima": ("counts are minima", ""),
-}
-
-SPECIMEN_LABELS = (("id", "specimen", ""), ("formation", "formation", ""), ("locality", "locality", ""),
-                   ("horizon", "horizon", ""), ("n_vertices", "vertices kept", ""), ("n_faces", "faces kept", ""))
-
-CLEANING_LABELS = {"nonfinite_vertices_removed": "vertices with missing coordinates removed",
-                   "duplicate_vertices_merged": "duplicate vertices merged",
-                   "degenerate_faces_removed": "degenerate faces removed",
-                   "duplicate_faces_removed": "duplicate faces removed",
-                   "unreferenced_vertices_removed": "unused vertices removed",
-                   "pieces_removed": "loose pieces removed",
-                   "faces_in_removed_pieces": "faces in the removed pieces",
-                   "vertices_in_removed_pieces": "vertices in the removed pieces",
-                   "faces_flipped": "faces turned to face outward"}
-
-STAGE_LABELS = {"load": "reading the scan", "orient": "orienting and cleaning", "features": "surface curvature",
-                "segment": "finding the boundaries", "review": "applying review edits",
-                "measure": "measuring bands", "series": "building the series",
-                "periodicity": "periodicity tests", "astronomy": "length of day and Moon",
-                "report": "this report"}
-
-_UNIT_SUFFIX = (("_per_mm", "per mm"), ("_mm", "mm"), ("_um", "µm"), ("_deg", "degrees"), ("_hours", "h"),
-                ("_ma", "Ma"), ("_km", "km"), ("_seconds", "s"), ("_bands", "bands"))
-
-
-def humanise(key: str) -> tuple[str, str]:
-    """A label and unit for a key not in :data:`LABELS` (``max_period_bands`` -> ``max period``, ``bands``)."""
-    if key in LABELS:
-        return LABELS[key]
-    k, unit = str(key), ""
-    for suffix, u in _UNIT_SUFFIX:
-        if k.lower().endswith(suffix):
-            k, unit = k[: -len(suffix)], u
-            break
-    return k.replace("_", " ").replace(".", ": ").strip(), unit
-
-
-def value_text(value: Any, unit: str = "") -> str:
-    if value is None:
-        return "not given"
-    if isinstance(value, bool):
-        return "yes" if value else "no"
-    if isinstance(value, (int,)) and not isinstance(value, bool):
-        return f"{value}" + (f" {unit}" if unit else "")
-    if isinstance(value, float):
-        if value != value or value in (float("inf"), float("-inf")):
-            return "—"
-        text = f"{value:,.0f}" if abs(value) >= 1000 else (f"{value:.3g}" if abs(value) >= 1e-4 or value == 0
-                                                          else f"{value:.2e}")
-        return text + (f" {unit}" if unit and unit != "×" else ("×" if unit == "×" else ""))
-    if isinstance(value, (list, tuple)):
-        if len(value) > 6:
-            return f"{len(value)} values (listed in result.json)"
-        return ", ".join(value_text(v) for v in value) + (f" {unit}" if unit else "") if value else "none"
-    return str(value)
-
-
-def rows_of(block: Mapping | None, skip=()) -> list[tuple[str, str]]:
-    """(label, value with unit) for the scalar entries of ``block`` (nested blocks become their own rows)."""
-    rows = []
-    for key, value in (block or {}).items():
-        if key in skip or key == "flagged":
-            continue
-        if isinstance(value, Mapping):
-            for k2, v2 in value.items():
-                if isinstance(v2, Mapping):
-                    continue
-                label, unit = humanise(k2)
-                rows.append((label, value_text(v2, unit)))
-            continue
-        if str(key).startswith("ci95") or str(key).endswith("_ci95"):
-            continue
-        label, unit = humanise(str(key))
-        rows.append((label, value_text(value, unit)))
-    return rows
-
 
 # ----------------------------------------------------------------------------- p-values and routes
 
@@ -441,98 +337,6 @@ def specimen_rows(result: Mapping) -> list[tuple[str, str]]:
 
 # ----------------------------------------------------------------------------- warnings and cautions
 
-def _words(text: str) -> set[str]:
-    return {w[:6] for w in re.findall(r"[a-z]+", text.lower()) if len(w) > 3}
-
-
-def warnings_list(result: Mapping, state: Any) -> list[str]:
-    """Every warning once: exact repeats dropped, and the flagged-stretch summary folded into the warning
-    that already says the same thing (where the stretches are, and how long in all)."""
-    out: list[str] = []
-    sources = [result.get("warnings") or [], getattr(getattr(state, "specimen", None), "warnings", None) or [],
-               getattr(getattr(state, "segmentation", None), "warnings", None) or []]
-    for src in sources:
-        for w in src:
-            text = " ".join(str(w).split())
-            if text and text.lower() not in (o.lower() for o in out):
-                out.append(text)
-    seg = getattr(state, "segmentation", None)
-    flagged = (getattr(seg, "resolution", None) or {}).get("flagged") if seg is not None else None
-    flagged = flagged or ((result.get("bands") or {}).get("resolution") or {}).get("flagged") or []
-    groups: dict[str, list] = {}
-    for item in flagged:
-        try:
-            s0, s1, reason = item
-            groups.setdefault(str(reason), []).append((float(s0), float(s1)))
-        except (TypeError, ValueError):
-            continue
-    for reason, spans in groups.items():
-        total = sum(abs(b - a) for a, b in spans)
-        where = ", ".join(f"{a:.1f}–{b:.1f}" for a, b in spans[:4]) + (", …" if len(spans) > 4 else "")
-        n = len(spans)
-        note = (f"{n} stretch{'es' if n > 1 else ''} flagged, {total:.1f} mm in all, at {where} mm along the "
-                f"axis (the review page lists them)")
-        key = _words(reason)
-        match = None
-        for i, w in enumerate(out):
-            if key and len(key & _words(w)) >= max(2, int(0.6 * len(key))):
-                match = i
-                break
-        if match is None:
-            out.append(f"{reason}: {note}")
-        else:
-            out[match] = out[match].rstrip(".") + f" ({note})"
-    if not dpy_significant(result) and not any("annual" in w.lower() and "signific" in w.lower() for w in out):
-        out.insert(0, "no significant annual cycle was found: this report gives no days-per-year estimate")
-    return out
-
-
-def cautions(result: Mapping, tilt=None) -> list[tuple[str, str]]:
-    """Cautions that apply to this result only."""
-    out = []
-    dpy = result.get("days_per_year") or {}
-    sig = dpy_significant(result)
-    if sig:
-        if daily_supported(result):
-            out.append(("One band, one day?", "The spacing of the bands is regular, as daily growth would make "
-                        "it, but regular spacing does not prove that each band is a day; storm layers or tidal "
-                        "couplets can be regular too."))
-        else:
-            out.append(("The bands may not be days", "The daily test did not find regular spacing "
-                        f"({(result.get('daily_test') or {}).get('verdict', 'not tested')}), so the estimate is "
-                        "bands per yearly cycle, not necessarily days per year."))
-        out.append(("A minimum", "Days without growth, or growth later eroded, leave no band (Pannella 1972), "
-                    "so bands per year can only undercount days per year."
-                    + (" This record shows some evidence of missing days." if (result.get("hiatus") or {}).get(
-                        "evidence") not in (None, "none") else "")))
-        if "sway" in (dpy.get("combined_from") or []):
-            out.append(("Heliotropism", "The sway route assumes the column leaned toward the seasonal sun, "
-                        "so that its sway has a period of one year; not every author accepts this for fossil "
-                        "columns (Williams, Jenkins & Walter 2007, against Vanyo & Awramik 1985)."))
-        cons = dpy.get("consistency") or {}
-        if cons.get("p_value") is not None and float(cons["p_value"]) < 0.05:
-            out.append(("The routes disagree", "The estimates of the routes differ by more than their "
-                        "intervals allow; the combination uses only the routes named in its method."))
-        cc = (dpy.get("methods") or {}).get("cycle_count") or {}
-        if isinstance(cc, Mapping) and cc.get("n_cycles") is not None and int(cc["n_cycles"]) == 1:
-            out.append(("Few cycles", f"The cycle count rests on {cc['n_cycles']} whole yearly cycle; "
-                        "its interval says little about year-to-year change."))
-    if any("long-period end" in str(w) for w in result.get("warnings") or []):
-        out.append(("Longer cycles untested", "The spectrum still rises at the longest periods searched; a "
-                    "cycle longer than a third of the record cannot be tested with this specimen."))
-    sp = result.get("specimen") or {}
-    if sp and not sp.get("north_known", True):
-        out.append(("No north", "North was not given, so every azimuth (sway plane, mean lean) is measured "
-                    "from an arbitrary horizontal axis of the specimen."))
-    up = sp.get("up") or {}
-    if up.get("source") == "estimated" and float(up.get("confidence") or 0) < 0.9:
-        out.append(("Way up estimated", f"The way up was estimated from the shape with confidence "
-                    f"{fmt_sig(up.get('confidence'), 2)}; a wrong way up reverses the band order and tilts."))
-    if tilt is not None and sig and tilt.sway_amplitude_ci95[0] <= 0.2 * max(tilt.sway_amplitude_deg, 1e-9):
-        out.append(("Weak sway", "The sway amplitude's interval reaches near zero; the sway-plane azimuth "
-                    "is then poorly defined."))
-    return out
-
 
 def stage_rows(result: Mapping, report_seconds: float | None,
                note: str = "figures and page; PDF typesetting after") -> list[tuple[str, str]]:
@@ -544,18 +348,6 @@ def stage_rows(result: Mapping, report_seconds: float | None,
     total = sum(float(v) for v in stages.values()) + (report_seconds or 0.0)
     rows.append(("total", f"{total:.1f} s"))
     return rows
-
-
-PARAM_LABELS = {
-    "features": "curvature", "segmenter": "boundary finding", "spectral": "periodicity",
-    "scales_mm": ("scales", "mm"), "band_spacing_mm": ("band spacing found first", "mm"),
-    "band_spacing_method": ("how that spacing was found", ""), "n_classes": ("surface classes", ""),
-    "max_classes": ("most surface classes tried", ""), "subsample": ("vertices used to fit the classes", ""),
-    "random_state": ("random seed", ""), "covariance_type": ("shape of each class (covariance)", ""),
-    "bic_subsample": ("vertices used to choose the number of classes", ""),
-    "use_luminance": ("surface brightness used", ""), "min_relief_to_noise": ("least relief over noise", ""),
-    "n_bootstrap": ("bootstrap resamples", ""),
-}
 
 
 def parameter_rows(result: Mapping) -> list[tuple[str, str]]:
@@ -581,3 +373,17 @@ def parameter_rows(result: Mapping) -> list[tuple[str, str]]:
             value = Path(str(value)).name
         rows.append((label, value_text(value, unit) if value is not None else "not given (default)"))
     return rows
+
+
+def warnings_list(result: Mapping, state: Any) -> list[str]:
+    """See :func:`bandgeo.report.cautions.warnings_list`."""
+    from .cautions import warnings_list as _w
+
+    return _w(result, state)
+
+
+def cautions(result: Mapping, tilt=None) -> list[tuple[str, str]]:
+    """See :func:`bandgeo.report.cautions.cautions`."""
+    from .cautions import cautions as _c
+
+    return _c(result, tilt)
