@@ -7,7 +7,7 @@ the truth planes. Grid axes (issue 11):
 - lamina thickness / edge length (1.5-8): photogrammetric edge length, CT voxel size, or ring spacing;
 - lamina thickness / column radius (0.002-0.05): short stretches keep wide columns small;
 - sway 0-15 deg (annual; the "year" is as short as the column allows without laminae crossing) with
-  meander on top (1.5 deg, correlation 40 laminae);
+  meander on top (1.5 deg at lamina/radius >= 0.02, less on wider columns so laminae never fold);
 - scanner noise / groove relief (0.1-1);
 - mesh kind: ``rings`` (ring-aligned), ``photogrammetric`` (unaligned, smoothed), ``ct`` (marching cubes).
 
@@ -50,7 +50,7 @@ NOISE_RELIEF = (0.1, 0.4, 1.0)
 KINDS = ("rings", "photogrammetric", "ct")
 
 #: Base of the one-factor sweeps.
-BASE = {"lamina_edge": 3.0, "lamina_radius": 0.02, "sway_deg": 7.0, "noise_relief": 0.4}
+BASE = {"lamina_edge": 4.0, "lamina_radius": 0.02, "sway_deg": 7.0, "noise_relief": 0.4}
 
 
 def cell_params(kind, lamina_edge, lamina_radius, sway_deg, noise_relief, seed=1, n_laminae=N_LAMINAE):
@@ -63,7 +63,7 @@ def cell_params(kind, lamina_edge, lamina_radius, sway_deg, noise_relief, seed=1
     kw = dict(mean_thickness_mm=L, days_per_year=year, years=n_laminae / year,
               radius_mm=radius, dome_height_mm=min(0.1 * radius, 20 * L), groove_depth_mm=RELIEF_FRACTION * L,
               scanner_noise_mm=noise_relief * RELIEF_FRACTION * L, sway_amplitude_deg=float(sway_deg),
-              meander_amplitude_deg=1.5 if sway_deg > 0 else 0.0, mean_tilt_deg=2.0, radius_variation=0.02,
+              meander_amplitude_deg=(1.5 * min(1.0, lamina_radius / 0.02)) if sway_deg > 0 else 0.0, mean_tilt_deg=2.0, radius_variation=0.02,
               annual_amplitude=0.1, pose="random", seed=int(seed), mesh_kind=kind, base="open", top="open")
     if kind == "photogrammetric":
         kw["edge_length_mm"] = L / lamina_edge
@@ -250,6 +250,7 @@ def main(argv=None):
     ap.add_argument("--kinds", default=",".join(KINDS))
     ap.add_argument("--max-faces", type=int, default=4_000_000, help="skip cells with larger meshes")
     ap.add_argument("--merge", nargs="+", default=None, help="only merge these JSON row files, print and draw")
+    ap.add_argument("--sweeps", action="store_true", help="only the lamina/radius x sway sweeps")
     args = ap.parse_args(argv)
     if args.merge:
         rows = [r for path in args.merge for r in json.loads(Path(path).read_text())]
@@ -265,6 +266,8 @@ def main(argv=None):
     from bandgeo.synth import SynthParams
 
     cells = [c for c in grid(args.quick) if c[0] in kinds]
+    if args.sweeps:
+        cells = [c for c in cells if c[1] == BASE["lamina_edge"] and c[4] == BASE["noise_relief"]]
     big = [c for c in cells if SynthParams(**cell_params(*c)).estimated_faces > args.max_faces]
     for c in big:
         print(f"skipped (estimated mesh over {args.max_faces:,} faces): {c}")

@@ -238,16 +238,18 @@ def _base_height(line: Centreline, vertices: np.ndarray, wall: np.ndarray, noise
     s_wall = s_all[wall] if wall.any() else s_all
     low_wall = float(s_wall.min())
     tol = 6.0 * noise_mm if np.isfinite(noise_mm) and noise_mm > 0 else 0.0
-    # cap vertices near the axis, below the lowest part of the side wall plus a tilt allowance
-    near = (rho < r_wall / 3.0) & (s_all < low_wall + 0.2 * r_wall)
+    # tilt allowance: a fifth of the radius, but never reaching the far end of a short, wide stretch
+    allow = min(0.2 * r_wall, 0.25 * float(s_wall.max() - low_wall))
+    # cap vertices near the axis, below the lowest part of the side wall plus the tilt allowance
+    near = (rho < r_wall / 3.0) & (s_all < low_wall + allow)
     if near.sum() >= 3:
         cap = s_all[near]
         lo = float(cap.min())
-        return float(np.median(cap[cap <= lo + tol + 0.1 * r_wall]))
+        return float(np.median(cap[cap <= lo + tol + 0.5 * allow]))
     if faces is not None and len(faces):
         from ..features.curvature import boundary_vertices
 
-        rim = boundary_vertices(np.asarray(faces), len(vertices)) & (s_all < low_wall + 0.2 * r_wall)
+        rim = boundary_vertices(np.asarray(faces), len(vertices)) & (s_all < low_wall + allow)
         if rim.sum() >= 3:
             return float(np.median(s_all[rim]))
     ring = s_wall[s_wall <= low_wall + max(tol, 1e-9)]
