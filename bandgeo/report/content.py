@@ -373,17 +373,3 @@ def parameter_rows(result: Mapping) -> list[tuple[str, str]]:
             value = Path(str(value)).name
         rows.append((label, value_text(value, unit) if value is not None else "not given (default)"))
     return rows
-
-
-def warnings_list(result: Mapping, state: Any) -> list[str]:
-    """See :func:`bandgeo.report.cautions.warnings_list`."""
-    from .cautions import warnings_list as _w
-
-    return _w(result, state)
-
-
-def cautions(result: Mapping, tilt=None) -> list[tuple[str, str]]:
-    """See :func:`bandgeo.report.cautions.cautions`."""
-    from .cautions import cautions as _c
-
-    return _c(result, tilt)
