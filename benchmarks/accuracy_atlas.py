@@ -253,7 +253,12 @@ def main(argv=None):
     ap.add_argument("--sweeps", action="store_true", help="only the lamina/radius x sway sweeps")
     args = ap.parse_args(argv)
     if args.merge:
-        rows = [r for path in args.merge for r in json.loads(Path(path).read_text())]
+        # later files win for the same cell (re-runs after a fix)
+        merged = {}
+        for path in args.merge:
+            for r in json.loads(Path(path).read_text()):
+                merged[(r["kind"], r["lamina_edge"], r["lamina_radius"], r["sway_deg"], r["noise_relief"])] = r
+        rows = list(merged.values())
         print("\n".join(table(rows)))
         print()
         print("\n".join(summary(rows)))
