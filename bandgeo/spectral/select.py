@@ -91,7 +91,10 @@ def select_annual(search: dict) -> tuple[dict | None, list[dict]]:
         p["line_test"] = lt
         r = {"period_bands": p["period_bands"], "p_value": p["p_value"], "ratio": p.get("ratio"),
              "line_test_p_value": lt["p_value"], "line_test_applicable": lt["applicable"]}
-        if p["frequency"] * n < MIN_CYCLES:
+        if _on_outer_flank(search, p["frequency"]):
+            r["reading"] = ("on the flank of a stronger peak outside the searched band (the cycle may be "
+                            "longer than the band: give a longer record, or widen the band)")
+        elif p["frequency"] * n < MIN_CYCLES:
             r["reading"] = (f"fewer than {MIN_CYCLES:g} cycles in the record: not read as the annual cycle "
                             f"(slow variation cannot be told from a cycle)")
         elif not lt["applicable"]:
@@ -147,6 +150,19 @@ def select_annual(search: dict) -> tuple[dict | None, list[dict]]:
                 k = is_harmonic(p["frequency"], annual["frequency"], n)
                 p["harmonic_of_annual"] = k
     return annual, readings
+
+
+def _on_outer_flank(search: dict, f: float) -> bool:
+    """True when the periodogram within one Fourier spacing of ``f`` peaks outside the searched band:
+    the peak found is the flank of a cycle the band does not hold (a record of fewer than three cycles,
+    or a band set too narrow), and its frequency would be pulled towards the band's edge."""
+    fr, P, n = search["frequency"], search["power"], search["n"]
+    near = np.abs(fr - f) <= 1.0 / n
+    if not np.any(near):
+        return False
+    g = fr[near][np.argmax(P[near])]
+    lo, hi = search["band"]
+    return bool(g < lo or g > hi)
 
 
 def _subharmonic(search: dict, peak: dict) -> dict | None:
