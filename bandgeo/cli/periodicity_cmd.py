@@ -56,6 +56,10 @@ def summary_lines(result: dict, rotation: dict | None = None) -> list[str]:
             if w is not None:
                 line += f", weight {float(w):.2f} in the combination"
             lines.append(line)
+        cs = y.get("combination_with_sway")
+        if cs:
+            lines.append(f"  with the sway (indicative, heliotropism assumed): {_fmt(cs, 'bands')}; weights "
+                         + ", ".join(f"{k.replace('_', ' ')} {float(v):.2f}" for k, v in cs["weights"].items()))
         route = y.get("thickness_route")
         if route:
             lines.append(f"  thickness route alone (no heliotropism assumed): {_fmt(route, 'bands')}")
