@@ -220,6 +220,7 @@ def draw_map(rows, path):
         ax.set_xscale("log")
         ax.set_xticks(LAMINA_EDGE)
         ax.set_xticklabels([f"{x:g}" for x in LAMINA_EDGE])
+        ax.xaxis.set_minor_formatter(matplotlib.ticker.NullFormatter())
         ax.set_xlabel("lamina thickness / edge length")
         ax.set_title(kind)
     axes[0][0].set_ylabel("scanner noise / groove relief")
@@ -227,7 +228,7 @@ def draw_map(rows, path):
                for l, c in (("counted right (recall & precision >= 97 %)", colours["counted"]),
                             ("counted with a warning", colours["counted+warned"]),
                             ("refused with a reason", colours["refused"]),
-                            ("wrong without a warning", colours["wrong"]))]
+                            ("missed the target (see the table)", colours["wrong"]))]
     fig.legend(handles=handles, loc="lower center", ncol=4, fontsize=8, frameon=False)
     fig.suptitle(f"Resolvable region (lamina/radius {BASE['lamina_radius']}, sway {BASE['sway_deg']:g} deg "
                  f"+ meander; numbers: recall %); dashed: target region")
