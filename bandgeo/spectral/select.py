@@ -31,6 +31,12 @@ from scipy import stats
 
 from .multitaper import line_test
 
+#: Synodic months per year accepted for a tidal reading: from today's 12.37 (29.53-day month in a
+#: 365.24-day year; Meeus) to 14.5 +- 0.5 at about 2450 Ma (Williams 2000 Rev. Geophys. 38:37-59), the
+#: oldest published value; 13.1 +- 0.1 at about 620 Ma lies inside. Widened by 3% for estimation error.
+#: (Used by ``tidal`` too, which imports it from here.)
+MONTHS_PER_YEAR_RANGE = (12.37 / 1.03, 15.0 * 1.03)
+
 #: Pointwise level of the line test a peak must pass to be read as a cycle. Stricter than 5% because
 #: near the long end of the band the continuum is steep (drift, red noise) and the F-test, which assumes
 #: it flat across its bandwidth, rejects too often there; chosen on generator seeds other than the
@@ -109,8 +115,6 @@ def select_annual(search: dict) -> tuple[dict | None, list[dict]]:
     if annual is not None:
         # A strong tidal line may outshine the year. A longer line standing to the strongest in the ratio
         # of a year to a synodic month (or to a fortnight) is the year, the strongest its tidal cycle.
-        from .tidal import MONTHS_PER_YEAR_RANGE
-
         lo, hi = MONTHS_PER_YEAR_RANGE
         longer = [p for p in eligible if p["frequency"] < annual["frequency"]
                   and any(lo <= annual["frequency"] / p["frequency"] / k <= hi for k in (1, 2))]

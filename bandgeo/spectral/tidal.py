@@ -20,15 +20,11 @@ from __future__ import annotations
 import numpy as np
 
 from .annual import combine, period_estimate
-from .select import line_alpha
+from .select import MONTHS_PER_YEAR_RANGE, line_alpha  # the range lives in select: no import cycle
 
 #: Periods (bands per cycle) searched for tidal cycles, and the split between fortnight and month.
 TIDAL_BAND = (9.0, 45.0)
 FORTNIGHT_MAX = 22.0
-#: Synodic months per year accepted for a tidal reading: from today's 12.37 (29.53-day month in a
-#: 365.24-day year; Meeus) to 14.5 +- 0.5 at about 2450 Ma (Williams 2000 Rev. Geophys. 38:37-59), the
-#: oldest published value; 13.1 +- 0.1 at about 620 Ma lies inside. Widened by 3% for estimation error.
-MONTHS_PER_YEAR_RANGE = (12.37 / 1.03, 15.0 * 1.03)
 
 
 def _harmonic_of(period: float, annual: float | None, n: int | None = None) -> bool:
