@@ -344,7 +344,8 @@ def honesty(est, boundaries, rings, gaps, refuse, fr, sp, features, run):
             if thin.any():
                 run.warnings.append(f"{int(thin.sum())} of {len(thick)} bands are thinner than "
                                     f"{resolution.MIN_SAMPLES:g} x the sampling interval along the axis "
-                                    f"({fr.samp:.4f} mm); their stretches are flagged")
+                                    f"({fr.samp:.4f} mm); their stretches are flagged, and laminae thinner "
+                                    f"still may be missed there, so the count may be low")
     if refuse is None and res["spacing_to_sampling"] is not None and res["spacing_to_sampling"] < resolution.MIN_SAMPLES:
         run.warnings.insert(0, f"the scan is at its resolution limit: the band spacing {sp:.4f} mm is below "
                                f"{resolution.MIN_SAMPLES:g} x the sampling interval along the growth axis "
