@@ -275,7 +275,9 @@ def read_series_csv(path) -> BandSeries:
         text = p.read_text(encoding="utf-8-sig")
     except (OSError, UnicodeDecodeError) as exc:
         raise InputError(f"cannot read {p.name} as text ({exc}); save the series as a UTF-8 CSV file") from None
-    lines = [ln for ln in text.splitlines() if ln.strip() and not ln.lstrip().startswith("#")]
+    numbered = [(n, ln) for n, ln in enumerate(text.splitlines(), start=1)
+                if ln.strip() and not ln.lstrip().startswith("#")]
+    lines = [ln for _, ln in numbered]
     if not lines:
         raise InputError(f"{p.name} is empty; give one thickness per line under a 'thickness_mm' header")
     try:
@@ -314,7 +316,8 @@ def read_series_csv(path) -> BandSeries:
             try:
                 vals.append(float(cell))
             except ValueError:
-                raise InputError(f"{p.name} line {k + 2 - numeric_head}: {cell!r} in column "
+                line_no = numbered[k + 1 - numeric_head][0]  # the file's own line, comments counted
+                raise InputError(f"{p.name} line {line_no}: {cell!r} in column "
                                  f"{header[i]!r} is not a number; fix or remove that line") from None
         return np.array(vals)
 

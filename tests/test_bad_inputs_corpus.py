@@ -279,10 +279,7 @@ SERIES = {
 
 _SERIES_OWNER = "series CSV loader"
 #: Cases that failed when this corpus was written, because of code outside the scan stage.
-SERIES_XFAIL = {
-    "text_after_comments": "H4 (bandgeo/series.py read_series_csv): the line number skips comment and blank "
-                           "lines, so it names line 52 for a value on line 55 (issue 15 F15)",
-}
+SERIES_XFAIL: dict[str, str] = {}
 
 
 def _series_param(case):
@@ -293,7 +290,7 @@ def _series_param(case):
 
 @pytest.mark.parametrize("case", [_series_param(c) for c in sorted(SERIES)])
 def test_series_loader_and_cli(tmp_path, case, capfd):
-    from bandgeo.series import build_series, read_series_csv  # noqa: F401  (H4's loader)
+    from bandgeo.series import build_series, read_series_csv  # noqa: F401
 
     text, expected = SERIES[case]
     path = tmp_path / "KRB-12 bands.csv"
@@ -331,22 +328,19 @@ REVIEWS = {
 }
 
 
-#: Review cases whose loader failed when this corpus was written (owner: H5, bandgeo/review/store.py).
-REVIEW_XFAIL = {
-    "id_5000_digits": "read_review lets json.loads' ValueError for integers over 4300 digits escape "
-                      "(only JSONDecodeError is caught)",
-}
+#: Review cases whose loader failed when this corpus was written (bandgeo/review/store.py).
+REVIEW_XFAIL: dict[str, str] = {}
 
 
 def _review_param(case):
-    marks = [pytest.mark.xfail(strict=True, reason=f"H5 review store: {REVIEW_XFAIL[case]}")] \
+    marks = [pytest.mark.xfail(strict=True, reason=f"review store: {REVIEW_XFAIL[case]}")] \
         if case in REVIEW_XFAIL else []
     return pytest.param(case, marks=marks, id=case)
 
 
 @pytest.mark.parametrize("case", [_review_param(c) for c in sorted(REVIEWS)])
 def test_review_loader_raises_one_line(tmp_path, case):
-    from bandgeo.review.store import read_review  # H5's loader
+    from bandgeo.review.store import read_review
 
     text, expected = REVIEWS[case]
     (tmp_path / "review.json").write_bytes(text if isinstance(text, bytes) else text.encode())

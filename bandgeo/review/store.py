@@ -116,6 +116,9 @@ def read_review(folder) -> dict | None:
     except json.JSONDecodeError as exc:
         raise ReviewError(f"{path} is not valid JSON (line {exc.lineno}, column {exc.colno}: {exc.msg}); "
                           f"fix it or move it aside and review again") from None
+    except (ValueError, RecursionError) as exc:  # e.g. an integer of more than 4300 digits
+        raise ReviewError(f"{path} holds a value JSON cannot read ({str(exc).splitlines()[0][:120]}); "
+                          f"fix it or move it aside and review again") from None
     return _check(review, str(path))
 
 
