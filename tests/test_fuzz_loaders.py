@@ -181,7 +181,7 @@ _CSV = ("# KRB-12 band thicknesses, Karrabin Formation (invented demo data)\nthi
 
 @pytest.mark.timeout(300)
 def test_fuzz_series_loader(tmp_path):
-    from bandgeo.series import read_series_csv  # H4's loader
+    from bandgeo.series import read_series_csv
 
     read_series_csv(_write(tmp_path / "seed.csv", _CSV))
     loaded, refused, failures = _run(read_series_csv, _CSV, "fuzz.csv", tmp_path, "series csv", N_OTHER, 102)
@@ -198,7 +198,7 @@ _REVIEW = json.dumps({"schema": "bandgeo.review/1", "specimen_id": "KRB-31", "cr
 
 @pytest.mark.timeout(300)
 def test_fuzz_review_loader(tmp_path):
-    from bandgeo.review.store import read_review  # H5's loader
+    from bandgeo.review.store import read_review
 
     def load(path):
         return read_review(path.parent)
