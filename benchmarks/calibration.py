@@ -228,7 +228,7 @@ def independent(n_series: int = 400, n_sim: int = 199, workers: int = 1, batch_s
     print(f"run time {secs:.0f} s ({secs / max(n_series, 1):.2f} s per series)")
     print("\nseries with an annual cycle:")
     print(f"  detected (significant)          {_binom(sum(r['significant'] for r in cyc), len(cyc))}")
-    print(f"  interval refused (< 3 cycles)   {_binom(sum(r['refused'] for r in cyc), len(cyc))}")
+    print(f"  estimate refused (with reason) {_binom(sum(r['refused'] for r in cyc), len(cyc))}")
     print(f"  COVERAGE of the 95% interval    {_binom(sum(_holds(r['ci95'], r['truth']) for r in given), len(given))}"
           "   target 0.92-0.98")
     for key, label in (("thickness_ci95", "thickness route"), ("spec_ci95", "thickness spectrum"),
