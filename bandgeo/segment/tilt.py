@@ -37,6 +37,11 @@ MAX_RESIDUAL_TILT_DEG = 6.0
 MAX_COLUMNS = 1024
 MAX_CELLS = 40_000_000
 
+#: Longest band spacing searched, in radii: the relief keeps periods up to about a quarter of the radius
+#: (its trend is smoothed over a sixteenth of the radius); a long record would otherwise let a slow
+#: modulation of the relief (the annual cycle of 400 laminae) outshine the laminae.
+MAX_PERIOD_RADII = 0.25
+
 
 def column_image(s, theta, values, s0, bin_mm, nb, n_az, weights=None):
     """Sum of ``values`` and counts in (azimuth column, height bin) cells, (n_az, nb) float each."""
@@ -72,7 +77,9 @@ def estimate_spacing(s, theta, relief, sampling_mm, radius_mm):
     sums, cnt = column_image(s, theta, relief, s0, b, nb, n_az)
     with np.errstate(invalid="ignore", divide="ignore"):
         prof = np.where(cnt > 0, sums / np.maximum(cnt, 1), np.nan)
-    spacing, ratio, n_rows = _strongest(prof, b)
+    # the relief is high-passed at about a sixteenth of the radius (unroll.relief_highpass): longer
+    # periods left in it are trend residue or a slow (e.g. annual) modulation, never the laminae
+    spacing, ratio, n_rows = _strongest(prof, b, max_period_mm=MAX_PERIOD_RADII * radius_mm)
     need = max(PEAK_MIN, 1.0 + 1.5 / np.sqrt(3.0 * max(n_rows, 1)))
     info = {"method": f"strongest peak of the whitened periodogram of the side-wall relief along the "
                       f"centreline, averaged over {n_az} azimuth columns",
@@ -81,11 +88,12 @@ def estimate_spacing(s, theta, relief, sampling_mm, radius_mm):
     return (spacing if info["significant"] else float("nan")), info
 
 
-def _strongest(prof, b):
+def _strongest(prof, b, max_period_mm=np.inf):
     """Strongest peak of the averaged, whitened periodogram of the rows of ``prof`` (NaN = empty).
 
     Returns (spacing_mm, whitened peak height, rows averaged); the spacing is power-weighted within
-    +-20 % of the peak frequency; frequencies from 4 cycles per record to 0.45 / b.
+    +-20 % of the peak frequency; frequencies from 4 cycles per record (and no longer than
+    ``max_period_mm``) to 0.45 / b.
     """
     from scipy.ndimage import median_filter
 
@@ -100,7 +108,7 @@ def _strongest(prof, b):
     nfft = int(2 ** np.ceil(np.log2(max(nb, 16))))
     pw = np.mean(np.abs(np.fft.rfft(rows * np.hanning(nb)[None, :], nfft, axis=1)) ** 2, axis=0)
     f = np.fft.rfftfreq(nfft, d=b)
-    band = (f >= 4.0 / (nb * b)) & (f <= 0.45 / b)
+    band = (f >= 4.0 / (nb * b)) & (f >= 1.0 / max_period_mm) & (f <= 0.45 / b)
     if band.sum() < 8:
         return float("nan"), 0.0, len(rows)
     floor = median_filter(pw, size=max(7, int(band.sum() // 6) | 1), mode="nearest")
