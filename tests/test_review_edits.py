@@ -200,7 +200,7 @@ def test_concurrent_saves_cannot_corrupt_the_file(tmp_path):
 
 
 def test_apply_review_with_the_real_segmentation(tmp_path):
-    segment = pytest.importorskip("bandgeo.segment")
+    import bandgeo.segment as segment
     from test_review_support import make_real_folder
 
     folder, seg, specimen = make_real_folder(tmp_path / "KRB-31", n_bounds=6, spacing=2.0)

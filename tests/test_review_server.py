@@ -270,7 +270,6 @@ def test_cli_refuses_a_folder_that_was_not_analysed(tmp_path):
 
 
 def test_cli_serves_a_saved_segmentation_and_stops_on_ctrl_c(tmp_path):
-    pytest.importorskip("bandgeo.segment")
     from test_review_support import make_real_folder
 
     folder, seg, _ = make_real_folder(tmp_path / "KRB 31 results")

@@ -114,7 +114,7 @@ def test_sample_loads_and_matches_its_truth(stem):
 @pytest.mark.parametrize("stem", sorted(STEMS))
 def test_sheet_gives_the_truth_paleo_up_after_bedding_correction(stem):
     """The scan stage (bandgeo.scan) reading each sheet recovers the truth's paleo-vertical."""
-    scan = pytest.importorskip("bandgeo.scan")
+    from bandgeo import scan
     sheet = scan.read_sheet(SAMPLES / f"{STEMS[stem]}.sheet.toml")
     truth = _truth(stem)
     assert sheet.specimen_id == STEMS[stem] and sheet.units == truth["units"]
