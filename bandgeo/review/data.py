@@ -12,9 +12,9 @@ import warnings
 
 import numpy as np
 from scipy.ndimage import gaussian_filter
-from scipy.spatial import cKDTree
 
 from ..errors import InputError, ReviewError
+from ..unroll import axis_frames, unroll  # the one projection about the centreline
 from .store import inside
 
 #: Azimuth samples of a boundary trace (degrees, 0..360 inclusive).
@@ -25,34 +25,6 @@ def b64(array: np.ndarray) -> str:
     """Little-endian bytes of ``array`` as base64 text (for typed arrays in the page)."""
     return base64.b64encode(np.ascontiguousarray(array).astype(array.dtype.newbyteorder("<")).tobytes()
                             ).decode("ascii")
-
-
-def axis_frames(axis, s):
-    """Point (k,3), unit tangent, north and east (k,3) of the centreline at heights ``s`` (k,) mm."""
-    h = np.asarray(axis.heights_mm, float)
-    pts, tan = np.asarray(axis.points_mm, float), np.asarray(axis.tangents, float)
-    s = np.atleast_1d(np.asarray(s, float))
-    p = np.stack([np.interp(s, h, pts[:, j]) for j in range(3)], axis=1)
-    t = np.stack([np.interp(s, h, tan[:, j]) for j in range(3)], axis=1)
-    t /= np.linalg.norm(t, axis=1, keepdims=True)
-    north = np.array([0.0, 1.0, 0.0]) - t[:, 1:2] * t
-    bad = np.linalg.norm(north, axis=1) < 1e-6
-    north[bad] = np.array([1.0, 0.0, 0.0]) - t[bad, 0:1] * t[bad]
-    north /= np.linalg.norm(north, axis=1, keepdims=True)
-    return p, t, north, np.cross(north, t)
-
-
-def unroll(vertices, axis):
-    """Height along the axis (mm), azimuth clockwise from north (deg, 0..360) and radius (mm)."""
-    h = np.asarray(axis.heights_mm, float)
-    fine = np.linspace(h[0], h[-1], max(len(h), 2000))
-    p, t, north, east = axis_frames(axis, fine)
-    _, i = cKDTree(p).query(np.asarray(vertices, float), k=1, workers=2)
-    d = np.asarray(vertices, float) - p[i]
-    along = np.einsum("ij,ij->i", d, t[i])
-    r = d - along[:, None] * t[i]
-    az = np.degrees(np.arctan2(np.einsum("ij,ij->i", r, east[i]), np.einsum("ij,ij->i", r, north[i])))
-    return fine[i] + along, np.mod(az, 360.0), np.linalg.norm(r, axis=1)
 
 
 class FolderData:
