@@ -10,8 +10,7 @@ Modules: ``build`` (orchestration), ``content`` (what the page says: headline, t
 (sway plane, sway amplitude, mean lean), ``figures``, ``comparison`` and ``specimen_view`` (figures),
 ``spectra`` (reading the saved spectra), ``references`` (published reference points), ``html`` (the
 page), ``pdf`` (the same page typeset by WeasyPrint), ``exports`` (CSV, PLY) and ``palette``
-(colour-blind-safe colours). ``model``, ``unroll`` and ``render3d`` are older helpers kept for
-callers. Matplotlib, jinja2 and WeasyPrint are imported only when a report is built.
+(colour-blind-safe colours). ``unroll`` and ``render3d`` are older helpers kept for callers. Matplotlib, jinja2 and WeasyPrint are imported only when a report is built.
 """
 from __future__ import annotations
 
