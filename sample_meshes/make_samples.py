@@ -5,8 +5,9 @@ Usage:  python sample_meshes/make_samples.py [--out FOLDER] [--legacy]
 The default set (SAMPLES) is realistic: six years of record on columns 9-11 mm across, swaying and
 meandering, scanned as unaligned photogrammetry-like meshes with noise of about 10 % and groove relief
 of 25 % of a lamina. To keep each PLY under about 15 MB the triangles are short along the column (a
-quarter of a lamina) and stretched around it (17-19 times longer), with one smoothing pass (see
-README.md). ``--legacy`` writes the earlier three-year, ring-mesh set (LEGACY_SAMPLES) instead.
+sixth of a mean lamina, 0.035-0.0385 mm, so the thinnest laminae of the annual cycle still span three
+to four steps) and stretched around it (34-38 times longer, about 1.2-1.5 mm, some 24 vertices around),
+with one smoothing pass (see README.md). ``--legacy`` writes the earlier three-year, ring-mesh set (LEGACY_SAMPLES) instead.
 The same seed gives the same specimen; floats may differ in the last bits between machines.
 
 The scenario (Karrabin Formation, Tallow Creek, Mirrin Ranges) is invented; see README.md here.
@@ -45,7 +46,7 @@ SAMPLES = [
                        meander_correlation_laminae=100.0, mean_tilt_deg=1.5, mean_tilt_azimuth_deg=110.0,
                        radius_mm=5.0, radius_variation=0.06, dome_height_mm=1.2, groove_depth_mm=0.05,
                        groove_width_fraction=0.4, scanner_noise_mm=0.02, mesh_kind="photogrammetric",
-                       edge_length_mm=0.05, edge_aspect=19.0, smoothing_iterations=1, holes=1,
+                       edge_length_mm=0.035, edge_aspect=38.0, smoothing_iterations=1, holes=1,
                        pose="random", units="mm", seed=707),
     },
     {
@@ -57,7 +58,7 @@ SAMPLES = [
                        meander_correlation_laminae=100.0, mean_tilt_deg=1.5, mean_tilt_azimuth_deg=200.0,
                        radius_mm=4.5, radius_variation=0.06, dome_height_mm=1.0, groove_depth_mm=0.05,
                        groove_width_fraction=0.4, scanner_noise_mm=0.02, mesh_kind="photogrammetric",
-                       edge_length_mm=0.05, edge_aspect=17.0, smoothing_iterations=1, pose="random",
+                       edge_length_mm=0.035, edge_aspect=34.0, smoothing_iterations=1, pose="random",
                        units="mm", seed=1212),
     },
     {
@@ -71,7 +72,7 @@ SAMPLES = [
                        meander_correlation_laminae=100.0, mean_tilt_deg=2.0, mean_tilt_azimuth_deg=300.0,
                        radius_mm=5.5, radius_variation=0.08, radius_taper=-0.15, dome_height_mm=1.0,
                        groove_depth_mm=0.055, groove_width_fraction=0.35, scanner_noise_mm=0.022,
-                       mesh_kind="photogrammetric", edge_length_mm=0.055, edge_aspect=19.0,
+                       mesh_kind="photogrammetric", edge_length_mm=0.0385, edge_aspect=38.0,
                        smoothing_iterations=1, base="cut", top="domed", pose="random", units="cm", seed=3131),
     },
 ]
