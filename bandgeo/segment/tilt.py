@@ -42,6 +42,9 @@ MAX_CELLS = 40_000_000
 #: modulation of the relief (the annual cycle of 400 laminae) outshine the laminae.
 MAX_PERIOD_RADII = 0.25
 
+#: Laminae a record must hold before the band spacing is re-centred on the whole peak (see _strongest).
+MIN_LAMINAE_RECENTRE = 100
+
 
 def column_image(s, theta, values, s0, bin_mm, nb, n_az, weights=None):
     """Sum of ``values`` and counts in (azimuth column, height bin) cells, (n_az, nb) float each."""
@@ -137,7 +140,10 @@ def _strongest(prof, b, max_period_mm=np.inf):
     away = band & ((f < 0.5 * f_pk) | (f > 2.0 * f_pk))
     level = float(np.median(pw[away])) if away.sum() >= 8 else 0.0
     fc = f0
-    for _ in range(12):
+    # only on records long enough to resolve such a spread (a short stretch's peak is as wide as its
+    # window's leakage, and its centroid would follow the noise)
+    n_iter = 12 if nb * b * f0 >= MIN_LAMINAE_RECENTRE else 0
+    for _ in range(n_iter):
         sel = band & (f >= 0.6 * fc) & (f <= 1.6 * fc)
         w = np.maximum(pw[sel] - level, 0.0)
         if w.sum() <= 0:
