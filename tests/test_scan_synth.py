@@ -81,7 +81,14 @@ def test_bundled_samples(path):
     frames = truth["frames"]
     info = inspect_scan(path)
     assert info["units"] == truth["units"]
-    assert _angle(info["up"]["scan_frame"], frames["growth_direction_file"]) < 2.0
+    off = _angle(info["up"]["scan_frame"], frames["growth_direction_file"])
+    if info["up"]["confidence"] >= 0.5:
+        assert off < 2.0
+    else:
+        # Both ends look alike (the realistic samples have open, weathered ends): the long axis must
+        # still be right, and the way along it is left to the user, with a warning that says so.
+        assert min(off, 180.0 - off) < 2.0
+        assert any("way-up" in w for w in info["warnings"])
     from bandgeo.scan import load_scan
     height = _truth_height_mm(load_scan(path).vertices, truth)
     assert info["size_mm"]["height"] == pytest.approx(height, rel=0.01)
