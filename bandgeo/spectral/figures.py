@@ -73,6 +73,12 @@ def periodicity_figures(series, *, count_uncertainty: dict | None = None, min_pe
     blocks = res.to_dict()
     if count_uncertainty is not None:
         blocks["days_per_year"] = _unc.widen_days_per_year(blocks["days_per_year"], count_uncertainty)
+        tidal = blocks.get("tidal")
+        if isinstance(tidal, dict) and isinstance(tidal.get("days_per_synodic_month"), dict):
+            # bands per month count the same bands: a missed boundary shortens the month as it does the year
+            tidal = dict(tidal)
+            tidal["days_per_synodic_month"] = _unc._widen(tidal["days_per_synodic_month"], count_uncertainty)
+            blocks["tidal"] = tidal
     else:
         blocks["days_per_year"]["counting_uncertainty"] = None
         blocks["days_per_year"]["interval_method"] = (
