@@ -41,9 +41,12 @@ MAX_CELLS = 40_000_000
 #: (its trend is smoothed over a sixteenth of the radius); a long record would otherwise let a slow
 #: modulation of the relief (the annual cycle of 400 laminae) outshine the laminae.
 MAX_PERIOD_RADII = 0.25
+#: ... but never below this (mm): thick laminae on a thin test column must stay searchable, and a slow
+#: modulation (an annual cycle of hundreds of laminae) is longer than this on any column.
+MAX_PERIOD_FLOOR_MM = 2.0
 
 #: Laminae a record must hold before the band spacing is re-centred on the whole peak (see _strongest).
-MIN_LAMINAE_RECENTRE = 100
+MIN_LAMINAE_RECENTRE = 400
 
 
 def column_image(s, theta, values, s0, bin_mm, nb, n_az, weights=None):
@@ -82,7 +85,7 @@ def estimate_spacing(s, theta, relief, sampling_mm, radius_mm):
         prof = np.where(cnt > 0, sums / np.maximum(cnt, 1), np.nan)
     # the relief is high-passed at about a sixteenth of the radius (unroll.relief_highpass): longer
     # periods left in it are trend residue or a slow (e.g. annual) modulation, never the laminae
-    spacing, ratio, n_rows = _strongest(prof, b, max_period_mm=MAX_PERIOD_RADII * radius_mm)
+    spacing, ratio, n_rows = _strongest(prof, b, max_period_mm=max(MAX_PERIOD_RADII * radius_mm, MAX_PERIOD_FLOOR_MM))
     need = max(PEAK_MIN, 1.0 + 1.5 / np.sqrt(3.0 * max(n_rows, 1)))
     info = {"method": f"strongest peak of the whitened periodogram of the side-wall relief along the "
                       f"centreline, averaged over {n_az} azimuth columns",
