@@ -274,6 +274,9 @@ def independent(n_series: int = 400, n_sim: int = 199, workers: int = 1, batch_s
 
 if __name__ == "__main__":
     argv = sys.argv[1:]
+    if {"-h", "--help"} & set(argv):
+        print("usage: python benchmarks/calibration.py [N_SERIES [N_SIM]] [--workers K] [--forward-model | --mesh]")
+        sys.exit(0)
     if "--mesh" in argv:
         mesh_case()
         sys.exit(0)
