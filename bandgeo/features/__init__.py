@@ -18,8 +18,8 @@ import scipy.sparse as sp
 
 from ..errors import InputError, ParameterError
 from ..progress import report
-from .curvature import (FACE_BLOCK, adjacency, boundary_vertices, luminance_from_colors,  # noqa: F401
-                        one_ring_curvature, orient_outward, rough_axis, sampling_along,
+from .curvature import (FACE_BLOCK, adjacency, adjacency_and_boundary, boundary_vertices,  # noqa: F401
+                        luminance_from_colors, one_ring_curvature, orient_outward, rough_axis, sampling_along,
                         shape_index_curvedness)
 from .spacing import estimate_spacing_from_profile, relief_profiles
 
@@ -73,14 +73,14 @@ class CurvatureFeatures:
     scales_mm: np.ndarray
     mean: np.ndarray
     gaussian: np.ndarray
-    k1: np.ndarray
-    k2: np.ndarray
-    shape_index: np.ndarray
-    curvedness: np.ndarray
-    luminance: Optional[np.ndarray]
-    normals: np.ndarray
-    band_spacing_mm: float
-    band_spacing_method: str
+    k1: Optional[np.ndarray] = None
+    k2: Optional[np.ndarray] = None
+    shape_index: Optional[np.ndarray] = None
+    curvedness: Optional[np.ndarray] = None
+    luminance: Optional[np.ndarray] = None
+    normals: Optional[np.ndarray] = None
+    band_spacing_mm: float = float("nan")
+    band_spacing_method: str = ""
     sampling_along_mm: float = float("nan")
     noise_mm: float = float("nan")
     info: dict = field(default_factory=dict)
@@ -94,6 +94,10 @@ class CurvatureFeatures:
         """Index of the scale that resolves the boundary grooves best (the default scales' second)."""
         return int(self.info.get("groove_scale_index", min(GROOVE_SCALE_INDEX, len(self.scales_mm) - 1)))
 
+    def _discriminant(self) -> np.ndarray:
+        """sqrt(max(H^2 - K, 0)), half the difference of the principal curvatures."""
+        return np.sqrt(np.maximum(self.mean * self.mean - self.gaussian, 0.0))
+
     def matrix(self, luminance: bool = False) -> np.ndarray:
         """The (n, p) clustering matrix: mean curvature and shape index at every scale above one ring
         (the one-ring values are dominated by scanner noise), plus the luminance if asked.
@@ -105,6 +109,50 @@ class CurvatureFeatures:
         if luminance and self.luminance is not None:
             cols.append(self.luminance[:, None])
         return np.hstack(cols).astype(np.float32)
+
+
+def _lazy(name: str, make):
+    """A property for a derived field of :class:`CurvatureFeatures`: a value given to the constructor
+    (or set later) is kept; otherwise it is computed from ``mean`` and ``gaussian`` on first use and
+    cached, so the arrays the segmenter never reads cost neither time nor memory."""
+    slot = "_" + name
+
+    def get(self):
+        value = self.__dict__.get(slot)
+        if value is None:
+            value = make(self)
+            self.__dict__[slot] = value
+        return value
+
+    def put(self, value):
+        self.__dict__[slot] = value
+
+    return property(get, put, doc=f"{name} (computed from mean and gaussian curvature when first read)")
+
+
+def _k1(self):
+    return self.mean + self._discriminant()
+
+
+def _k2(self):
+    return self.mean - self._discriminant()
+
+
+def _shape_index(self):
+    # (2/pi) atan((k1 + k2) / (k1 - k2)) with k1 + k2 = 2H and k1 - k2 = 2 sqrt(H^2 - K)
+    return (2.0 / np.pi) * np.arctan2(self.mean, self._discriminant())
+
+
+def _curvedness(self):
+    d = self._discriminant()
+    return np.sqrt(self.mean * self.mean + d * d)  # sqrt((k1^2 + k2^2) / 2)
+
+
+# the dataclass __init__ assigns these attributes, which now go through the properties
+CurvatureFeatures.k1 = _lazy("k1", _k1)
+CurvatureFeatures.k2 = _lazy("k2", _k2)
+CurvatureFeatures.shape_index = _lazy("shape_index", _shape_index)
+CurvatureFeatures.curvedness = _lazy("curvedness", _curvedness)
 
 
 # ---------------------------------------------------------------------------- input checks
@@ -145,8 +193,11 @@ def estimate_band_spacing(specimen, _cache: Optional[dict] = None):
     info : dict
         ``method``, ``significant``, ``peak_to_noise``, ``sampling_along_mm``, ``axis``.
     """
-    v, f = _mesh_arrays(specimen)
     cache = _cache if _cache is not None else {}
+    if "vf" in cache:  # compute_features has checked the arrays already
+        v, f = cache["vf"]
+    else:
+        v, f = _mesh_arrays(specimen)
     if "lap" not in cache:
         cache.update(_one_ring(v, f))
     axis = cache["axis"]
@@ -160,16 +211,17 @@ def estimate_band_spacing(specimen, _cache: Optional[dict] = None):
     return spacing, info
 
 
-def _one_ring(v, f):
-    lap, gauss, area, normals, boundary = one_ring_curvature(v, f)
+def _one_ring(v, f, boundary=None):
+    lap, gauss, area, normals, boundary = one_ring_curvature(v, f, boundary=boundary)
     axis = rough_axis(v)
     sign = orient_outward(v, normals, axis)
     normals *= sign
     h0 = -0.5 * np.einsum("ij,ij->i", lap, normals)
+    del lap
     valid = ~boundary & np.isfinite(h0) & np.isfinite(gauss)
     h0 = np.where(valid, h0, 0.0)
     gauss = np.where(valid, gauss, 0.0)
-    return {"lap": lap, "H0": h0, "K0": gauss, "area": area, "normals": normals, "valid": valid,
+    return {"lap": True, "H0": h0, "K0": gauss, "area": area, "normals": normals, "valid": valid,
             "axis": axis}
 
 
@@ -192,6 +244,13 @@ def noise_estimate(v, f, normals, valid, adj=None) -> float:
     mad = np.median(np.abs((r - r_s) - np.median(r - r_s)))
     dmed = float(np.median(deg[valid]))
     return float(1.4826 * mad / np.sqrt(1.0 + 1.0 / max(dmed, 1.0)))
+
+
+def _step(adj, x):
+    """One lazy random-walk step (A + I) x of a vector."""
+    out = adj @ x
+    out += x
+    return out
 
 
 # ---------------------------------------------------------------------------- main entry
@@ -218,7 +277,10 @@ def compute_features(specimen, band_spacing_mm: Optional[float] = None, scales_m
     v, f = _mesh_arrays(specimen)
     n = len(v)
     report(progress, "curvature: one ring", 0, 4)
-    cache = _one_ring(v, f)
+    # the adjacency (float64: the diffusion steps multiply float64 fields) also gives the boundary
+    adj, boundary = adjacency_and_boundary(f, n, dtype=np.float64)
+    cache = _one_ring(v, f, boundary)
+    cache["vf"] = (v, f)
     report(progress, "curvature: band spacing", 1, 4)
     est_spacing, info = estimate_band_spacing(specimen, _cache=cache)
     samp = cache["sampling_along_mm"]
@@ -239,46 +301,50 @@ def compute_features(specimen, band_spacing_mm: Optional[float] = None, scales_m
     scales = np.asarray(sorted(scales), dtype=float)
 
     report(progress, "curvature: scales", 2, 4)
-    adj = adjacency(f, n)
     axis = cache["axis"]
     # axial spread of one step of the lazy random walk: mean over edges of (e . axis)^2 * d / (d + 1)
-    coo = adj.tocoo()
-    ea2 = float(np.mean(((v[coo.row] - v[coo.col]) @ axis) ** 2))
-    deg = np.asarray(adj.sum(axis=1)).ravel()
+    p_ax = v @ axis
+    deg = np.diff(adj.indptr).astype(np.float64)
+    rows = np.repeat(np.arange(n, dtype=np.int32 if n < 2**31 else np.int64), np.diff(adj.indptr))
+    ea2 = float(np.mean((p_ax[rows] - p_ax[adj.indices]) ** 2))
+    del rows, p_ax
     dmean = float(deg.mean())
     step_var = ea2 * dmean / (dmean + 1.0)
     w_area = np.where(cache["valid"], cache["area"], 0.0)
-    op = (adj + sp.identity(n, dtype=np.float32, format="csr")).tocsr()
-    norm_w = op @ w_area
-    fields = np.stack([cache["H0"] * w_area, cache["K0"] * w_area], axis=1)
-    weights = w_area.copy()
+    # one lazy random-walk step is (A + I) x; the weighted fields and their weights walk together
+    # (three contiguous vectors: three one-vector products are faster than one three-column product)
+    cur = [cache["H0"] * w_area, cache["K0"] * w_area, w_area]
     H = np.empty((n, len(scales)))
     K = np.empty((n, len(scales)))
     steps_done, steps_used = 0, []
-    cur_f, cur_w = fields, weights
     for si, s in enumerate(scales):
         target = 0 if s <= 0 else int(np.ceil(s * s / max(step_var, 1e-300)))
         target = max(target, 1 if s > 0 else 0)
         target = min(target, MAX_STEPS)
         while steps_done < target:
-            cur_f = op @ cur_f
-            cur_w = op @ cur_w
-            # renormalise so that values stay area-weighted means (keeps magnitudes bounded)
+            cur = [_step(adj, x) for x in cur]
             steps_done += 1
         if steps_done == 0:
             # one ring: boundary vertices take the mean of their valid neighbours
-            fill_f, fill_w = op @ fields, norm_w
-            hv = np.where(cache["valid"], cache["H0"], fill_f[:, 0] / np.maximum(fill_w, 1e-300))
-            kv = np.where(cache["valid"], cache["K0"], fill_f[:, 1] / np.maximum(fill_w, 1e-300))
+            valid = cache["valid"]
+            if valid.all():
+                hv, kv = cache["H0"], cache["K0"]
+            else:
+                fill = [_step(adj, x) for x in cur]
+                wv = np.maximum(fill[2], 1e-300)
+                hv = np.where(valid, cache["H0"], fill[0] / wv)
+                kv = np.where(valid, cache["K0"], fill[1] / wv)
         else:
-            hv = cur_f[:, 0] / np.maximum(cur_w, 1e-300)
-            kv = cur_f[:, 1] / np.maximum(cur_w, 1e-300)
+            wv = np.maximum(cur[2], 1e-300)
+            hv = cur[0] / wv
+            kv = cur[1] / wv
         H[:, si], K[:, si] = hv, kv
         steps_used.append(steps_done)
         report(progress, "curvature: scales", 2 + (si + 1) / len(scales), 4)
+    del cur
     disc = np.sqrt(np.maximum(H * H - K, 0.0))
-    k1, k2 = H + disc, H - disc
-    si_, cv = shape_index_curvedness(k1, k2)
+    si_ = (2.0 / np.pi) * np.arctan2(H, disc)  # shape index from 2H = k1 + k2, 2 disc = k1 - k2
+    del disc
     noise = noise_estimate(v, f, cache["normals"], cache["valid"], adj)
     info = dict(info)
     if scales_mm is None:
@@ -289,7 +355,6 @@ def compute_features(specimen, band_spacing_mm: Optional[float] = None, scales_m
     info.update({"diffusion_steps": steps_used, "step_spread_along_mm": float(np.sqrt(step_var)),
                  "spacing_estimate_mm": None if not np.isfinite(est_spacing) else float(est_spacing)})
     report(progress, "curvature: done", 4, 4)
-    return CurvatureFeatures(scales_mm=scales, mean=H, gaussian=K, k1=k1, k2=k2, shape_index=si_,
-                             curvedness=cv, luminance=luminance_from_colors(getattr(specimen, "colors", None)),
+    return CurvatureFeatures(scales_mm=scales, mean=H, gaussian=K, shape_index=si_, luminance=luminance_from_colors(getattr(specimen, "colors", None)),
                              normals=cache["normals"], band_spacing_mm=spacing, band_spacing_method=method,
                              sampling_along_mm=samp, noise_mm=noise, info=info)
