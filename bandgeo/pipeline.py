@@ -72,20 +72,39 @@ AnalysisResult = Analysis
 
 
 class _Timer:
-    """Times the stages and forwards progress."""
+    """Times the stages and forwards progress.
+
+    ``progress(description, done, total)`` hears, in stage units: ``("features", 2, 10)`` when a stage
+    starts, ``("features: curvature: scales", 2.5, 10)`` from the stage's own reports, and
+    ``("features done", 3, 10)`` at its end. A stage function that has a ``progress`` parameter and is
+    not given one gets a callback that forwards its reports so. A display that understands stages
+    (``bandgeo.progress.bar``) is also told each stage's start, inner fraction and end, with the mesh's
+    face count once known (``bandgeo.progress.stage_event``), for its estimate of the time left.
+    """
 
     def __init__(self, progress: Optional[Callable], stages=STAGES):
         self.progress = progress
         self.seconds: dict[str, float] = {}
         self.stages = list(stages)
+        self.faces: Optional[int] = None
 
     def run(self, name: str, fn: Callable, *args, **kwargs):
+        from . import progress as _progress
+
         index = self.stages.index(name) if name in self.stages else 0
-        _report(self.progress, f"{name}", index, len(self.stages))
+        total = len(self.stages)
+        self.faces = _progress.face_count(args, self.faces)
+        _progress.stage_event(self.progress, "start", name, faces=self.faces)
+        _report(self.progress, f"{name}", index, total)
+        if self.progress is not None and "progress" not in kwargs and _progress.takes_progress(fn):
+            kwargs["progress"] = _progress.inner_callback(self.progress, name, index, total)
         start = time.perf_counter()
         value = fn(*args, **kwargs)
-        self.seconds[name] = round(self.seconds.get(name, 0.0) + time.perf_counter() - start, 4)
-        _report(self.progress, f"{name} done", index + 1, len(self.stages))
+        spent = time.perf_counter() - start
+        self.seconds[name] = round(self.seconds.get(name, 0.0) + spent, 4)
+        self.faces = _progress.face_count((value,), self.faces)
+        _progress.stage_event(self.progress, "end", name, faces=self.faces, seconds=spent)
+        _report(self.progress, f"{name} done", index + 1, total)
         return value
 
 

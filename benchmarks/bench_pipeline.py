@@ -98,6 +98,12 @@ def child_make(faces: float, folder: Path) -> None:
     years = max(0.02, 0.05 + 0.05 * (faces - n1) / max(n2 - n1, 1))
     start = time.perf_counter()
     spec = simulate(SynthParams(years=years, **base))
+    for _ in range(3):  # laminae thicken and thin through the year: faces are not linear in years
+        if abs(len(spec.faces) / faces - 1.0) <= 0.05:
+            break
+        years *= faces / len(spec.faces)
+        del spec
+        spec = simulate(SynthParams(years=years, **base))
     folder.mkdir(parents=True, exist_ok=True)
     write_specimen(spec, folder / "scan.ply")
     _emit({"faces": int(len(spec.faces)), "years": years, "seconds": time.perf_counter() - start,

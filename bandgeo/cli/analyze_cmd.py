@@ -58,7 +58,9 @@ def analyze(ctx, scan, out, seed, min_period, max_period, n_sim, discard_review,
     from .. import pipeline, progress
 
     kwargs = prepare_kwargs(**opts)
-    with progress.bar("analysing") as cb:
+    # The bar's time left comes from the stage cost model (bandgeo.progress.STAGE_COST).
+    stages = [s for s in progress.PIPELINE_STAGES if not (no_report and s == "report")]
+    with progress.bar("analysing", stages=stages) as cb:
         state = pipeline.analyze(scan, out, seed=seed, keep_review=not discard_review,
                                  report=not no_report, min_period_bands=min_period,
                                  max_period_bands=max_period, n_sim=n_sim, progress=cb, **kwargs)

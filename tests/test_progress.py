@@ -1,0 +1,245 @@
+"""Progress bars: the time-left estimates (fake clock, no timing), the stage timer's plumbing, silence
+off a terminal.
+
+The expected figures are worked by hand from the estimates' definitions in ``bandgeo.progress``
+(cost model ``fixed + per_mface * M``, speed ``(actual + prior) / (model + prior)``, linear
+extrapolation ``t / f``); they check the arithmetic and the event plumbing, not any machine's speed.
+"""
+import io
+import sys
+import types
+
+import numpy as np
+import pytest
+
+from bandgeo import progress
+from bandgeo.pipeline import STAGES, _Timer
+
+
+class Clock:
+    def __init__(self, t=0.0):
+        self.t = t
+
+    def __call__(self):
+        return self.t
+
+
+COSTS = {"a": (0.0, 1.0), "b": (0.0, 2.0), "c": (1.0, 0.0)}  # seconds = fixed + per_mface * M
+
+
+def test_stage_estimate_needs_the_mesh_size_then_uses_the_cost_model():
+    clock = Clock()
+    est = progress.StageEstimate(["a", "b", "c"], costs=COSTS, clock=clock)
+    est.stage("start", "a")
+    assert est.remaining() is None  # faces unknown: no guess
+    clock.t = 2.0
+    est.stage("end", "a", faces=1_000_000, seconds=2.0)
+    # a took 2 s against 1 model second: speed (2 + 3) / (1 + 3) = 1.25 (prior 3 model seconds)
+    assert progress.PRIOR_SECONDS == 3.0
+    assert est.speed() == pytest.approx(1.25)
+    # b (2 s) and c (1 s) at that speed
+    assert est.remaining() == pytest.approx(3.75)
+
+
+def test_stage_estimate_refines_the_running_stage_with_its_own_reports():
+    clock = Clock()
+    est = progress.StageEstimate(["a", "b", "c"], costs=COSTS, faces=1_000_000, clock=clock)
+    est.stage("start", "a")
+    clock.t = 2.0
+    est.stage("end", "a", seconds=2.0)
+    est.stage("start", "b")
+    clock.t = 3.0
+    # b has run 1 s of an expected 2 * 1.25 = 2.5 s and says nothing: 1.5 s left, then c's 1.25 s
+    assert est.remaining() == pytest.approx(2.75)
+    est.stage("step", "b", fraction=0.5)
+    # half done after 1 s: extrapolation 1 s left; blended with the model's 1.5 s by the fraction 0.5
+    assert est.remaining() == pytest.approx(0.5 * 1.5 + 0.5 * 1.0 + 1.25)
+
+
+def test_a_stage_past_its_expected_time_slows_the_whole_estimate_and_never_reads_zero():
+    clock = Clock()
+    est = progress.StageEstimate(["a", "b", "c"], costs=COSTS, faces=1_000_000, clock=clock)
+    est.stage("start", "a")
+    clock.t = 2.0
+    est.stage("end", "a", seconds=2.0)
+    est.stage("start", "b")
+    clock.t = 12.0
+    # b has run 10 s against 2 model seconds: speed (2 + 10 + 3) / (1 + 2 + 3) = 2.5
+    assert est.speed() == pytest.approx(2.5)
+    # b: max(2 * 2.5 - 10, 0.1 * 10) = 1 s; c: 1 * 2.5 s
+    assert progress.OVERRUN_SHARE == 0.1
+    assert est.remaining() == pytest.approx(3.5)
+    assert est.remaining() > 0
+
+
+def test_stage_estimate_fraction_never_goes_back_and_reaches_one():
+    clock = Clock()
+    est = progress.StageEstimate(["a", "b"], costs=COSTS, faces=2_000_000, clock=clock)
+    seen = []
+    for name, spent in (("a", 1.0), ("b", 30.0)):
+        est.stage("start", name)
+        for _ in range(5):
+            clock.t += spent / 5
+            seen.append(est.fraction())
+        est.stage("end", name, seconds=spent)
+    seen.append(est.fraction())
+    assert all(b >= a for a, b in zip(seen, seen[1:]))
+    assert seen[-1] == pytest.approx(1.0)
+    assert est.remaining() == pytest.approx(0.0)
+
+
+def test_unplanned_stages_are_added_and_the_default_model_covers_every_pipeline_stage():
+    est = progress.StageEstimate(["a"], costs=COSTS, faces=1_000_000, clock=Clock())
+    est.stage("start", "zzz")
+    assert est.plan == ["a", "zzz"]
+    assert est.expected("zzz") == 0.0  # no cost known: no time assumed
+    # every stage the pipeline times (astronomy runs inside periodicity) has a cost
+    assert set(progress.PIPELINE_STAGES) == set(STAGES) - {"astronomy"}
+    assert set(progress.STAGE_COST) == set(progress.PIPELINE_STAGES)
+    assert all(fixed >= 0 and per >= 0 for fixed, per in progress.STAGE_COST.values())
+
+
+def test_linear_estimate_extrapolates_and_counts_down_between_reports():
+    clock = Clock()
+    est = progress.LinearEstimate(clock)
+    clock.t = 0.5
+    est.update("x", 1, 10)
+    assert est.remaining() is None  # under a second in: no figure yet
+    clock.t = 2.0
+    est.update("x", 1, 4)  # a quarter in 2 s: 8 s in all
+    assert est.remaining() == pytest.approx(6.0)
+    clock.t = 4.0  # no report since: count down
+    assert est.remaining() == pytest.approx(4.0)
+    clock.t = 20.0
+    assert est.remaining() == 0.0
+    est.update("x", 0, 0)  # a nonsense total is ignored, not a crash
+    assert est.fraction() == 0.0
+
+
+def test_format_seconds():
+    assert progress.format_seconds(None) == "estimating time left"
+    assert progress.format_seconds(0.4) == "< 1 s left"
+    assert progress.format_seconds(12.4) == "~12 s left"
+    assert progress.format_seconds(65) == "~1 min 05 s left"
+    assert progress.format_seconds(3 * 3600 + 120) == "~3 h 02 min left"
+
+
+# ----------------------------------------------------------------------------------------------------
+# the stage timer's plumbing
+
+
+class Recorder:
+    def __init__(self):
+        self.calls, self.events = [], []
+
+    def __call__(self, description, done, total):
+        self.calls.append((description, done, total))
+
+    def stage(self, event, name, **info):
+        self.events.append((event, name, info))
+
+
+def test_timer_forwards_a_stage_s_own_reports_and_tells_the_display_the_mesh_size():
+    rec = Recorder()
+    timer = _Timer(rec)
+    specimen = types.SimpleNamespace(faces=np.zeros((7, 3), dtype=np.int64))
+
+    def features(spec, progress=None):
+        progress("one ring", 1, 4)
+        progress("scales", 2, 4)
+        return "feats"
+
+    assert timer.run("features", features, specimen) == "feats"
+    index, total = STAGES.index("features"), len(STAGES)
+    assert rec.calls == [("features", index, total), ("features: one ring", index + 0.25, total),
+                         ("features: scales", index + 0.5, total), ("features done", index + 1, total)]
+    kinds = [(e, n, i.get("fraction")) for e, n, i in rec.events]
+    assert kinds == [("start", "features", None), ("step", "features", 0.25), ("step", "features", 0.5),
+                     ("end", "features", None)]
+    assert rec.events[0][2]["faces"] == 7
+    assert rec.events[-1][2]["seconds"] >= 0.0
+    assert "features" in timer.seconds
+
+
+def test_timer_learns_the_size_from_a_stage_s_result_and_leaves_other_functions_alone():
+    rec = Recorder()
+    timer = _Timer(rec)
+    scan = types.SimpleNamespace(faces=np.zeros((11, 3)))
+    timer.run("load", lambda path: scan, "file.ply")
+    assert rec.events[0][2]["faces"] is None and rec.events[-1][2]["faces"] == 11
+
+    given = []
+    timer.run("orient", lambda s, progress=None: given.append(progress), scan, progress="mine")
+    assert given == ["mine"]  # a progress argument given by the caller is kept
+    timer.run("measure", lambda s: None, scan)  # no progress parameter: called as before
+    analysis = types.SimpleNamespace(specimen=types.SimpleNamespace(faces=np.zeros((5, 3))))
+    assert progress.face_count([analysis]) == 5
+
+
+def test_timer_without_progress_or_with_a_plain_callback():
+    calls = []
+    timer = _Timer(None)
+    assert timer.run("segment", lambda progress=None: progress, ) is None  # nothing injected
+    timer = _Timer(lambda d, done, total: calls.append((d, done, total)))  # a plain function: no events
+    timer.run("segment", lambda progress=None: progress("clustering", 1, 2))
+    i = STAGES.index("segment")
+    assert calls[1] == ("segment: clustering", i + 0.5, len(STAGES))
+
+
+# ----------------------------------------------------------------------------------------------------
+# the bar
+
+
+class FakeStderr(io.StringIO):
+    def __init__(self, tty):
+        super().__init__()
+        self.tty = tty
+
+    def isatty(self):
+        return self.tty
+
+
+def test_bar_is_silent_off_a_terminal_and_when_quiet(monkeypatch):
+    monkeypatch.setattr(sys, "stderr", FakeStderr(tty=False))
+    with progress.bar("x") as cb:
+        assert cb is None
+    assert sys.stderr.getvalue() == ""
+    monkeypatch.setattr(sys, "stderr", FakeStderr(tty=True))
+    assert progress.enabled()
+    progress.set_quiet(True)
+    try:
+        with progress.bar("x", stages=progress.PIPELINE_STAGES) as cb:
+            assert cb is None
+    finally:
+        progress.set_quiet(False)
+    assert sys.stderr.getvalue() == ""
+
+
+def test_bar_on_a_terminal_shows_the_stage_and_the_time_left():
+    from rich.console import Console
+
+    out = io.StringIO()
+    console = Console(file=out, force_terminal=True, width=120)
+    with progress.bar("analysing", stages=["load", "orient"], console=console) as cb:
+        assert cb is not None and cb.by_stage
+        timer = _Timer(cb)
+        timer.run("load", lambda p: types.SimpleNamespace(faces=np.zeros((1000, 3))), "f.ply")
+        timer.run("orient", lambda s, progress=None: progress("cleaning", 1, 2), object())
+        assert cb.estimate.faces == 1000
+        assert cb.remaining() == pytest.approx(0.0, abs=1e-9)
+        console.print(cb.text())
+    assert "analysing" in out.getvalue()
+
+
+def test_a_plain_bar_switches_to_the_cost_model_when_the_pipeline_reports_stages():
+    clock = Clock()
+    cb = progress.BarCallback("loading", clock=clock)
+    cb("reading", 1, 2)
+    assert not cb.by_stage
+    cb.stage("start", "review", faces=2_000_000)
+    assert cb.by_stage and cb.estimate.plan == list(progress.PIPELINE_STAGES[4:])
+    cb("review", 4, 10)
+    assert cb.text() == f"loading: review (1/{len(cb.estimate.plan)})"
+    cb("review: checking", 4.5, 10)
+    assert cb.text().endswith("- checking")
+    assert cb.remaining() > 0
