@@ -90,7 +90,7 @@ def figure_specs(state: Any, tilt=None) -> tuple[list[dict], list[str]]:
             return specimen_figure(spec.vertices_mm, spec.faces, seg.vertex_band, seg.axis, list(seg.boundaries),
                                    view_azimuth_deg=view, sway_azimuth_deg=sway_az,
                                    north_known=bool(getattr(spec, "north_known", True)), seed=_seed(result))
-        specs.append({"id": "specimen", "title": "The specimen and its bands", "raster": True, "build": views,
+        specs.append({"id": "specimen", "title": "The specimen and its bands", "raster": True, "tight": False, "build": views,
                       "caption": "The column straightened along its axis and seen across its sway plane. Top: "
                                  "the whole column in strips, coloured by band number with alternate bands darker (grey: outside any band). "
                                  "Middle: a close view of forty bands with their numbers, each band in one of seven "
@@ -257,11 +257,19 @@ def _review_rows(review: Mapping) -> list[tuple[str, str]]:
 
 
 def build_report(state: Any, folder=None, formats: Iterable[str] = FORMATS, progress=None):
-    """Write the requested outputs; return ``(paths, seconds)`` keyed by output name."""
+    """Write the requested outputs; return ``(paths, seconds)``.
+
+    ``seconds`` splits the time: ``figures`` (drawing and encoding them), ``html`` (the page), ``pdf``
+    (typesetting, wherever it ran), ``pdf_wait`` (what this process waited for the PDF after its own
+    work), ``csv``, ``ply`` and ``total``. With a PDF, a helper process (:mod:`bandgeo.report.typeset`)
+    loads WeasyPrint while the figures are drawn and typesets the page while the CSV and PLY files are
+    written; ``pdf_parallel`` is 1.0 when it did, 0.0 when this process typeset the page itself.
+    """
     folder, formats = _check(state, folder, formats)
     paths: dict[str, Path] = {}
     seconds: dict[str, float] = {}
-    steps = (2 if "csv" in formats else 0) + ("ply" in formats) + (("html" in formats or "pdf" in formats) * 3)
+    docs = "html" in formats or "pdf" in formats
+    steps = (2 if "csv" in formats else 0) + ("ply" in formats) + (docs * 3) + ("pdf" in formats)
     done = 0
 
     def tick(what):
@@ -270,6 +278,26 @@ def build_report(state: Any, folder=None, formats: Iterable[str] = FORMATS, prog
         _progress(progress, what, done, steps)
 
     t_start = time.perf_counter()
+    typesetter = None
+    if "pdf" in formats:
+        from .typeset import Typesetter
+
+        typesetter = Typesetter.start()
+    try:
+        pending = None
+        if docs:
+            pending = _documents(state, formats, seconds, tick, t_start, typesetter)
+        _exports(state, folder, formats, paths, seconds, tick)
+        if pending is not None:
+            _finish_documents(state, folder, formats, paths, seconds, tick, t_start, typesetter, pending)
+    finally:
+        if typesetter is not None:
+            typesetter.close()
+    seconds["total"] = time.perf_counter() - t_start
+    return paths, seconds
+
+
+def _exports(state, folder, formats, paths, seconds, tick):
     if "csv" in formats:
         t0 = time.perf_counter()
         from .exports import write_bands_csv, write_spectra_csv
@@ -287,17 +315,19 @@ def build_report(state: Any, folder=None, formats: Iterable[str] = FORMATS, prog
                                                        folder / "labelled_mesh.ply")
         seconds["ply"] = time.perf_counter() - t0
         tick("report: labelled_mesh.ply")
-    if "html" in formats or "pdf" in formats:
-        _documents(state, folder, formats, paths, seconds, tick, t_start)
-    return paths, seconds
 
 
-def _documents(state, folder, formats, paths, seconds, tick, t_start):
+def _pdf_title(ctx) -> str:
+    return f"Specimen {ctx['specimen_id']}: growth-band periodicity report"
+
+
+def _documents(state, formats, seconds, tick, t_start, typesetter):
+    """Figures, context and page; the page goes to the PDF helper when there is one."""
     import matplotlib
 
     from .html import figure_data_uri, render_html
 
-    t0 = time.perf_counter()
+    t0, c0 = time.perf_counter(), time.process_time()
     tilt = tilt_summary(state)
     specs, omitted = figure_specs(state, tilt)
     tick("report: content")
@@ -306,20 +336,47 @@ def _documents(state, folder, formats, paths, seconds, tick, t_start):
         for f in specs:
             fig = f["build"]()
             figs.append({"id": f["id"], "number": f["number"], "title": f["title"], "caption": f["caption"],
-                         "raster": f["raster"], "src": figure_data_uri(fig, raster=f["raster"], dpi=110 if f["raster"] else 150)})
-    seconds["figures"] = time.perf_counter() - t0
+                         "raster": f["raster"], "src": figure_data_uri(fig, raster=f["raster"], dpi=110 if f["raster"] else 150,
+                                                 tight=f.get("tight", True))})
+            fig.clear()                               # figures hold their artists until collected
+    seconds["figures"], seconds["figures_cpu"] = time.perf_counter() - t0, time.process_time() - c0
     tick("report: figures")
     t0 = time.perf_counter()
     ctx = report_context(state, figs, omitted, tilt, report_seconds=time.perf_counter() - t_start)
     page = render_html(ctx)
     seconds["html"] = time.perf_counter() - t0
+    sent = False
+    if "pdf" in formats and typesetter is not None:
+        sent = typesetter.submit(page, title=_pdf_title(ctx))
+    tick("report: page")
+    return {"ctx": ctx, "page": page, "sent": sent}
+
+
+def _finish_documents(state, folder, formats, paths, seconds, tick, t_start, typesetter, pending):
+    from .html import render_html
+
+    ctx, page = pending["ctx"], pending["page"]
     if "pdf" in formats:
-        from .pdf import write_pdf
+        from ..atomic import atomic_path
+        from .pdf import pdf_bytes
 
         t0 = time.perf_counter()
-        title = f"Specimen {ctx['specimen_id']}: growth-band periodicity report"
-        paths["report.pdf"] = write_pdf(page, folder / "report.pdf", title=title)
-        seconds["pdf"] = time.perf_counter() - t0
+        answer = typesetter.result() if pending["sent"] else None
+        seconds["pdf_wait"] = time.perf_counter() - t0
+        if answer is not None:
+            data = answer[0]
+            seconds.update(answer[1])
+            seconds["pdf_parallel"] = 1.0
+        else:                                         # no helper, or it failed: typeset here
+            t0, c0 = time.perf_counter(), time.process_time()
+            data = pdf_bytes(page, title=_pdf_title(ctx))
+            seconds["pdf"], seconds["pdf_cpu"] = time.perf_counter() - t0, time.process_time() - c0
+            seconds["pdf_parallel"] = 0.0
+        with atomic_path(folder / "report.pdf") as tmp:
+            with open(tmp, "wb") as fh:
+                fh.write(data)
+        paths["report.pdf"] = folder / "report.pdf"
+        tick("report: report.pdf")
         # the page written last knows the whole report time, the PDF's typesetting included
         ctx["provenance"]["stages"] = content.stage_rows(state.result, time.perf_counter() - t_start,
                                                          note="figures, page and PDF")

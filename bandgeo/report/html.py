@@ -19,11 +19,16 @@ def _env() -> jinja2.Environment:
     return _ENV
 
 
-def figure_data_uri(fig, raster: bool = False, dpi: int = 110) -> str:
-    """Encode a matplotlib figure as a ``data:`` URI (SVG with text as text, or PNG)."""
+def figure_data_uri(fig, raster: bool = False, dpi: int = 110, tight: bool = True) -> str:
+    """Encode a matplotlib figure as a ``data:`` URI (SVG with text as text, or PNG).
+
+    ``tight=False`` keeps the figure's own size for a PNG: a figure laid out with fixed margins needs no
+    cropping, and the tight box costs a whole extra drawing pass.
+    """
     buf = io.BytesIO()
     if raster:
-        fig.savefig(buf, format="png", dpi=dpi, bbox_inches="tight", pad_inches=0.08)
+        extra = {"bbox_inches": "tight", "pad_inches": 0.08} if tight else {}
+        fig.savefig(buf, format="png", dpi=dpi, **extra)
         mime = "image/png"
     else:
         import matplotlib

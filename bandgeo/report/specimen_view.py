@@ -26,6 +26,23 @@ CLOSE_BANDS = 40
 MAX_CLOSE_TRIANGLES = 8000
 
 
+def _cached_unroll(vertices: np.ndarray, axis):
+    """The unrolled coordinates of every vertex when an earlier stage already computed them for these
+    very objects (the series stage does, through :func:`bandgeo.unroll.unroll`'s cache), else None.
+
+    Looking is free; computing the whole mesh here would cost more than the subsample the figure needs.
+    """
+    from .. import unroll as _unroll_mod
+
+    for entry in list(getattr(_unroll_mod, "_cache", ())):
+        try:
+            if entry[0] is vertices and entry[1] is axis:
+                return entry[2]
+        except (IndexError, TypeError):
+            return None
+    return None
+
+
 def _straight_axis_s(vertices: np.ndarray, axis) -> np.ndarray:
     """Cheap height along the chord from the axis' first to last point (for choosing vertices)."""
     pts = np.asarray(axis.points_mm, float)
@@ -96,7 +113,12 @@ def specimen_figure(vertices_mm, faces, vertex_band, axis, boundaries, view_azim
     vb = np.asarray(vertex_band)
     rng = np.random.default_rng(seed)
     pick = np.sort(rng.choice(len(v), MAX_POINTS, replace=False)) if len(v) > MAX_POINTS else np.arange(len(v))
-    s, az, r = unroll_vertices(v[pick], axis)
+    whole = _cached_unroll(vertices_mm, axis)        # unrolled once per mesh and axis, by the series stage
+    if whole is not None and len(whole.s_mm) == len(v):
+        s, az, r = whole.s_mm[pick], whole.azimuth_deg[pick], whole.radius_mm[pick]
+    else:
+        whole = None
+        s, az, r = unroll_vertices(v[pick], axis)
     radius = float(np.median(r))
     side = r > 0.5 * radius
     lat, depth = _side_coords(az, r, view_azimuth_deg)
@@ -176,7 +198,10 @@ def specimen_figure(vertices_mm, faces, vertex_band, axis, boundaries, view_azim
     sv = _straight_axis_s(v, axis)
     margin = 0.3 * radius + 0.5 * (w1 - w0)          # chord height vs arc length on a curved axis
     near = np.flatnonzero((sv > w0 - margin) & (sv < w1 + margin))
-    vs, vaz, vr = unroll_vertices(v[near], axis)
+    if whole is not None:
+        vs, vaz, vr = whole.s_mm[near], whole.azimuth_deg[near], whole.radius_mm[near]
+    else:
+        vs, vaz, vr = unroll_vertices(v[near], axis)
     full_s = np.full(len(v), np.nan)
     full_s[near] = vs
     fmask = np.all(np.isfinite(full_s[f]), axis=1)
@@ -248,10 +273,9 @@ def specimen_figure(vertices_mm, faces, vertex_band, axis, boundaries, view_azim
         cb = fig.colorbar(m, cax=cax)
         cb.set_label("relief, mm", fontsize=7)
         cb.ax.tick_params(labelsize=6)
-        for h, _ in hb:
-            if w0 < h < w1:
-                axu.plot([h, h], [-200, -180], color="black", lw=0.9, clip_on=False)
-                axu.plot([h, h], [180, 200], color="black", lw=0.9, clip_on=False)
+        ticks_h = [h for h, _ in hb if w0 < h < w1]
+        for y0, y1 in ((-200, -180), (180, 200)):          # one collection per edge, not a line per tick
+            axu.vlines(ticks_h, y0, y1, color="black", lw=0.9, clip_on=False)
         axu.set_xlim(w0, w1)
         axu.set_ylim(-180, 180)
         axu.set_yticks([-180, -90, 0, 90, 180])

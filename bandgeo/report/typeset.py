@@ -1,0 +1,211 @@
+"""Typeset the PDF in a second process while this one draws the figures.
+
+WeasyPrint is pure Python for the most part: importing it and loading its fonts takes about a second,
+and typesetting the report another second or so. None of that needs the figures until the page is
+complete, so the report forks a helper at its start: the helper imports WeasyPrint and typesets a small
+page with the report's fonts (warm-up) while the parent draws the figures on the other core; the parent
+then sends the finished page and writes the CSV and PLY files while the helper typesets. The helper
+returns the PDF's bytes; the parent writes the file (atomically, like every output).
+
+Anything unusual (no ``fork`` on this platform, ``BANDGEO_REPORT_FORK=0`` in the environment, a helper
+that dies, answers with an error or takes longer than :data:`TIMEOUT_S`) falls back on typesetting in
+this process, which gives the same bytes or the same error as before.
+"""
+from __future__ import annotations
+
+import os
+import select
+import struct
+import sys
+import time
+
+#: Seconds the parent waits for the helper's PDF before typesetting it itself.
+TIMEOUT_S = 300.0
+
+#: A small page using the report's fonts and a text-bearing SVG, typeset once to warm WeasyPrint's
+#: font loading and CSS machinery before the real page arrives.
+WARM_HTML = """<!DOCTYPE html><html><head><meta charset="utf-8"><style>
+@page { size: A4; margin: 18mm 16mm 20mm 16mm;
+        @bottom-center { content: "page " counter(page) " of " counter(pages); font: 8pt "DejaVu Sans"; } }
+body { font: 9.5pt/1.4 "DejaVu Sans", sans-serif; } h2 { font-size: 13pt; } .mono { font-family: "DejaVu Sans Mono"; }
+table { border-collapse: collapse; width: 100%; } td { border-bottom: 1px solid #ccc; }
+</style></head><body><h2>warm-up</h2><p><b>bold</b> <i>italic</i> <span class="mono">mono 0123</span> ± ° ×10⁻³</p>
+<table><tr><td>key</td><td>value 1.0 mm</td></tr></table>
+<img style="width:50%" src="data:image/svg+xml;charset=utf-8,%3Csvg xmlns='http://www.w3.org/2000/svg'
+ width='100' height='40' viewBox='0 0 100 40'%3E%3Cpath d='M0 0 L100 40' stroke='black'/%3E%3Ctext x='5' y='20'
+ style='font: 8px %27DejaVu Sans%27'%3E10⁻² mm%3C/text%3E%3C/svg%3E"></body></html>"""
+
+
+def fork_allowed() -> bool:
+    """True where the helper process may be used (Linux ``fork``, not disabled by the environment)."""
+    return (hasattr(os, "fork") and sys.platform.startswith("linux")
+            and os.environ.get("BANDGEO_REPORT_FORK", "1").strip() not in ("0", "no", "false", ""))
+
+
+def _write_all(fd: int, data: bytes) -> None:
+    view = memoryview(data)
+    while view:
+        n = os.write(fd, view)
+        view = view[n:]
+
+
+def _read_exact(fd: int, n: int, deadline: float | None = None) -> bytes | None:
+    chunks, got = [], 0
+    while got < n:
+        if deadline is not None:
+            left = deadline - time.monotonic()
+            if left <= 0 or not select.select([fd], [], [], left)[0]:
+                return None
+        chunk = os.read(fd, min(n - got, 1 << 20))
+        if not chunk:
+            return None
+        chunks.append(chunk)
+        got += len(chunk)
+    return b"".join(chunks)
+
+
+def _frame(*parts: bytes) -> bytes:
+    return b"".join(struct.pack("<Q", len(p)) + p for p in parts)
+
+
+def _read_frame(fd: int, n_parts: int, deadline: float | None = None) -> list[bytes] | None:
+    out = []
+    for _ in range(n_parts):
+        head = _read_exact(fd, 8, deadline)
+        if head is None:
+            return None
+        body = _read_exact(fd, struct.unpack("<Q", head)[0], deadline)
+        if body is None:
+            return None
+        out.append(body)
+    return out
+
+
+def _child(r_page: int, w_pdf: int) -> None:
+    from .pdf import pdf_bytes
+
+    t0, c0 = time.perf_counter(), time.process_time()
+    try:
+        pdf_bytes(WARM_HTML)
+    except Exception:  # noqa: BLE001 - the warm-up is optional; the real page will show any problem
+        pass
+    warm, warm_cpu = time.perf_counter() - t0, time.process_time() - c0
+    parts = _read_frame(r_page, 2)
+    if parts is None:                       # the parent gave up (or died): nothing to do
+        return
+    title, page = parts[0].decode("utf-8"), parts[1].decode("utf-8")
+    t0, c0 = time.perf_counter(), time.process_time()
+    try:
+        data = pdf_bytes(page, title=title or None)
+    except Exception as exc:  # noqa: BLE001 - reported to the parent, which typesets itself
+        _write_all(w_pdf, _frame(b"E", f"{type(exc).__name__}: {exc}".encode("utf-8", "replace"), b""))
+        return
+    seconds = (f"{time.perf_counter() - t0:.6f} {warm:.6f} {time.process_time() - c0:.6f} "
+               f"{warm_cpu:.6f}").encode("ascii")
+    _write_all(w_pdf, _frame(b"K", seconds, data))
+
+
+class Typesetter:
+    """A forked helper that typesets one page into PDF bytes (see the module docstring).
+
+    ``Typesetter.start()`` returns None where forking is not allowed. Then ``submit(page, title)`` once,
+    ``result()`` for ``(pdf_bytes, seconds)`` or None if the helper failed
+    (the caller typesets itself), and always ``close()`` (also a context manager).
+    """
+
+    def __init__(self, pid: int, w_page: int, r_pdf: int):
+        self.pid, self._w_page, self._r_pdf = pid, w_page, r_pdf
+        self.error: str | None = None
+        self._sent = False
+
+    @classmethod
+    def start(cls) -> "Typesetter | None":
+        if not fork_allowed():
+            return None
+        try:
+            r_page, w_page = os.pipe()
+            r_pdf, w_pdf = os.pipe()
+        except OSError:
+            return None
+        try:
+            pid = os.fork()
+        except OSError:
+            for fd in (r_page, w_page, r_pdf, w_pdf):
+                os.close(fd)
+            return None
+        if pid == 0:                                    # the helper: never returns to the caller
+            code = 1
+            try:
+                os.close(w_page)
+                os.close(r_pdf)
+                _child(r_page, w_pdf)
+                code = 0
+            except BaseException:  # noqa: BLE001 - the parent notices the missing answer and typesets itself
+                code = 1
+            finally:
+                os._exit(code)
+        os.close(r_page)
+        os.close(w_pdf)
+        return cls(pid, w_page, r_pdf)
+
+    def submit(self, page: str, title: str | None = None) -> bool:
+        """Send the finished page; False if the helper is gone (the caller then typesets itself)."""
+        if self._sent or self._w_page < 0:
+            return False
+        self._sent = True
+        try:
+            _write_all(self._w_page, _frame((title or "").encode("utf-8"), page.encode("utf-8")))
+            return True
+        except OSError as exc:
+            self.error = f"the PDF helper process could not take the page ({exc})"
+            return False
+        finally:
+            os.close(self._w_page)
+            self._w_page = -1
+
+    def result(self, timeout: float = TIMEOUT_S):
+        """``(pdf_bytes, seconds)``, or None when the helper failed; ``seconds`` holds the helper's wall
+        and CPU seconds: ``pdf`` and ``pdf_cpu`` typesetting the page, ``pdf_warm`` and ``pdf_warm_cpu``
+        loading WeasyPrint and warming it up."""
+        if not self._sent or self._r_pdf < 0:
+            return None
+        try:
+            parts = _read_frame(self._r_pdf, 3, deadline=time.monotonic() + timeout)
+        except OSError as exc:
+            parts, self.error = None, f"reading from the PDF helper failed ({exc})"
+        if parts is None:
+            self.error = self.error or "the PDF helper process gave no answer"
+            return None
+        if parts[0] != b"K":
+            self.error = parts[1].decode("utf-8", "replace")
+            return None
+        values = [float(x) for x in parts[1].split()]
+        return parts[2], dict(zip(("pdf", "pdf_warm", "pdf_cpu", "pdf_warm_cpu"), values))
+
+    def close(self) -> None:
+        for attr in ("_w_page", "_r_pdf"):
+            fd = getattr(self, attr)
+            if fd >= 0:
+                try:
+                    os.close(fd)
+                except OSError:
+                    pass
+                setattr(self, attr, -1)
+        if self.pid:
+            try:
+                done, _ = os.waitpid(self.pid, os.WNOHANG)
+                if done == 0:
+                    import signal
+
+                    os.kill(self.pid, signal.SIGKILL)
+                    os.waitpid(self.pid, 0)
+            except (ChildProcessError, ProcessLookupError, OSError):
+                pass
+            self.pid = 0
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        self.close()
+        return False
