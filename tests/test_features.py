@@ -226,3 +226,41 @@ def test_bad_input_is_one_line_error():
     before = v.copy()
     compute_features(specimen(v, f), band_spacing_mm=0.5)
     assert np.array_equal(v, before)  # inputs are never modified
+
+
+def test_slabs_give_the_whole_mesh_numbers():
+    # processing in overlapping slabs along the axis (as for a 40 M-face scan) must give the numbers of
+    # the one-piece computation: same operators, margins wider than every diffusion step (construction)
+    v, f = grooved_column(length=10.0, spacing=0.5, noise=0.004, n_theta=160, seed=3)
+    # an open tube: boundary rings at both ends exercise the boundary fill and the margins
+    whole = compute_features(specimen(v, f))
+    sliced = compute_features(specimen(v, f), chunk_faces=len(f) // 5)
+    assert whole.info["processing"]["mode"] == "direct" and whole.info["processing"]["slabs"] == 1
+    proc = sliced.info["processing"]
+    assert proc["slabs"] == 5 and "slabs" in proc["note"] and proc["margin_mm"] > 0
+    assert sliced.info["diffusion_steps"] == whole.info["diffusion_steps"] and max(whole.info["diffusion_steps"]) > 1
+    np.testing.assert_array_equal(sliced.scales_mm, whole.scales_mm)
+    for name in ("mean", "gaussian", "shape_index", "k1", "k2", "curvedness", "normals"):
+        a, b = getattr(sliced, name), getattr(whole, name)
+        np.testing.assert_allclose(a, b, rtol=1e-9, atol=1e-9 * np.abs(b).max(), err_msg=name)
+    assert sliced.band_spacing_mm == pytest.approx(whole.band_spacing_mm, rel=1e-12)
+    assert sliced.noise_mm == pytest.approx(whole.noise_mm, rel=1e-9)
+    assert sliced.sampling_along_mm == whole.sampling_along_mm
+    with pytest.raises(ParameterError):
+        compute_features(specimen(v, f), chunk_faces=0)
+
+
+def test_derived_curvatures_are_computed_on_demand():
+    # k1, k2 and curvedness follow from H and K (k = H +- sqrt(H^2 - K); Koenderink & van Doorn 1992);
+    # given values are kept as given
+    H = np.array([[1.0, 0.5]])
+    K = np.array([[0.5, -1.0]])
+    feat = CurvatureFeatures(np.array([0.0, 1.0]), H, K)
+    d = np.sqrt(np.maximum(H * H - K, 0))
+    np.testing.assert_allclose(feat.k1, H + d)
+    np.testing.assert_allclose(feat.k2, H - d)
+    np.testing.assert_allclose(feat.curvedness, np.sqrt(0.5 * ((H + d) ** 2 + (H - d) ** 2)))
+    s, c = shape_index_curvedness(H + d, H - d)
+    np.testing.assert_allclose(feat.shape_index, s)
+    given = CurvatureFeatures(np.array([0.0, 1.0]), H, K, k1=np.zeros((1, 2)))
+    assert np.all(given.k1 == 0)

@@ -254,8 +254,13 @@ def _step(adj, x):
 
 
 # ---------------------------------------------------------------------------- main entry
+#: Meshes with more faces than this are processed in overlapping slabs along the axis (same numbers,
+#: bounded memory); see :func:`compute_features`.
+CHUNK_FACES = 4_000_000
+
+
 def compute_features(specimen, band_spacing_mm: Optional[float] = None, scales_mm=None,
-                     progress=None) -> CurvatureFeatures:
+                     progress=None, chunk_faces: Optional[int] = None) -> CurvatureFeatures:
     """Multi-scale curvature features of every vertex.
 
     Parameters
@@ -269,92 +274,60 @@ def compute_features(specimen, band_spacing_mm: Optional[float] = None, scales_m
         ``SCALE_FRACTIONS`` times the band spacing, each at least the sampling interval.
     progress : callable, optional
         ``progress(description, done, total)``.
+    chunk_faces : int, optional
+        Work in slabs along the growth axis of about this many faces each (default ``CHUNK_FACES``).
+        Each slab is taken with a margin wide enough that every computation reaching its vertices
+        (the one-ring operators, the noise residual, every diffusion step) sees the whole mesh it
+        would see in one piece, so the features are the same numbers (up to summation order); only
+        the memory held at once is bounded. ``info['processing']`` says how it was done.
 
     Returns
     -------
     CurvatureFeatures
     """
-    v, f = _mesh_arrays(specimen)
-    n = len(v)
-    report(progress, "curvature: one ring", 0, 4)
-    # the adjacency (float64: the diffusion steps multiply float64 fields) also gives the boundary
-    adj, boundary = adjacency_and_boundary(f, n, dtype=np.float64)
-    cache = _one_ring(v, f, boundary)
-    cache["vf"] = (v, f)
-    report(progress, "curvature: band spacing", 1, 4)
-    est_spacing, info = estimate_band_spacing(specimen, _cache=cache)
-    samp = cache["sampling_along_mm"]
-    if band_spacing_mm is not None:
-        if not np.isfinite(band_spacing_mm) or band_spacing_mm <= 0:
-            raise ParameterError(f"band_spacing_mm must be a positive number but got {band_spacing_mm!r}")
-        spacing, method = float(band_spacing_mm), "given"
-    elif np.isfinite(est_spacing):
-        spacing, method = float(est_spacing), info["method"]
-    else:
-        spacing, method = float(8.0 * samp), "fallback: 8 x sampling interval (no periodic relief found)"
-    if scales_mm is None:
-        scales = [0.0] + [max(fr * spacing, m * samp) for fr, m in SCALE_RULES]
-    else:
-        scales = [float(s) for s in np.atleast_1d(scales_mm)]
-        if any((not np.isfinite(s)) or s < 0 for s in scales):
-            raise ParameterError(f"scales_mm must be non-negative numbers but got {scales_mm!r}")
-    scales = np.asarray(sorted(scales), dtype=float)
+    from ._slabs import compute_in_slabs
 
-    report(progress, "curvature: scales", 2, 4)
-    axis = cache["axis"]
-    # axial spread of one step of the lazy random walk: mean over edges of (e . axis)^2 * d / (d + 1)
-    p_ax = v @ axis
-    deg = np.diff(adj.indptr).astype(np.float64)
-    rows = np.repeat(np.arange(n, dtype=np.int32 if n < 2**31 else np.int64), np.diff(adj.indptr))
-    ea2 = float(np.mean((p_ax[rows] - p_ax[adj.indices]) ** 2))
-    del rows, p_ax
-    dmean = float(deg.mean())
-    step_var = ea2 * dmean / (dmean + 1.0)
-    w_area = np.where(cache["valid"], cache["area"], 0.0)
-    # one lazy random-walk step is (A + I) x; the weighted fields and their weights walk together
-    # (three contiguous vectors: three one-vector products are faster than one three-column product)
-    cur = [cache["H0"] * w_area, cache["K0"] * w_area, w_area]
-    H = np.empty((n, len(scales)))
-    K = np.empty((n, len(scales)))
-    steps_done, steps_used = 0, []
-    for si, s in enumerate(scales):
-        target = 0 if s <= 0 else int(np.ceil(s * s / max(step_var, 1e-300)))
-        target = max(target, 1 if s > 0 else 0)
-        target = min(target, MAX_STEPS)
-        while steps_done < target:
-            cur = [_step(adj, x) for x in cur]
-            steps_done += 1
-        if steps_done == 0:
-            # one ring: boundary vertices take the mean of their valid neighbours
-            valid = cache["valid"]
-            if valid.all():
-                hv, kv = cache["H0"], cache["K0"]
-            else:
-                fill = [_step(adj, x) for x in cur]
-                wv = np.maximum(fill[2], 1e-300)
-                hv = np.where(valid, cache["H0"], fill[0] / wv)
-                kv = np.where(valid, cache["K0"], fill[1] / wv)
+    v, f = _mesh_arrays(specimen)
+    limit = CHUNK_FACES if chunk_faces is None else int(chunk_faces)
+    if limit < 1:
+        raise ParameterError(f"chunk_faces must be a positive number of faces but got {chunk_faces!r}")
+
+    def choose_scales(est_spacing, info, samp):
+        if band_spacing_mm is not None:
+            if not np.isfinite(band_spacing_mm) or band_spacing_mm <= 0:
+                raise ParameterError(f"band_spacing_mm must be a positive number but got {band_spacing_mm!r}")
+            spacing, method = float(band_spacing_mm), "given"
+        elif np.isfinite(est_spacing):
+            spacing, method = float(est_spacing), info["method"]
         else:
-            wv = np.maximum(cur[2], 1e-300)
-            hv = cur[0] / wv
-            kv = cur[1] / wv
-        H[:, si], K[:, si] = hv, kv
-        steps_used.append(steps_done)
-        report(progress, "curvature: scales", 2 + (si + 1) / len(scales), 4)
-    del cur
+            spacing, method = float(8.0 * samp), "fallback: 8 x sampling interval (no periodic relief found)"
+        if scales_mm is None:
+            scales = [0.0] + [max(fr * spacing, m * samp) for fr, m in SCALE_RULES]
+        else:
+            scales = [float(s) for s in np.atleast_1d(scales_mm)]
+            if any((not np.isfinite(s)) or s < 0 for s in scales):
+                raise ParameterError(f"scales_mm must be non-negative numbers but got {scales_mm!r}")
+        return np.asarray(sorted(scales), dtype=float), spacing, method
+
+    if band_spacing_mm is not None and (not np.isfinite(band_spacing_mm) or band_spacing_mm <= 0):
+        raise ParameterError(f"band_spacing_mm must be a positive number but got {band_spacing_mm!r}")
+    r = compute_in_slabs(v, f, choose_scales, limit, MAX_STEPS, progress)
+    scales, H, K = r["scales"], r["H"], r["K"]
     disc = np.sqrt(np.maximum(H * H - K, 0.0))
     si_ = (2.0 / np.pi) * np.arctan2(H, disc)  # shape index from 2H = k1 + k2, 2 disc = k1 - k2
     del disc
-    noise = noise_estimate(v, f, cache["normals"], cache["valid"], adj)
-    info = dict(info)
+    info = dict(r["info"])
     if scales_mm is None:
         info["groove_scale_index"] = GROOVE_SCALE_INDEX
     else:
         pos = np.flatnonzero(scales > 0)
         info["groove_scale_index"] = int(pos[0]) if len(pos) else 0
-    info.update({"diffusion_steps": steps_used, "step_spread_along_mm": float(np.sqrt(step_var)),
-                 "spacing_estimate_mm": None if not np.isfinite(est_spacing) else float(est_spacing)})
+    est_spacing = r["est_spacing"]
+    info.update({"diffusion_steps": r["steps"], "step_spread_along_mm": float(np.sqrt(r["step_var"])),
+                 "spacing_estimate_mm": None if not np.isfinite(est_spacing) else float(est_spacing),
+                 "processing": r["processing"]})
     report(progress, "curvature: done", 4, 4)
-    return CurvatureFeatures(scales_mm=scales, mean=H, gaussian=K, shape_index=si_, luminance=luminance_from_colors(getattr(specimen, "colors", None)),
-                             normals=cache["normals"], band_spacing_mm=spacing, band_spacing_method=method,
-                             sampling_along_mm=samp, noise_mm=noise, info=info)
+    return CurvatureFeatures(scales_mm=scales, mean=H, gaussian=K, shape_index=si_,
+                             luminance=luminance_from_colors(getattr(specimen, "colors", None)),
+                             normals=r["normals"], band_spacing_mm=r["spacing"], band_spacing_method=r["method"],
+                             sampling_along_mm=r["samp"], noise_mm=r["noise"], info=info)
