@@ -76,11 +76,15 @@ def first_of_equal_rows(rows: np.ndarray) -> np.ndarray:
     np.not_equal(hs[1:], hs[:-1], out=start[1:])
     if start.all():  # every hash distinct (the usual scan): no two rows are equal
         return np.arange(k, dtype=np.int64)
+    later = np.flatnonzero(~start)  # members of a run after its head: candidate duplicates
+    if len(later) * 100 < k:
+        # few shared hashes (chance collisions of the truncated hash on a large scan, or a few real
+        # duplicates): settle just those runs exactly instead of sweeping every row
+        return _settle_runs(rows, order, start, later)
     head = np.maximum.accumulate(np.where(start, np.arange(k), 0))
     rep_sorted = order[head]
     rep = np.empty(k, dtype=np.int64)
     rep[order] = rep_sorted
-    later = np.flatnonzero(~start)  # members of a run after its head: candidate duplicates
     bad = np.any(rows[order[later]] != rows[rep_sorted[later]], axis=1)
     if bad.any():  # hash collisions: settle the few affected runs exactly
         run_id = np.cumsum(start) - 1
@@ -89,6 +93,26 @@ def first_of_equal_rows(rows: np.ndarray) -> np.ndarray:
         first = np.full(inv.max() + 1, np.iinfo(np.int64).max, dtype=np.int64)
         np.minimum.at(first, inv.ravel(), sub)
         rep[sub] = first[inv.ravel()]
+    return rep
+
+
+def _settle_runs(rows, order, start, later):
+    """:func:`first_of_equal_rows` when only the runs holding ``later`` share a hash: identity for
+    every other row, exact grouping of the members of those runs."""
+    k = len(rows)
+    start_pos = np.flatnonzero(start)
+    runs = np.unique(np.searchsorted(start_pos, later, side="right") - 1)
+    lo = start_pos[runs]
+    hi = np.append(start_pos, k)[runs + 1]
+    lens = hi - lo
+    members = np.repeat(lo, lens) + (np.arange(int(lens.sum())) - np.repeat(np.cumsum(lens) - lens, lens))
+    sub = order[members]
+    _, inv = np.unique(rows[sub], axis=0, return_inverse=True)
+    inv = inv.ravel()
+    first = np.full(inv.max() + 1, np.iinfo(np.int64).max, dtype=np.int64)
+    np.minimum.at(first, inv, sub)
+    rep = np.arange(k, dtype=np.int64)
+    rep[sub] = first[inv]
     return rep
 
 
