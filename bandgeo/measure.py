@@ -175,22 +175,30 @@ def direction_angles(g: np.ndarray):
     return inc, az
 
 
-def _band_radii(v: np.ndarray, vband: np.ndarray, axis, nb: int) -> np.ndarray:
+def _band_radii(v: np.ndarray, vband: np.ndarray, axis, nb: int, vertices=None) -> np.ndarray:
     """Median wall radius of each band (from its labelled vertices; bands with none take the median of
-    the others), for the circumference samples of the thickness."""
-    _, radial = axis.project(v)
-    r = np.linalg.norm(radial, axis=1)
-    inside = vband >= 0
+    the others), for the circumference samples of the thickness.
+
+    The vertices' distances from the axis come from :func:`bandgeo.segment.model.vertex_projection`
+    (made once per mesh and axis; ``vertices`` is the specimen's own array, by which it is kept).
+    Vertices are grouped by band in order of height, where the bands are nearly sorted already."""
+    from .segment.model import vertex_projection
+
+    proj = vertex_projection(v if vertices is None else vertices, axis)
+    order, _ = proj.order()
+    lab = vband[order]
+    inside = lab >= 0
     radius = np.full(nb, np.nan)
     if inside.any():
-        order = np.argsort(vband[inside], kind="stable")
-        lab, rr = vband[inside][order], r[inside][order]
+        lab, rr = lab[inside], proj.radius_mm[order[inside]]
+        by_band = np.argsort(lab, kind="stable")
+        lab, rr = lab[by_band], rr[by_band]
         starts = np.searchsorted(lab, np.arange(nb))
         ends = np.searchsorted(lab, np.arange(nb), side="right")
         for k in range(nb):
             if ends[k] > starts[k]:
                 radius[k] = np.median(rr[starts[k]:ends[k]])
-    fallback = np.nanmedian(radius) if np.isfinite(radius).any() else float(np.median(r))
+    fallback = np.nanmedian(radius) if np.isfinite(radius).any() else float(np.median(proj.radius_mm))
     return np.where(np.isfinite(radius), radius, fallback)
 
 
@@ -248,34 +256,35 @@ def measure_bands(specimen, segmentation) -> BandTable:
             warnings.append("fewer than two boundaries: no bands to measure")
         return BandTable(np.zeros(0, int), empty, empty, empty, empty, empty, empty, empty, empty, [],
                          np.zeros((0, 3)), warnings, north_known, empty, empty)
-    radius = _band_radii(v, vband, axis, nb)
+    radius = _band_radii(v, vband, axis, nb, vertices=specimen.vertices_mm)
     flagged = (segmentation.resolution or {}).get("flagged", []) or []
     theta = 2 * np.pi * np.arange(N_AROUND) / N_AROUND
-    rows = {k: np.zeros(nb) for k in ("base", "top", "tax", "tmed", "tiqr", "conf")}
-    gdir = np.zeros((nb, 3))
-    flags = []
-    for k in range(nb):
-        b0, b1 = bs[k], bs[k + 1]
-        g = b0.normal + b1.normal
-        g /= np.linalg.norm(g)
-        gdir[k] = g
-        p0, _ = axis.at(b0.height_mm)
-        den = float(np.dot(g, b1.normal))
-        rows["tax"][k] = float(np.dot(b1.center_mm - p0, b1.normal)) / den
-        # points on the base ring at the wall
-        e1 = np.cross(b0.normal, [1.0, 0.0, 0.0] if abs(b0.normal[0]) < 0.9 else [0.0, 1.0, 0.0])
-        e1 /= np.linalg.norm(e1)
-        e2 = np.cross(b0.normal, e1)
-        # centre of the base ring where its plane crosses the axis
-        ring = p0 + radius[k] * (np.cos(theta)[:, None] * e1 + np.sin(theta)[:, None] * e2)
-        t = ((b1.center_mm - ring) @ b1.normal) / den
-        rows["tmed"][k] = float(np.median(t))
-        q75, q25 = np.percentile(t, [75, 25])
-        rows["tiqr"][k] = float(q75 - q25)
-        rows["base"][k], rows["top"][k] = b0.height_mm, b1.height_mm
-        rows["conf"][k] = min(b0.confidence, b1.confidence)
-        fl = _band_flags(b0, b1, flagged, rows["conf"][k], rows["tax"][k])
-        flags.append("; ".join(fl))
+    heights = np.array([b.height_mm for b in bs], dtype=float)
+    centres = np.array([b.center_mm for b in bs], dtype=float)
+    normals = np.array([b.normal for b in bs], dtype=float)
+    n0, n1, c1 = normals[:-1], normals[1:], centres[1:]
+    # growth direction: the mean of the two boundary normals
+    gdir = n0 + n1
+    gdir /= np.linalg.norm(gdir, axis=1, keepdims=True)
+    p0 = np.asarray(axis.at(heights[:-1])[0], dtype=float)  # where the base plane crosses the axis
+    if p0.shape != (nb, 3):  # a centreline that answers one height at a time
+        p0 = np.array([np.asarray(axis.at(h)[0], dtype=float).reshape(3) for h in heights[:-1]])
+    den = np.einsum("ij,ij->i", gdir, n1)
+    tax = np.einsum("ij,ij->i", c1 - p0, n1) / den
+    # points on the base ring at the wall, around the base plane's crossing of the axis
+    ref = np.where(np.abs(n0[:, :1]) < 0.9, np.array([[1.0, 0.0, 0.0]]), np.array([[0.0, 1.0, 0.0]]))
+    e1 = np.cross(n0, ref)
+    e1 /= np.linalg.norm(e1, axis=1, keepdims=True)
+    e2 = np.cross(n0, e1)
+    ring = p0[:, None, :] + radius[:, None, None] * (np.cos(theta)[None, :, None] * e1[:, None, :]
+                                                      + np.sin(theta)[None, :, None] * e2[:, None, :])
+    t = np.einsum("kij,kj->ki", c1[:, None, :] - ring, n1) / den[:, None]
+    q75, q25 = np.percentile(t, [75, 25], axis=1)
+    rows = {"base": heights[:-1].copy(), "top": heights[1:].copy(), "tax": tax,
+            "tmed": np.median(t, axis=1), "tiqr": q75 - q25,
+            "conf": np.minimum([b.confidence for b in bs[:-1]], [b.confidence for b in bs[1:]]).astype(float)}
+    flags = ["; ".join(_band_flags(bs[k], bs[k + 1], flagged, rows["conf"][k], rows["tax"][k]))
+             for k in range(nb)]
     inc, az = direction_angles(gdir)
     base_inc, base_az = direction_angles(np.array([b.normal for b in bs[:-1]], dtype=float))
     return BandTable(index=np.arange(nb), base_mm=rows["base"], top_mm=rows["top"],

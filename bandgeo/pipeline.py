@@ -367,6 +367,23 @@ class Rerunner:
             self.stage_seconds = {}
         self.specimen, self.segmentation, self.params = specimen, segmentation, params
 
+    def warm(self, review: Optional[dict] = None) -> None:
+        """Prepare what every save re-uses, ahead of the first (the review page calls this from a
+        background thread): the vertices' projection on the centreline and their bands for the automatic
+        boundaries and for ``review`` (default: the folder's review.json), the unrolled coordinates
+        of the relief profile, and the stages' first imports. Nothing is written."""
+        from .segment.model import assign_bands, vertex_projection
+        from .unroll import height_order, unroll
+
+        vertices, axis = self.specimen.vertices_mm, self.segmentation.axis
+        assign_bands(vertices, self.segmentation.boundaries, axis)
+        vertex_projection(vertices, axis).order()
+        if len(vertices) <= 2_000_000:  # the relief profile's own (not subsampled) vertices
+            height_order(unroll(vertices, axis))
+        if review is None:
+            review = self.folder.load_review()
+        downstream(self.specimen, self.segmentation, review, self.params)
+
     def __call__(self, folder=None, review: Optional[dict] = None, report: bool = True,
                  progress: Optional[Callable] = None, formats=ALL_FORMATS) -> Analysis:
         if folder is not None and Path(folder).resolve() != self.folder.path.resolve():

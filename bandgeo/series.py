@@ -234,30 +234,57 @@ def relief_profile(vertices_mm: np.ndarray, axis, spacing_mm: float, max_vertice
     """
     from scipy.ndimage import median_filter
 
-    from .unroll import unroll
+    from .unroll import height_order, unroll
 
     if len(vertices_mm) > max_vertices:
         v = np.asarray(vertices_mm, dtype=float)
         v = v[np.linspace(0, v.shape[0] - 1, max_vertices).astype(np.int64)]
     else:
         v = vertices_mm  # the same object as the report's: the unrolled coordinates are cached
-    s, _, radial = unroll(v, axis)
+    unrolled = unroll(v, axis)
+    s, radial = unrolled.s_mm, unrolled.radius_mm
     width = spacing_mm / 8.0
     edges = np.arange(s.min(), s.max() + width, width)
     if edges.size < 8:
         raise ValueError("the banded stretch is too short")
-    which = np.digitize(s, edges) - 1
-    order = np.argsort(which, kind="stable")
-    w_sorted = which[order]
-    r_sorted = radial[order]
-    starts = np.searchsorted(w_sorted, np.arange(edges.size - 1))
-    ends = np.searchsorted(w_sorted, np.arange(edges.size - 1), side="right")
-    med = np.array([np.median(r_sorted[a:b]) if b > a else np.nan for a, b in zip(starts, ends)])
+    # bin k holds edges[k] <= s < edges[k+1]: a slice of the vertices sorted by height (order kept)
+    order = height_order(unrolled)
+    cuts = np.searchsorted(s[order], edges, side="left")
+    med = _slice_medians(radial[order], cuts)
     ok = np.isfinite(med)
     centres = 0.5 * (edges[:-1] + edges[1:])
     med = np.interp(centres, centres[ok], med[ok])
     base = median_filter(med, size=max(3, int(24) | 1), mode="nearest")
     return centres, med - base
+
+
+def _slice_medians(values: np.ndarray, cuts: np.ndarray) -> np.ndarray:
+    """Median of ``values[cuts[k]:cuts[k+1]]`` for each k (NaN where empty), as ``np.median`` gives it.
+
+    Slices up to a few times the typical length are laid out as rows padded with +inf, sorted, and
+    their middle one or two values averaged; longer ones (the flat ends of a column) one at a time."""
+    counts = np.diff(cuts)
+    out = np.full(counts.size, np.nan)
+    if not counts.size or not counts.any():
+        return out
+    width = int(max(1, 4 * np.median(counts[counts > 0])))
+    long_ = np.flatnonzero(counts > width)
+    if not np.isfinite(values[cuts[0]:cuts[-1]]).all():  # np.median passes missing values on
+        long_ = np.flatnonzero(counts)
+    for k in long_:
+        out[k] = np.median(values[cuts[k]:cuts[k + 1]])
+    k = np.flatnonzero((counts > 0) & (counts <= width))
+    if k.size and long_.size < np.count_nonzero(counts):
+        n_k = counts[k]
+        rows = np.full((k.size, int(n_k.max())), np.inf)
+        row = np.repeat(np.arange(k.size), n_k)
+        starts = np.repeat(cuts[k], n_k)
+        col = np.arange(int(n_k.sum())) - np.repeat(np.cumsum(n_k) - n_k, n_k)
+        rows[row, col] = values[starts + col]
+        rows.sort(axis=1)
+        i = np.arange(k.size)
+        out[k] = (rows[i, (n_k - 1) // 2] + rows[i, n_k // 2]) / 2.0
+    return out
 
 
 def read_series_csv(path) -> BandSeries:

@@ -9,8 +9,9 @@ Used by the series (relief profile), the report (unrolled side surface) and the 
   north)`` in [0, 360) degrees, in a frame that follows the tangent (DEVELOPERS.md, "Frames");
 - *radius* ``radius_mm``: distance from the axis, perpendicular to the local tangent, in mm.
 
-:func:`unroll` caches its answer for the last few (vertices, centreline) pairs, so the report, the
-series and the review page unroll a mesh once per segmentation axis.
+:func:`unroll` caches its answer for the last few (vertices, centreline) pairs used, so the report, the
+series and the review page unroll a mesh once per segmentation axis; :func:`height_order` keeps the
+vertices' order along the height beside it (the relief profile bins by height after each review save).
 """
 from __future__ import annotations
 
@@ -93,8 +94,9 @@ def unroll(vertices, axis) -> Unrolled:
     The answer for the same two objects (by identity, arrays not changed in place) is cached.
     """
     with _lock:
-        for entry in _cache:
+        for i, entry in enumerate(_cache):
             if entry[0] is vertices and entry[1] is axis:
+                _cache.append(_cache.pop(i))  # most recently used last: kept longest
                 return entry[2]
     value = _compute(vertices, axis)
     with _lock:
@@ -103,6 +105,24 @@ def unroll(vertices, axis) -> Unrolled:
     return value
 
 
+_orders: list = []  # [(Unrolled, order)], most recent last
+
+
+def height_order(unrolled: Unrolled) -> np.ndarray:
+    """Indices that sort ``unrolled.s_mm`` (stable), kept for the last few unrolled meshes."""
+    with _lock:
+        for i, (u, order) in enumerate(_orders):
+            if u is unrolled:
+                _orders.append(_orders.pop(i))
+                return order
+    order = np.argsort(unrolled.s_mm, kind="stable")
+    with _lock:
+        _orders.append((unrolled, order))
+        del _orders[:-_CACHE_SIZE]
+    return order
+
+
 def clear_cache() -> None:
     with _lock:
         _cache.clear()
+        _orders.clear()

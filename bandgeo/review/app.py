@@ -46,6 +46,14 @@ class PipelineRerun:
         with self._lock:
             if self._runner is None and hasattr(pipeline, "Rerunner"):
                 self._runner = pipeline.Rerunner(folder)
+                fresh = True
+            else:
+                fresh = False
+        if fresh and hasattr(self._runner, "warm"):
+            try:  # projection, bands, unrolled mesh and one analysis, so that every save is incremental
+                self._runner.warm()
+            except BandgeoError:  # the save that needs it reports the problem
+                pass
         import importlib
 
         names = ("measure", "series", "spectral", "uncertainty", "astro") + (("report",) if self.report else ())
