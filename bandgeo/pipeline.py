@@ -157,7 +157,8 @@ def upstream(scan_path, params: RunParams, *, sheet=None, timer: Optional[_Timer
     auto = timer.run("segment", lambda: segmenter.fit(specimen, feats).segmentation_)
     params = params.with_stages(
         {"scales_mm": np.asarray(feats.scales_mm).tolist(), "band_spacing_mm": float(feats.band_spacing_mm),
-         "band_spacing_method": feats.band_spacing_method}, segmenter.get_params())
+         "band_spacing_method": feats.band_spacing_method,
+         "processing": (feats.info.get("processing") or {}).get("note")}, segmenter.get_params())
     return specimen, auto, params
 
 

@@ -1,4 +1,5 @@
 """Curvature features against analytic surfaces (do Carmo 1976) and against libigl on the same mesh."""
+import json
 from types import SimpleNamespace
 
 import numpy as np
@@ -264,3 +265,24 @@ def test_derived_curvatures_are_computed_on_demand():
     np.testing.assert_allclose(feat.shape_index, s)
     given = CurvatureFeatures(np.array([0.0, 1.0]), H, K, k1=np.zeros((1, 2)))
     assert np.all(given.k1 == 0)
+
+
+def test_result_says_how_the_features_were_computed(tmp_path, monkeypatch):
+    # a scan above the slab threshold is processed in slabs, and the run's parameters (run.json and
+    # result.json provenance) say so in words
+    import bandgeo.features as features_mod
+    from bandgeo.pipeline import upstream
+    from bandgeo.results import RunParams
+    from bandgeo.synth import SynthParams, simulate, write_specimen
+
+    params = SynthParams(sampling="isotropic", ring_vertices=40, rings_per_lamina=4.5, radius_mm=2.0,
+                         mean_thickness_mm=0.55, dome_height_mm=0.8, groove_depth_mm=0.07,
+                         groove_width_fraction=0.4, scanner_noise_mm=0.006, years=0.15, seed=3)
+    spec = simulate(params)
+    path = tmp_path / "small.ply"
+    write_specimen(spec, path)
+    up = json.loads((tmp_path / "small.truth.json").read_text())["frames"]["paleo_up_file"]
+    monkeypatch.setattr(features_mod, "CHUNK_FACES", len(spec.faces) // 3)
+    _, _, run = upstream(path, RunParams(scan=str(path), units="mm", up=up))
+    note = run.features["processing"]
+    assert "slabs along the growth axis" in note and "numbers of the whole mesh" in note

@@ -180,11 +180,12 @@ def compute_in_slabs(v, f, choose_scales, chunk_faces, max_steps, progress=None)
         report(progress, "curvature: scales", 2 + (k + 1) / slabs.count, 4)
     processing = {"mode": "direct" if slabs.count == 1 else "slabs along the growth axis",
                   "slabs": int(slabs.count), "chunk_faces": int(chunk_faces)}
+    processing["note"] = "the whole mesh at once"
     if slabs.count > 1:
         processing["margin_mm"] = float(margin2)
-        processing["note"] = (f"features computed in {slabs.count} overlapping slabs along the growth axis "
-                              f"(margin {margin2:.3g} mm, wider than every diffusion step's reach), so "
-                              "the numbers are those of the whole mesh; only the memory held at once differs")
+        processing["note"] = (f"in {slabs.count} overlapping slabs along the growth axis of about "
+                              f"{int(chunk_faces):,} faces each (margin {margin2:.3g} mm, wider than every "
+                              "diffusion step's reach): the numbers of the whole mesh, with bounded memory")
     return {"scales": scales, "H": H, "K": K, "normals": normals, "spacing": spacing, "method": method,
             "samp": samp, "noise": noise, "info": info, "est_spacing": est_spacing, "steps": targets,
             "step_var": step_var, "processing": processing}
