@@ -111,8 +111,9 @@ def child_make(faces: float, folder: Path) -> None:
 
 
 class _StagePeaks:
-    """Progress callback that notes the current stage, and a thread that samples this process's RSS
-    every 0.1 s into the stage's peak (psutil)."""
+    """Progress callback that notes the current stage and its CPU seconds (this process, all threads:
+    a steadier figure than wall seconds on a loaded machine), and a thread that samples this process's
+    RSS every 0.1 s into the stage's peak (psutil)."""
 
     def __init__(self):
         import psutil
@@ -120,13 +121,22 @@ class _StagePeaks:
         self.proc = psutil.Process()
         self.stage = "start"
         self.peaks: dict[str, float] = {}
+        self.cpu: dict[str, float] = {}
+        self._cpu0 = None
         self.stop = threading.Event()
         self.thread = threading.Thread(target=self._sample, daemon=True)
 
     def __call__(self, description, done, total):
-        name = str(description).split(":")[0].split()[0]
-        if name in STAGES:
-            self.stage = name
+        text = str(description)
+        name = text.split(":")[0].split()[0]
+        if name not in STAGES:
+            return
+        self.stage = name
+        if text == name:  # the stage timer's start report
+            self._cpu0 = _cpu_seconds()
+        elif text == f"{name} done" and self._cpu0 is not None:
+            self.cpu[name] = self.cpu.get(name, 0.0) + _cpu_seconds() - self._cpu0
+            self._cpu0 = None
 
     def _sample(self):
         while not self.stop.wait(0.1):
@@ -158,7 +168,7 @@ def child_pipeline(scan: Path, out: Path) -> None:
     result = analysis.result
     dpy = result.get("days_per_year") or {}
     _emit({"wall": wall, "cpu": cpu, "import_s": import_s, "stages": dict(analysis.stage_seconds),
-           "peak_gb": _peak_rss_gb(), "stage_peak_gb": peaks.peaks, "threads": _threads(),
+           "peak_gb": _peak_rss_gb(), "stage_peak_gb": peaks.peaks, "stage_cpu": peaks.cpu, "threads": _threads(),
            "faces_kept": int(len(analysis.specimen.faces)), "bands": len(analysis.segmentation.boundaries),
            "days_per_year": dpy.get("estimate"), "load_before": load0, "load_after": os.getloadavg()[0]})
 
@@ -201,18 +211,19 @@ def child_anchors(scan: Path) -> None:
     import numpy as np
     import open3d as o3d
 
-    start = time.perf_counter()
+    start, cpu0 = time.perf_counter(), _cpu_seconds()
     mesh = o3d.io.read_triangle_mesh(str(scan))
-    o3d_s = time.perf_counter() - start
+    o3d_s, o3d_cpu = time.perf_counter() - start, _cpu_seconds() - cpu0
     v = np.ascontiguousarray(np.asarray(mesh.vertices, dtype=np.float64))
     f = np.ascontiguousarray(np.asarray(mesh.triangles, dtype=np.int64))
     del mesh
     import igl
 
-    start = time.perf_counter()
+    start, cpu0 = time.perf_counter(), _cpu_seconds()
     igl.principal_curvature(v, f, 2)
-    igl_s = time.perf_counter() - start
-    _emit({"open3d_read": o3d_s, "igl_curvature": igl_s, "faces": int(len(f)), "peak_gb": _peak_rss_gb(),
+    igl_s, igl_cpu = time.perf_counter() - start, _cpu_seconds() - cpu0
+    _emit({"open3d_read": o3d_s, "igl_curvature": igl_s, "open3d_cpu": o3d_cpu, "igl_cpu": igl_cpu,
+           "load": os.getloadavg()[0], "faces": int(len(f)), "peak_gb": _peak_rss_gb(),
            "threads": _threads()})
 
 
@@ -278,6 +289,7 @@ def summarise(size_m: float, runs: list[dict]) -> dict:
     out["other"] = _median([p["wall"] - sum(v for k, v in p["stages"].items() if k in STAGES) for p in pipe])
     out["cpu"] = _median([p["cpu"] for p in pipe])
     out["peak_gb"] = max(p["peak_gb"] for p in pipe)
+    out["stage_cpu"] = {s: _median([p.get("stage_cpu", {}).get(s) for p in pipe]) for s in STAGES}
     out["stage_peak_gb"] = {s: max((p["stage_peak_gb"].get(s, 0.0) for p in pipe), default=0.0) for s in STAGES}
     out["threads"] = pipe[-1]["threads"]
     out["faces_kept"] = pipe[-1]["faces_kept"]
@@ -290,6 +302,12 @@ def summarise(size_m: float, runs: list[dict]) -> dict:
         out["anchors_peak_gb"] = max(a["peak_gb"] for a in anchors)
         out["ratio_igl"] = out["total"] / out["igl_curvature"]
         out["ratio_open3d"] = out["total"] / out["open3d_read"]
+        if all("igl_cpu" in a for a in anchors):
+            out["igl_cpu"] = _median([a["igl_cpu"] for a in anchors])
+            out["ratio_igl_cpu"] = out["cpu"] / out["igl_cpu"]
+            # each run's analyze against the anchor call right after it (the machine's load drifts)
+            out["ratio_igl_paired"] = _median([r["pipeline"]["wall"] / r["anchors"]["igl_curvature"] for r in runs
+                                               if "failed" not in r["pipeline"] and "failed" not in r.get("anchors", {"failed": 1})])
     if review:
         for key in ("open_s", "warm_s", "figures_s", "total_s"):
             out[f"review_{key}"] = _median([r[key] for r in review])
@@ -320,12 +338,17 @@ def table(results: list[dict], markdown: bool = False) -> str:
     add("saving inputs, swap, other (s)", lambda r: r.get("other"))
     add("TOTAL analyze wall (s)", lambda r: r.get("total"), "{:.1f}", "total")
     add("CPU user+sys (s)", lambda r: r.get("cpu"), "{:.1f}")
+    for stage in STAGES:
+        add(f"  {stage} CPU (s)", lambda r, s=stage: (r.get("stage_cpu") or {}).get(s), "{:.2f}")
     add("peak RSS analyze (GB)", lambda r: r.get("peak_gb"), "{:.2f}", "peak_gb")
     add("  largest stage peak (GB)", lambda r: max((r.get("stage_peak_gb") or {"": None}).values(), default=None)
         if r.get("stage_peak_gb") else None, "{:.2f}")
     add("open3d read_triangle_mesh (s)", lambda r: r.get("open3d_read"), "{:.3f}")
     add("libigl principal_curvature (s)", lambda r: r.get("igl_curvature"))
+    add("libigl principal_curvature CPU (s)", lambda r: r.get("igl_cpu"))
     add("total / libigl call", lambda r: r.get("ratio_igl"), "{:.2f}", "ratio_igl")
+    add("  same, run by run (median)", lambda r: r.get("ratio_igl_paired"), "{:.2f}", "ratio_igl")
+    add("  CPU: analyze / libigl call", lambda r: r.get("ratio_igl_cpu"), "{:.2f}", "ratio_igl")
     add("total / open3d read", lambda r: r.get("ratio_open3d"), "{:.0f}")
     add("review save -> new figures (s)", lambda r: r.get("review_figures_s"), "{:.2f}", "review")
     add("review save -> report rewritten (s)", lambda r: r.get("review_total_s"), "{:.2f}", "review")
