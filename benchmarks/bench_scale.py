@@ -223,10 +223,30 @@ def _run_child(scan: Path, up) -> dict:
     return json.loads(res.stdout.strip().splitlines()[-1])
 
 
+def _tree_rss(proc) -> int:
+    """Resident bytes of a process and its children (a PDF renderer may run beside it)."""
+    import psutil
+
+    total = 0
+    try:
+        for p in [proc] + proc.children(recursive=True):
+            try:
+                total += p.memory_info().rss
+            except psutil.Error:
+                pass
+    except psutil.Error:
+        pass
+    return total
+
+
 def _run_analyze(scan: Path, up) -> dict:
-    """Whole `bandgeo analyze` in a child: wall, CPU and peak RSS (getrusage of the children)."""
+    """Whole `bandgeo analyze` in a child: wall, CPU, peak RSS of its process tree (sampled every 0.2 s,
+    and getrusage), and the peak within each stage (stage boundaries from result.json's stage seconds,
+    counted back from the end of the run, so approximate)."""
     import resource
     import tempfile
+
+    import psutil
 
     env = dict(os.environ)
     env.setdefault("OMP_NUM_THREADS", "2")
@@ -237,21 +257,38 @@ def _run_analyze(scan: Path, up) -> dict:
             cmd += ["--up", ",".join(f"{x:.17g}" for x in up)]
         before = resource.getrusage(resource.RUSAGE_CHILDREN)
         t0 = time.perf_counter()
-        res = subprocess.run(cmd, capture_output=True, text=True, env=env)
+        proc = subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env)
+        ps = psutil.Process(proc.pid)
+        timeline = []
+        while proc.poll() is None:
+            timeline.append((time.perf_counter() - t0, _tree_rss(ps)))
+            time.sleep(0.2)
+        out, err = proc.communicate()
         wall = time.perf_counter() - t0
         after = resource.getrusage(resource.RUSAGE_CHILDREN)
-        result = {}
+        result, stage_peaks = {}, {}
         rj = Path(tmp) / "out" / "result.json"
         if rj.exists():
             doc = json.loads(rj.read_text())
-            result = {"bands": (doc.get("bands") or {}).get("count"),
-                      "stage_seconds": (doc.get("provenance") or {}).get("stage_seconds"),
-                      "features": ((doc.get("provenance") or {}).get("parameters") or {}).get("features"),
+            prov = doc.get("provenance") or {}
+            seconds = prov.get("stage_seconds") or {}
+            result = {"bands": (doc.get("bands") or {}).get("count"), "stage_seconds": seconds,
+                      "features": (prov.get("parameters") or {}).get("features"),
                       "warnings": doc.get("warnings")}
-    return {"exit": res.returncode, "wall_s": wall,
+            # stages ran back to back and ended at most a moment before the process did
+            end = timeline[-1][0] if timeline else wall
+            spans, t_end = {}, end
+            for name in reversed(list(seconds)):
+                spans[name] = (t_end - seconds[name], t_end)
+                t_end -= seconds[name]
+            for name, (a, b) in spans.items():
+                inside = [r for t, r in timeline if a - 0.2 <= t <= b + 0.2]
+                stage_peaks[name] = max(inside) / 1e9 if inside else None
+    return {"exit": proc.returncode, "wall_s": wall,
             "cpu_s": (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime),
-            "peak_rss_gb": after.ru_maxrss / 1e6, "result": result,
-            "stderr_tail": res.stderr.strip().splitlines()[-2:]}
+            "peak_rss_gb": max([after.ru_maxrss / 1e6] + [r / 1e9 for _, r in timeline]),
+            "stage_peak_rss_gb": stage_peaks, "result": result, "stdout_tail": out.strip().splitlines()[-3:],
+            "stderr_tail": err.strip().splitlines()[-2:]}
 
 
 def main(argv=None) -> int:
@@ -296,8 +333,13 @@ def main(argv=None) -> int:
         if "analyze" in row:
             a = row["analyze"]
             print(f"{'':>10}   whole analyze: exit {a['exit']}, {a['wall_s']:.1f} s wall, {a['cpu_s']:.1f} s CPU, "
-                  f"peak {a['peak_rss_gb']:.2f} GB; bands {a['result'].get('bands')}; "
-                  f"stages {a['result'].get('stage_seconds')}")
+                  f"peak {a['peak_rss_gb']:.2f} GB; bands {a['result'].get('bands')}")
+            peaks = a.get("stage_peak_rss_gb") or {}
+            for name, sec in (a["result"].get("stage_seconds") or {}).items():
+                pk = peaks.get(name)
+                print(f"{'':>12} {name:<12} {sec:7.2f} s  peak {pk if pk is None else round(pk, 2)} GB")
+            if (a["result"].get("features") or {}).get("processing"):
+                print(f"{'':>12} features: {a['result']['features']['processing']}")
     if args.json:
         Path(args.json).write_text(json.dumps(rows, indent=1))
     return 0
