@@ -286,3 +286,16 @@ def test_result_says_how_the_features_were_computed(tmp_path, monkeypatch):
     _, _, run = upstream(path, RunParams(scan=str(path), units="mm", up=up))
     note = run.features["processing"]
     assert "slabs along the growth axis" in note and "numbers of the whole mesh" in note
+
+
+def test_many_diffusion_steps_stay_finite():
+    # a scale far above the sampling runs the most diffusion steps (MAX_STEPS); the running sums must
+    # not overflow, and the coarse mean curvature of a cylinder stays H = 1/(2r) (do Carmo 1976)
+    from bandgeo.features import MAX_STEPS
+
+    r = 3.0
+    v, f, U, V = grid_surface(lambda U, V: np.stack([r * np.cos(U), r * np.sin(U), 20 * V], -1), 90, 60)
+    feat = compute_features(specimen(v, f), scales_mm=[0.0, 100.0])
+    assert feat.info["diffusion_steps"][-1] == MAX_STEPS
+    assert np.all(np.isfinite(feat.mean)) and np.all(np.isfinite(feat.gaussian))
+    assert np.median(feat.mean[:, 1]) == pytest.approx(1 / (2 * r), rel=0.02)

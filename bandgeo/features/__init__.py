@@ -14,7 +14,6 @@ from dataclasses import dataclass, field
 from typing import Optional
 
 import numpy as np
-import scipy.sparse as sp
 
 from ..errors import InputError, ParameterError
 from ..progress import report
@@ -244,13 +243,6 @@ def noise_estimate(v, f, normals, valid, adj=None) -> float:
     mad = np.median(np.abs((r - r_s) - np.median(r - r_s)))
     dmed = float(np.median(deg[valid]))
     return float(1.4826 * mad / np.sqrt(1.0 + 1.0 / max(dmed, 1.0)))
-
-
-def _step(adj, x):
-    """One lazy random-walk step (A + I) x of a vector."""
-    out = adj @ x
-    out += x
-    return out
 
 
 # ---------------------------------------------------------------------------- main entry
