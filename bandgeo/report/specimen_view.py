@@ -204,8 +204,12 @@ def specimen_figure(vertices_mm, faces, vertex_band, axis, boundaries, view_azim
         vs, vaz, vr = unroll_vertices(v[near], axis)
     full_s = np.full(len(v), np.nan)
     full_s[near] = vs
-    fmask = np.all(np.isfinite(full_s[f]), axis=1)
-    fsel = f[fmask]
+    # faces with all three corners near the window: first those whose first corner is (one gather of
+    # the first column instead of all three over every face), then the other two on those few
+    is_near = np.zeros(len(v), bool)
+    is_near[near] = True
+    cand = f[is_near[f[:, 0]]]
+    fsel = cand[is_near[cand[:, 1]] & is_near[cand[:, 2]]]
     fs = full_s[fsel]
     keep = (fs.max(1) > w0) & (fs.min(1) < w1)
     fsel, fs = fsel[keep], fs[keep]

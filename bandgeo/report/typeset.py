@@ -163,14 +163,15 @@ class Typesetter:
             os.close(self._w_page)
             self._w_page = -1
 
-    def result(self, timeout: float = TIMEOUT_S):
+    def result(self, timeout: float | None = None):
         """``(pdf_bytes, seconds)``, or None when the helper failed; ``seconds`` holds the helper's wall
         and CPU seconds: ``pdf`` and ``pdf_cpu`` typesetting the page, ``pdf_warm`` and ``pdf_warm_cpu``
         loading WeasyPrint and warming it up."""
         if not self._sent or self._r_pdf < 0:
             return None
         try:
-            parts = _read_frame(self._r_pdf, 3, deadline=time.monotonic() + timeout)
+            wait = TIMEOUT_S if timeout is None else float(timeout)
+            parts = _read_frame(self._r_pdf, 3, deadline=time.monotonic() + wait)
         except OSError as exc:
             parts, self.error = None, f"reading from the PDF helper failed ({exc})"
         if parts is None:
