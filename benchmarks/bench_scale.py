@@ -196,9 +196,8 @@ def child(scan: str, up) -> dict:
     from bandgeo.scan import load_scan, prepare
 
     stages: dict = {}
-    sc = _stage("load", lambda: load_scan(scan), stages)
-    spec = _stage("orient", lambda: prepare(sc, units="mm", up=up), stages)
-    del sc
+    box = [_stage("load", lambda: load_scan(scan), stages)]
+    spec = _stage("orient", lambda: prepare(box.pop(), units="mm", up=up), stages)  # the scan is dropped after
     feats = _stage("features", lambda: compute_features(spec), stages)
     try:
         from threadpoolctl import threadpool_info
@@ -239,7 +238,7 @@ def _tree_rss(proc) -> int:
     return total
 
 
-def _run_analyze(scan: Path, up) -> dict:
+def _run_analyze(scan: Path, up, rss_limit_gb: float = 15.5, time_limit_s: float = 1500.0) -> dict:
     """Whole `bandgeo analyze` in a child: wall, CPU, peak RSS of its process tree (sampled every 0.2 s,
     and getrusage), and the peak within each stage (stage boundaries from result.json's stage seconds,
     counted back from the end of the run, so approximate)."""
@@ -259,9 +258,19 @@ def _run_analyze(scan: Path, up) -> dict:
         t0 = time.perf_counter()
         proc = subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env)
         ps = psutil.Process(proc.pid)
-        timeline = []
+        timeline, killed = [], None
         while proc.poll() is None:
-            timeline.append((time.perf_counter() - t0, _tree_rss(ps)))
+            now, rss = time.perf_counter() - t0, _tree_rss(ps)
+            timeline.append((now, rss))
+            if rss > rss_limit_gb * 1e9 or now > time_limit_s:  # a shared machine: stop, and say so
+                killed = f"stopped at {now:.0f} s with {rss / 1e9:.1f} GB resident (limits {rss_limit_gb:g} GB, " \
+                         f"{time_limit_s:g} s)"
+                for p in ps.children(recursive=True) + [ps]:
+                    try:
+                        p.kill()
+                    except psutil.Error:
+                        pass
+                break
             time.sleep(0.2)
         out, err = proc.communicate()
         wall = time.perf_counter() - t0
@@ -284,7 +293,8 @@ def _run_analyze(scan: Path, up) -> dict:
             for name, (a, b) in spans.items():
                 inside = [r for t, r in timeline if a - 0.2 <= t <= b + 0.2]
                 stage_peaks[name] = max(inside) / 1e9 if inside else None
-    return {"exit": proc.returncode, "wall_s": wall,
+    return {"exit": proc.returncode, "killed": killed, "wall_s": wall,
+            "rss_timeline": [(round(t, 1), round(r / 1e9, 3)) for t, r in timeline[::5]],
             "cpu_s": (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime),
             "peak_rss_gb": max([after.ru_maxrss / 1e6] + [r / 1e9 for _, r in timeline]),
             "stage_peak_rss_gb": stage_peaks, "result": result, "stdout_tail": out.strip().splitlines()[-3:],
@@ -298,6 +308,9 @@ def main(argv=None) -> int:
     ap.add_argument("--mesh-dir", default="/tmp/bandgeo-scale-meshes", help="where made scans are kept")
     ap.add_argument("--repeat", type=int, default=1)
     ap.add_argument("--analyze", action="store_true", help="also time the whole `bandgeo analyze` once")
+    ap.add_argument("--analyze-only", action="store_true",
+                    help="only the whole `bandgeo analyze` (its stage seconds and per-stage memory peaks)")
+    ap.add_argument("--rss-limit-gb", type=float, default=15.5, help="stop an analyze above this (default 15.5)")
     ap.add_argument("--json", help="write the figures here")
     ap.add_argument("--child", help=argparse.SUPPRESS)
     ap.add_argument("--up", help=argparse.SUPPRESS)
@@ -308,6 +321,25 @@ def main(argv=None) -> int:
     scans = [Path(s) for s in args.scan] if args.scan else \
         [mesh_for(float(x), Path(args.mesh_dir)) for x in args.faces.split(",")]
     rows = []
+    if args.analyze_only:
+        for scan in scans:
+            a = _run_analyze(scan, _up_of(scan), args.rss_limit_gb)
+            rows.append({"scan": str(scan), "analyze": a})
+            print(f"{scan}: whole analyze exit {a['exit']}{' (' + a['killed'] + ')' if a['killed'] else ''}, "
+                  f"{a['wall_s']:.1f} s wall, {a['cpu_s']:.1f} s CPU, peak {a['peak_rss_gb']:.2f} GB; "
+                  f"bands {a['result'].get('bands')}")
+            peaks = a.get("stage_peak_rss_gb") or {}
+            for name, sec in (a["result"].get("stage_seconds") or {}).items():
+                pk = peaks.get(name)
+                print(f"    {name:<12} {sec:7.2f} s  peak {pk if pk is None else round(pk, 2)} GB")
+            feats = a["result"].get("features") or {}
+            if feats.get("processing"):
+                print(f"    features: {feats['processing']}")
+            for w in a["result"].get("warnings") or []:
+                print(f"    warning: {w}")
+        if args.json:
+            Path(args.json).write_text(json.dumps(rows, indent=1))
+        return 0
     for scan in scans:
         up = _up_of(scan)
         runs = [_run_child(scan, up) for _ in range(max(1, args.repeat))]
@@ -317,7 +349,7 @@ def main(argv=None) -> int:
                        for k in ("wall_s", "cpu_s", "peak_rss_gb")}
         row["peak_rss_gb"] = max(r["peak_rss_gb"] for r in runs)
         if args.analyze:
-            row["analyze"] = _run_analyze(scan, up)
+            row["analyze"] = _run_analyze(scan, up, args.rss_limit_gb)
         rows.append(row)
     print(f"bench_scale: medians of {max(1, args.repeat)} run(s) per size; OMP_NUM_THREADS="
           f"{os.environ.get('OMP_NUM_THREADS', '2 (set here)')}; threads seen: {rows[0]['runs'][0]['threads']}")
