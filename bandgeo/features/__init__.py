@@ -305,9 +305,13 @@ def compute_features(specimen, band_spacing_mm: Optional[float] = None, scales_m
         raise ParameterError(f"band_spacing_mm must be a positive number but got {band_spacing_mm!r}")
     r = compute_in_slabs(v, f, choose_scales, limit, MAX_STEPS, progress)
     scales, H, K = r["scales"], r["H"], r["K"]
-    disc = np.sqrt(np.maximum(H * H - K, 0.0))
-    si_ = (2.0 / np.pi) * np.arctan2(H, disc)  # shape index from 2H = k1 + k2, 2 disc = k1 - k2
-    del disc
+    # shape index from 2H = k1 + k2 and 2 sqrt(H^2 - K) = k1 - k2, in place (one (n, k) temporary)
+    si_ = np.multiply(H, H)
+    si_ -= K
+    np.maximum(si_, 0.0, out=si_)
+    np.sqrt(si_, out=si_)
+    np.arctan2(H, si_, out=si_)
+    si_ *= 2.0 / np.pi
     info = dict(r["info"])
     if scales_mm is None:
         info["groove_scale_index"] = GROOVE_SCALE_INDEX
