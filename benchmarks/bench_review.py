@@ -94,6 +94,8 @@ def main(argv=None) -> int:
     ap.add_argument("--up", help="way-up X,Y,Z in the scan frame")
     ap.add_argument("--rounds", type=int, default=3, help="rounds of the four edits (one save each)")
     ap.add_argument("--no-report", action="store_true", help="save the figures only (no report after)")
+    ap.add_argument("--in-process", action="store_true",
+                    help="re-run in the server's own process (a thread), not in its worker process")
     ap.add_argument("--keep", help="work in this folder (kept) instead of a temporary one")
     args = ap.parse_args(argv)
 
@@ -101,7 +103,7 @@ def main(argv=None) -> int:
     from threadpoolctl import threadpool_info
 
     from bandgeo import pipeline
-    from bandgeo.review.app import PipelineRerun
+    from bandgeo.review.app import PipelineRerun, ProcessRerun
     from bandgeo.review.server import serve
 
     tmp = tempfile.TemporaryDirectory(prefix="bench-review-")
@@ -127,7 +129,7 @@ def main(argv=None) -> int:
         pipeline.analyze(scan, folder, units=units, up=up, report=not args.no_report)
         print(f"analyze (once): {time.perf_counter() - t:.1f} s")
 
-    rerun = PipelineRerun(report=not args.no_report)
+    rerun = (PipelineRerun if args.in_process else ProcessRerun)(report=not args.no_report)
     figures_at, analyses = [], []
 
     class TimedRerun:
@@ -135,6 +137,9 @@ def main(argv=None) -> int:
 
         def warm(self, folder_):
             rerun.warm(folder_)
+
+        def close(self, wait=5.0):
+            getattr(rerun, "close", lambda wait: None)(wait)
 
         def __call__(self, folder_, progress=None, partial=None):
             def on_partial(analysis):
@@ -147,13 +152,21 @@ def main(argv=None) -> int:
     t = time.perf_counter()
     server = serve(folder, open_browser=False, rerun=TimedRerun())
     server.warm_thread.join()  # the server prepares the page data and the re-run's inputs
+    if hasattr(rerun, "wait_ready"):
+        rerun.wait_ready()
     print(f"review server ready (inputs loaded, page data made): {time.perf_counter() - t:.1f} s")
     client = Client(server)
     state = client.call("/api/state")
-    n_faces = len(rerun._runner.specimen.faces) if rerun._runner is not None else None
+    n_faces = len(server.app.data.faces)
     print(f"specimen: {n_faces:,} faces, {state['n_boundaries']} boundaries; "
           f"{args.rounds} round(s) x {len(EDITS)} edits, one save each")
 
+    idle = []
+    for _ in range(20):  # the same call with no save running, for comparison on a noisy machine
+        q = time.perf_counter()
+        client.call("/api/state")
+        idle.append(time.perf_counter() - q)
+        time.sleep(0.02)
     rng = np.random.default_rng(7)
     rows = []
     load0 = os.getloadavg()
@@ -208,9 +221,12 @@ def main(argv=None) -> int:
         f"{k} {med([r['stages'][k] for r in rows]):.2f}" for k in rows[0]["stages"]))
     print("slowest /api/state reply while the figures were made: "
           f"{max(r['state_max_s']['figures'] for r in rows) * 1000:.0f} ms; while the report was written: "
-          f"{max(r['state_max_s']['report'] for r in rows) * 1000:.0f} ms")
+          f"{max(r['state_max_s']['report'] for r in rows) * 1000:.0f} ms; with no save running: median "
+          f"{statistics.median(idle) * 1000:.0f} ms, slowest {max(idle) * 1000:.0f} ms")
     print(f"load average before/after: {load0[0]:.2f} / {load1[0]:.2f}; peak RSS "
-          f"{resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 2**20:.2f} GB; OMP_NUM_THREADS="
+          f"{resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 2**20:.2f} GB (server), "
+          f"{resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 2**20:.2f} GB (largest child: re-run worker); "
+          f"OMP_NUM_THREADS="
           f"{os.environ.get('OMP_NUM_THREADS')}; BLAS threads "
           f"{sorted({i.get('num_threads') for i in threadpool_info()})}")
     tmp.cleanup()

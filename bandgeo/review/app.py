@@ -83,6 +83,163 @@ class PipelineRerun:
         return pipeline.rerun(folder, **kwargs)
 
 
+class ProcessRerun:
+    """The same re-run as :class:`PipelineRerun`, in a worker process of its own (started when the page
+    opens, kept for every save), so that the page's request threads never wait for the analysis: the
+    two share no interpreter lock. The worker holds the folder's inputs in memory
+    (``bandgeo.pipeline.Rerunner``, warmed once), reads the saved ``review.json`` on each request, sends
+    progress as it goes, the new figures as soon as result.json and bands.csv are swapped in, and then
+    writes the report. A worker that dies (e.g. out of memory) makes that save fail with one line; the
+    next save starts a new one.
+    """
+
+    def __init__(self, report: bool = True):
+        self.report = report
+        self._proc = None
+        self._conn = None
+        self._ready = False
+        self._lock = threading.Lock()  # one request at a time through the pipe
+
+    @property
+    def pid(self):
+        """The worker's process id (None before it starts)."""
+        return None if self._proc is None else self._proc.pid
+
+    def _start(self, folder) -> None:
+        if self._proc is not None and self._proc.is_alive():
+            return
+        import multiprocessing
+
+        self._stop(wait=0)
+        ctx = multiprocessing.get_context("spawn")  # no fork of a threaded server
+        parent, child = ctx.Pipe()
+        proc = ctx.Process(target=_rerun_worker, args=(child, str(folder), self.report),
+                           name="bandgeo-review-rerun", daemon=True)
+        proc.start()
+        child.close()
+        self._proc, self._conn = proc, parent
+        self._ready = False
+
+    def warm(self, folder) -> None:
+        """Start the worker, which loads and warms the inputs at once (returns without waiting)."""
+        with self._lock:
+            self._start(folder)
+
+    def wait_ready(self, timeout: float = 120.0) -> bool:
+        """Wait until the worker has loaded and warmed the inputs; True when it has."""
+        deadline = time.monotonic() + timeout
+        with self._lock:
+            while self._conn is not None and not self._ready:
+                left = deadline - time.monotonic()
+                if left <= 0 or not self._conn.poll(left):
+                    break
+                try:
+                    kind, _ = self._conn.recv()
+                except (EOFError, OSError):
+                    break
+                self._ready = self._ready or kind == "ready"
+            return bool(self._ready)
+
+    def __call__(self, folder, progress=None, partial=None):
+        from types import SimpleNamespace
+
+        with self._lock:
+            self._start(folder)
+            try:
+                self._conn.send(("run", partial is not None))
+                while True:
+                    kind, payload = self._conn.recv()
+                    if kind == "progress":
+                        if progress is not None:
+                            progress(*payload)
+                    elif kind == "partial":
+                        if partial is not None:
+                            partial(SimpleNamespace(**payload))
+                    elif kind == "ready":
+                        self._ready = True
+                    elif kind == "done":
+                        return SimpleNamespace(**payload)
+                    elif kind == "error":
+                        message, known = payload
+                        raise (BandgeoError if known else RuntimeError)(message)
+            except (EOFError, OSError):
+                self._stop(wait=1.0)
+                raise BandgeoError("the re-run worker process stopped unexpectedly (out of memory?); the last "
+                                   "good result is shown; save again to start a new one") from None
+
+    def _stop(self, wait: float = 5.0) -> None:
+        proc, conn = self._proc, self._conn
+        self._proc = self._conn = None
+        if conn is not None:
+            try:
+                conn.send(("stop", None))
+            except (OSError, ValueError):
+                pass
+        if proc is not None:
+            proc.join(wait)
+            if proc.is_alive():
+                proc.terminate()
+                proc.join(2.0)
+        if conn is not None:
+            conn.close()
+
+    def close(self, wait: float = 5.0) -> None:
+        """Stop the worker (after the save in progress, if any, up to ``wait`` seconds)."""
+        got = self._lock.acquire(timeout=wait)
+        try:
+            self._stop(wait=wait)
+        finally:
+            if got:
+                self._lock.release()
+
+
+def _rerun_worker(conn, folder, report) -> None:
+    """The worker process of :class:`ProcessRerun`: one re-run per request, until told to stop or the
+    page's process goes away (its end of the pipe closes)."""
+    import signal
+
+    signal.signal(signal.SIGINT, signal.SIG_IGN)  # Ctrl-C reaches the whole group; the server stops us
+    from .. import pipeline
+
+    runner = None
+
+    def send(kind, payload):
+        conn.send((kind, payload))
+
+    def progress(description, done, total):
+        send("progress", (str(description), float(done or 0), float(total or 0)))
+
+    try:
+        runner = pipeline.Rerunner(folder)
+        runner.warm()
+    except Exception:  # the first save makes it again and reports the problem in one line
+        pass
+    send("ready", None)
+    while True:
+        try:
+            kind, with_partial = conn.recv()
+        except (EOFError, OSError, KeyboardInterrupt):
+            return
+        if kind != "run":
+            return
+        try:
+            if runner is None:
+                runner = pipeline.Rerunner(folder)
+            later = bool(report and with_partial)  # figures first, then the report
+            analysis = runner(report=report and not later, progress=progress)
+            payload = {"result": analysis.result, "band_table": analysis.band_table}
+            if later:
+                send("partial", payload)
+                pipeline.write_analysis_report(analysis, folder, progress=progress, rewrite_result=False)
+            payload["stage_seconds"] = dict(analysis.stage_seconds)
+            send("done", payload)
+        except BandgeoError as exc:
+            send("error", (str(exc), True))
+        except Exception as exc:
+            traceback.print_exc(file=sys.stderr)
+            send("error", (f"{type(exc).__name__}: {exc}", False))
+
+
 _default_rerun = PipelineRerun()  # kept for callers of the old name
 
 
@@ -104,7 +261,7 @@ class ReviewApp:
     def __init__(self, folder, token, rerun=None, segmentation=None):
         self.folder = Path(folder)
         self.token = token
-        self.rerun = rerun or PipelineRerun()
+        self.rerun = rerun or ProcessRerun()
         self.removed_temp = clean_temp_files(self.folder)
         self.data = FolderData(self.folder, segmentation=segmentation)
         base = [(b.id, b.height_mm) for b in self.data.segmentation.boundaries]

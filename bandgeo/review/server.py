@@ -1,9 +1,10 @@
 """The local review web server: loopback only, a token on every request, fixed files only.
 
 ``serve`` starts a standard-library ``ThreadingHTTPServer`` in a background thread and returns it;
-``run`` serves until Ctrl-C. After each save the analysis downstream of the segmentation is re-run in
-a worker thread (``bandgeo.pipeline.rerun`` unless another callable is given) and the page polls
-``/api/status``; a failed re-run keeps the last good result and shows the error line.
+``run`` serves until Ctrl-C. After each save the analysis downstream of the segmentation is re-run from
+a worker thread, by default in a worker process of its own (``bandgeo.review.app.ProcessRerun``, so
+that the request threads stay quick) unless another callable is given, and the page polls
+``/api/status`` (stage, progress); a failed re-run keeps the last good result and shows the error line.
 """
 from __future__ import annotations
 
@@ -401,6 +402,9 @@ class ReviewServer(ThreadingHTTPServer):
         self.shutdown()
         self.server_close()
         self.app.wait(wait_rerun)
+        close = getattr(self.app.rerun, "close", None)
+        if callable(close):  # the re-run's worker process
+            close(wait_rerun)
         if self.thread is not None:
             self.thread.join(5)
         warm = getattr(self, "warm_thread", None)
@@ -429,7 +433,8 @@ def serve(folder, host="127.0.0.1", port=0, open_browser=True, token=None, *, re
     token : str, optional
         The access token (default: a fresh random one).
     rerun : callable, optional
-        ``rerun(folder) -> AnalysisState`` called after each save (default ``bandgeo.pipeline.rerun``).
+        ``rerun(folder) -> AnalysisState`` called after each save (default: a
+        ``bandgeo.review.app.ProcessRerun``, the pipeline's re-run in a worker process).
     segmentation : Segmentation, optional
         Use this instead of loading ``segmentation.json``.
 

@@ -1,0 +1,105 @@
+"""The review page's default re-run: the pipeline in a worker process of its own, which gives what a
+fresh run gives, tells its progress, survives its own death and stops with the server.
+
+Reference: the full computation itself (common practice: the page's result must be the one a fresh
+``bandgeo.pipeline.downstream`` gives with the same review).
+"""
+import json
+import os
+import signal
+import time
+
+import pytest
+
+from bandgeo import pipeline
+from bandgeo.results import ResultFolder
+from bandgeo.review import read_review, serve
+from bandgeo.review.app import ProcessRerun, ReviewApp
+
+from test_review_server import request
+from test_review_support import make_long_folder
+
+
+@pytest.fixture(scope="module")
+def long_folder(tmp_path_factory):
+    return make_long_folder(tmp_path_factory.mktemp("process") / "KRB-41", n_bands=120, days_per_year=30.0)
+
+
+def _wait_done(app, timeout=180):
+    end = time.monotonic() + timeout
+    while time.monotonic() < end:
+        st = app.rerun_status()
+        if st["state"] in ("done", "failed"):
+            return st
+        time.sleep(0.05)
+    raise AssertionError("the re-run did not finish")
+
+
+def _fresh(folder):
+    inputs = ResultFolder(folder).load_inputs()
+    return pipeline.downstream(inputs.specimen, inputs.segmentation, read_review(folder), inputs.params)
+
+
+def test_default_rerun_in_a_worker_process_gives_the_fresh_result_and_the_report(long_folder):
+    server = serve(long_folder, open_browser=False)
+    try:
+        assert isinstance(server.app.rerun, ProcessRerun)
+        state = request(server, "GET", "/api/state")[1]
+        rows = [b for b in state["boundaries"] if b["status"] == "auto"]
+        b, nxt = rows[50], rows[51]
+        request(server, "POST", "/api/edit", {"edit": {"op": "add",
+                                                       "height_mm": 0.5 * (b["height_mm"] + nxt["height_mm"])}})
+        request(server, "POST", "/api/edit", {"edit": {"op": "reject", "id": rows[80]["id"]}})
+        seen = set()
+        request(server, "POST", "/api/save", {})
+        end = time.monotonic() + 300
+        while time.monotonic() < end:
+            st = request(server, "GET", "/api/status")[1]
+            seen.add(st["stage"])
+            if st["state"] != "running":
+                break
+            time.sleep(0.02)
+        assert st["state"] == "done", st
+        assert server.app.rerun.pid is not None and server.app.rerun.pid != os.getpid()
+        fresh = _fresh(long_folder)
+        state = request(server, "GET", "/api/state")[1]
+        assert state["result"]["bands"]["count"] == fresh.result["bands"]["count"] == 120  # one added, one removed
+        written = json.loads((long_folder / "result.json").read_text())
+        assert written["bands"] == fresh.result["bands"]
+        assert written["review"]["n_edits"] == 2
+        assert (long_folder / "report.html").is_file()  # the report followed the figures
+        assert seen & {"review", "measure", "series", "periodicity", "report"}, seen  # progress came through
+        pid = server.app.rerun.pid
+    finally:
+        server.stop()
+    # the worker stops with the server
+    end = time.monotonic() + 10
+    while time.monotonic() < end:
+        try:
+            os.kill(pid, 0)
+        except ProcessLookupError:
+            break
+        time.sleep(0.1)
+    else:
+        pytest.fail("the re-run worker outlived the server")
+
+
+def test_a_worker_that_dies_fails_one_save_and_the_next_save_starts_a_new_one(long_folder):
+    rerun = ProcessRerun(report=False)
+    app = ReviewApp(long_folder, "token", rerun=rerun)
+    try:
+        rerun.warm(long_folder)
+        assert rerun.wait_ready(120)
+        os.kill(rerun.pid, signal.SIGKILL)
+        app.session.push({"op": "reject", "id": app.session.state.active()[30].id})
+        app.save()
+        st = _wait_done(app)
+        assert st["state"] == "failed" and "stopped unexpectedly" in st["error"] and "\n" not in st["error"]
+        app.save()
+        st = _wait_done(app)
+        assert st["state"] == "done", st
+        assert app.last_result["bands"]["count"] == _fresh(long_folder).result["bands"]["count"]
+    finally:
+        app.wait(60)
+        rerun.close()
+    assert rerun.pid is None
