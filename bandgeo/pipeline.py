@@ -328,6 +328,9 @@ def analyze(scan_path, out_dir, *, units=None, up=None, north=None, strike_dip=N
     analysis.recovered = folder.recover()  # only now: a run that fails on its input writes nothing
     save(analysis, folder.path, formats=ALL_FORMATS if report else (), inputs=True,
          set_aside_review=not keep_review, progress=progress)
+    from .segment.model import clear_projections
+
+    clear_projections()  # made by the segmentation, re-used by the measurement; a batch moves on
     return analysis
 
 
@@ -379,7 +382,7 @@ class Rerunner:
 
         vertices, axis = self.specimen.vertices_mm, self.segmentation.axis
         assign_bands(vertices, self.segmentation.boundaries, axis)
-        vertex_projection(vertices, axis).order()
+        vertex_projection(vertices, axis).keep_sorted()
         if len(vertices) <= 2_000_000:  # the relief profile's own (not subsampled) vertices
             height_order(unroll(vertices, axis))
         if review is None:

@@ -157,12 +157,18 @@ class VertexProjection:
         self.last_examined = self.n
 
     def order(self):
-        """Vertex indices sorted by arc length, and the sorted arc lengths (made on first use)."""
+        """Vertex indices sorted by arc length (made on first use), and the sorted arc lengths."""
         if self._order is None:
             order = np.argsort(self.s, kind="stable")
-            self._s_sorted = self.s[order]
-            self._order = order
+            self._order = order.astype(np.int32) if self.n < 2**31 else order
+        if self._s_sorted is None or len(self._s_sorted) != self.n:
+            return self._order, self.s[self._order]
         return self._order, self._s_sorted
+
+    def keep_sorted(self) -> None:
+        """Keep the sorted arc lengths too (for repeated incremental assignments: the review page)."""
+        order, s_sorted = self.order()
+        self._s_sorted = s_sorted
 
     def assign(self, vertices, bs) -> np.ndarray:
         """Band of each vertex for the boundaries ``bs`` sorted by height (see :func:`assign_bands`)."""
