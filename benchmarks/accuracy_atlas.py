@@ -120,6 +120,52 @@ def score(truth, seg):
             "n_true": n_true, "n_found": int(len(det_inner))}
 
 
+def score_planes(truth, seg, specimen):
+    """As :func:`score`, but a detection is matched by geometry rather than by arc length.
+
+    Each detected boundary's centre (specimen frame) is put against every true boundary plane (the
+    truth's ``centres_file`` / ``normals_file`` carried into the specimen frame by
+    ``specimen.scan_to_specimen``); it matches the nearest plane when its distance along that plane's
+    normal is within a third of the local lamina, one detection per plane. Arc lengths along two
+    different centrelines (the generator's and bandgeo's) drift apart on a bent column by more than
+    a third of a lamina over a few centimetres, so the height-based score would call right boundaries
+    wrong there.
+    """
+    b = truth["boundaries"]
+    M = np.asarray(specimen.scan_to_specimen, float)
+    C = np.asarray(b["centres_file"], float) @ M[:3, :3].T + M[:3, 3]
+    N = np.asarray(b["normals_file"], float) @ M[:3, :3].T
+    N /= np.linalg.norm(N, axis=1, keepdims=True)
+    h = np.asarray(b["heights_mm"], float)
+    th = np.diff(h)
+    tol = np.r_[th[0], np.minimum(th[:-1], th[1:]), th[-1]] / 3.0
+    bounds = sorted(seg.boundaries, key=lambda x: x.height_mm)
+    det = np.array([x.center_mm for x in bounds], float).reshape(-1, 3)
+    match = np.full(len(det), -1)
+    if len(det):
+        dist = det @ N.T - np.einsum("ij,ij->i", C, N)[None, :]  # (detections, planes)
+        near = np.argmin(np.abs(dist), axis=1)
+        d = np.abs(dist[np.arange(len(det)), near])
+        used = set()
+        for i in np.argsort(d):
+            j = int(near[i])
+            if d[i] <= tol[j] and j not in used:
+                match[i] = j
+                used.add(j)
+    inner = set(range(1, len(h) - 1))
+    rim = np.isin(match, [0, len(h) - 1])
+    tp = len(set(match[(match > 0) & (match < len(h) - 1)].tolist()))
+    n_det = int((~rim).sum())
+    n_true = len(inner)
+    heights = np.array([x.height_mm for x in bounds])[~rim] if len(det) else np.zeros(0)
+    true_mean = float(np.mean(np.diff(h[1:-1]))) if len(h) > 3 else float("nan")
+    det_mean = float(np.mean(np.diff(heights))) if len(heights) > 1 else float("nan")
+    return {"recall": tp / max(n_true, 1), "precision": tp / n_det if n_det else float("nan"),
+            "count_error": (n_det - n_true) / n_true if n_true else float("nan"),
+            "thickness_error": (det_mean - true_mean) / true_mean if np.isfinite(det_mean) else float("nan"),
+            "n_true": n_true, "n_found": n_det, "matched_by": "plane"}
+
+
 def run_cell(kind, lamina_edge, lamina_radius, sway_deg, noise_relief, seed=1, n_laminae=N_LAMINAE):
     """Simulate, segment and score one cell; returns a flat dict (JSON-ready)."""
     from bandgeo.features import compute_features

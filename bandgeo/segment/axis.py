@@ -17,6 +17,10 @@ from dataclasses import dataclass
 import numpy as np
 from scipy.signal import savgol_filter
 
+#: A slab counts for the centreline when it holds this fraction of a full slab's vertices: the end
+#: slabs of a column cut across at a slant hold a partial ring, whose circle centre is pulled aside.
+FULL_SLAB = 0.9
+
 
 @dataclass
 class Centreline:
@@ -176,6 +180,8 @@ def fit_centreline(vertices: np.ndarray, wall: np.ndarray, axis0: np.ndarray, sl
     """
     line = _straight(vertices[wall], axis0)
     vw = vertices[wall]
+    c0 = vw - vw.mean(axis=0)
+    radius_mm = float(np.median(np.linalg.norm(c0 - np.outer(c0 @ axis0, axis0), axis=1))) if len(vw) else 1.0
     for _ in range(passes):
         s, radial = line.project(vw)
         e1, e2 = line.frame(s)
@@ -188,7 +194,11 @@ def fit_centreline(vertices: np.ndarray, wall: np.ndarray, axis0: np.ndarray, sl
         # end slabs cut obliquely through the last rings hold a partial circle that pulls the centre
         # (and so the end tangents) aside: only slabs with most of a full slab's vertices count
         counts = np.bincount(u, minlength=nb)
-        full = counts >= 0.7 * np.median(counts[counts > 0])
+        # against the fullest slab within two radii (a tapering column holds fewer vertices per slab
+        # at its thin end; a slanted end cut leaves a ramp of partial slabs a radius or more long)
+        from scipy.ndimage import maximum_filter1d
+        ref = maximum_filter1d(counts.astype(float), size=max(5, int(4 * radius_mm / slab_mm) | 1), mode="nearest")
+        full = counts >= FULL_SLAB * np.maximum(ref, 1.0)
         ok = np.isfinite(cx) & full
         if ok.sum() < 2:
             break

@@ -212,13 +212,16 @@ def trace(fr, s_flat, sp, p_groove, est, run):
     rings, gaps = repair.repair(rings, sp, trace_weak, run.log)
     refuse = None
     expected = fr.W.length_mm / sp
+    rule = resolution.resolvable_lamina_mm(fr.samp, fr.noise)["rule"]
     if len(rings) < 0.5 * expected:
         refuse = (f"only {len(rings)} boundaries stand out of the noise along the flattened side wall where "
                   f"about {expected:.0f} are expected at the band spacing of the relief spectrum ({sp:.4f} mm; "
-                  f"profile noise {run.info.get('profile_noise_mm', float('nan')):.4f} mm per vertex)")
+                  f"profile noise {run.info.get('profile_noise_mm', float('nan')):.4f} mm per vertex; sampling "
+                  f"{fr.samp:.4f} mm); with this scan {rule}")
     if len(rings) < 3:
         refuse = (f"only {len(rings)} boundaries stand out of the noise along the flattened side wall "
-                  f"(profile noise {run.info.get('profile_noise_mm', float('nan')):.4f} mm per vertex)")
+                  f"(profile noise {run.info.get('profile_noise_mm', float('nan')):.4f} mm per vertex; sampling "
+                  f"{fr.samp:.4f} mm); with this scan {rule}")
     run.info["_trace_samples"] = (fit["samples"], [r["index"] for r in rings], cand["loc"])
     return rings, gaps, refuse
 

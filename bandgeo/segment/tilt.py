@@ -45,6 +45,9 @@ MAX_PERIOD_RADII = 0.25
 #: modulation (an annual cycle of hundreds of laminae) is longer than this on any column.
 MAX_PERIOD_FLOOR_MM = 2.0
 
+#: Least share of neighbouring column pairs with data, for the tilt at a height to count.
+MIN_PAIRS = 0.3
+
 #: Laminae a record must hold before the band spacing is re-centred on the whole peak (see _strongest).
 MIN_LAMINAE_RECENTRE = 400
 
@@ -117,7 +120,7 @@ def _strongest(prof, b, max_period_mm=np.inf):
     band = (f >= 4.0 / (nb * b)) & (f >= 1.0 / max_period_mm) & (f <= 0.45 / b)
     if band.sum() < 8:
         return float("nan"), 0.0, len(rows)
-    floor = median_filter(pw, size=max(7, int(band.sum() // 6) | 1), mode="nearest")
+    floor = _floor(f, pw, band)
     ratio = np.where(band, pw / np.maximum(floor, 1e-300), 0.0)
     ratio = np.convolve(ratio, np.ones(3) / 3.0, mode="same")
     rb = np.where(band, ratio, 0.0)
@@ -159,6 +162,31 @@ def _strongest(prof, b, max_period_mm=np.inf):
     if np.isfinite(fc) and 0.5 * f0 < fc < 2.0 * f0:
         f0 = fc
     return (1.0 / f0 if f0 > 0 else float("nan")), float(ratio[k]), len(rows)
+
+
+def _floor(f, pw, band, octaves=1.25, q=25.0):
+    """Noise floor of an averaged periodogram: a running lower quartile over +-``octaves`` in log frequency.
+
+    Irregular laminae (thickness CV 0.3-0.5, common practice for stromatolite laminae) spread the band
+    peak over most of an octave; a running median a sixth of the band wide followed that hump and
+    whitened it away, so a subharmonic wiggle could win. A lower quartile over two and a half octaves
+    stays under such a hump and still follows a red or rolled-off noise floor.
+    """
+    from scipy.ndimage import percentile_filter
+
+    inb = np.flatnonzero(band)
+    if len(inb) < 8:
+        return np.maximum(pw, 1e-300)
+    lo, hi = float(f[inb[0]]), float(f[inb[-1]])
+    per_oct = 24
+    n = max(8, int(np.ceil(np.log2(hi / lo) * per_oct)) + 1)
+    grid = lo * 2.0 ** (np.arange(n) / per_oct)
+    lp = np.interp(np.log(grid), np.log(np.maximum(f[inb], 1e-300)), np.log(np.maximum(pw[inb], 1e-300)))
+    size = int(2 * octaves * per_oct) | 1
+    fl = percentile_filter(lp, q, size=size, mode="nearest")
+    out = np.full_like(pw, np.inf)
+    out[inb] = np.exp(np.interp(np.log(f[inb]), np.log(grid), fl))
+    return out
 
 
 def _analytic(sums, cnt, f0, bin_mm):
@@ -204,15 +232,24 @@ def tilt_pass(s, theta, relief, spacing_mm, bin_mm, n_az, smooth_mm):
     c = np.roll(z, -1, axis=0) * np.conj(z)
     c = gaussian_filter1d(c.real, sig, axis=1) + 1j * gaussian_filter1d(c.imag, sig, axis=1)
     delta = np.angle(c)  # = -2 pi f (lag_{j+1} - lag_j)
-    delta -= delta.mean(axis=0, keepdims=True)  # close the loop around the column
-    psi = np.concatenate([np.zeros((1, nb)), np.cumsum(delta[:-1], axis=0)], axis=0)
     amp = gaussian_filter1d(np.abs(z), sig, axis=1)  # (n_az, nb)
     th = -np.pi + (np.arange(n_az) + 0.5) * 2 * np.pi / n_az
-    X = np.stack([np.cos(th), np.sin(th), np.ones(n_az)], axis=1)  # (n_az, 3)
-    w = amp + 1e-12
-    M = np.einsum("jn,ja,jb->nab", w, X, X)
-    rhs = np.einsum("jn,ja,jn->na", w, X, psi)
-    coef = np.linalg.solve(M + 1e-9 * np.eye(3)[None], rhs[..., None])[..., 0]  # (nb, 3)
+    # Least squares on the differences themselves: delta_j = alpha (cos th_{j+1} - cos th_j)
+    # + beta (sin th_{j+1} - sin th_j), weighted by the coherent amplitude of the pair. Each pair's
+    # phase error stays its own; summing the differences around the column first (then fitting) let
+    # the errors add up as a random walk, which swung the tilt by a lamina on noisy, irregular walls.
+    D = np.stack([np.roll(np.cos(th), -1) - np.cos(th), np.roll(np.sin(th), -1) - np.sin(th)], axis=1)
+    # A column that ends (an oblique cut, a hole) rings on for about a lamina after its last data, at
+    # a phase set by where it ends: an end cut across the laminae would read as a tilt. Only pairs
+    # with data all through the band filter's reach (a lamina and a half either side) count.
+    # (relative to the column's usual occupancy: a coarse mesh leaves many cells empty everywhere)
+    occ = gaussian_filter1d((cnt > 0).astype(np.float32), 1.5 * spacing_mm / bin_mm, axis=1)
+    typical = np.array([np.median(o[o > 0.05]) if np.any(o > 0.05) else 1.0 for o in occ])
+    full = occ > 0.85 * typical[:, None]
+    w = (np.abs(c) + 1e-12) * (full & np.roll(full, -1, axis=0))
+    M = np.einsum("jn,ja,jb->nab", w, D, D)
+    rhs = np.einsum("jn,ja,jn->na", w, D, delta)
+    coef = np.linalg.solve(M + 1e-9 * np.eye(2)[None], rhs[..., None])[..., 0]  # (nb, 2)
     # local band frequency: phase advance per bin of the mean analytic signal, smoothed
     adv = gaussian_filter1d((z[:, 1:] * np.conj(z[:, :-1])).sum(axis=0).real, sig) + \
         1j * gaussian_filter1d((z[:, 1:] * np.conj(z[:, :-1])).sum(axis=0).imag, sig)
@@ -223,6 +260,10 @@ def tilt_pass(s, theta, relief, spacing_mm, bin_mm, n_az, smooth_mm):
     lag_b = -coef[:, 1] / (2 * np.pi * f_loc)
     grid = s0 + (np.arange(nb) + 0.5) * bin_mm
     amplitude = amp.mean(axis=0)
+    # heights where fewer than MIN_PAIRS of the neighbour pairs are usable (the ends, a big hole) have no
+    # reliable tilt: a fit to a few pairs on one side of the column is ill-conditioned
+    pairs = (full & np.roll(full, -1, axis=0)).mean(axis=0)
+    amplitude = np.where(pairs >= MIN_PAIRS, amplitude, 0.0)
     return grid, lag_a, lag_b, amplitude
 
 
