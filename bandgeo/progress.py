@@ -36,20 +36,22 @@ PIPELINE_STAGES = ("load", "orient", "features", "segment", "review", "measure",
 
 #: Cost model of the pipeline's stages: ``(fixed seconds, seconds per million faces)``, so that a stage
 #: is expected to take ``fixed + per_mface * faces / 1e6`` seconds before the run's own speed is known.
-#: Fitted through the medians of ``benchmarks/bench_pipeline.py --sizes 0.5,2 --repeat 3`` (0.50 and
-#: 2.13 M-face photogrammetric forward-model scans, sway 7 deg) on this project's 2-core machine,
-#: 2026-12-02, 2 BLAS threads, load average 1-2 (other jobs running). Only ratios matter: the estimate
-#: rescales them by the speed of the stages already run. Re-fit when a stage gets much faster.
+#: Fitted through the median CPU seconds of each stage (a steadier figure than wall seconds on a busy
+#: machine, and close to an idle machine's wall seconds) measured by
+#: ``benchmarks/bench_pipeline.py --sizes 0.5,2 --repeat 3`` on 0.50 and 1.98 M-face photogrammetric
+#: forward-model scans (sway 7 deg), on this project's 2-core machine, 2026-12-02, 2 BLAS threads, load
+#: average 5-8 (other jobs running). Only the ratios matter: the estimate rescales them by the speed of
+#: the stages already run. Re-fit when a stage gets much faster or slower.
 STAGE_COST: dict[str, tuple[float, float]] = {
-    "load": (0.0, 0.04),
-    "orient": (0.1, 0.6),
-    "features": (0.0, 3.3),
-    "segment": (0.5, 6.3),
-    "review": (0.0, 0.01),
-    "measure": (0.0, 0.45),
-    "series": (0.2, 0.35),
-    "periodicity": (0.4, 0.3),
-    "report": (5.5, 0.2),
+    "load": (0.03, 0.04),         # 0.05 s CPU at 0.50 M faces, 0.11 s at 1.98 M
+    "orient": (0.10, 0.78),       # 0.49 s, 1.64 s
+    "features": (0.21, 1.32),     # 0.87 s, 2.84 s
+    "segment": (1.67, 5.67),      # 4.49 s, 12.92 s
+    "review": (0.01, 0.0),        # 0.01 s, 0.01 s
+    "measure": (0.0, 0.05),       # 0.02 s, 0.10 s
+    "series": (0.49, 0.47),       # 0.72 s, 1.41 s
+    "periodicity": (0.75, 0.22),  # 0.86 s, 1.18 s
+    "report": (5.28, 0.20),       # 5.38 s, 5.68 s (all four formats)
 }
 
 #: Weight (model seconds) of the prior belief that this machine runs at the model's speed; the
