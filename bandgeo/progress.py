@@ -337,7 +337,8 @@ class BarCallback:
             est = self.estimate
             k = est.plan.index(est.current) + 1
             inner = self.description.split(": ", 1)[1] if ": " in self.description else ""
-            return f"{self.title}: {est.current} ({k}/{len(est.plan)})" + (f" - {inner}" if inner else "")
+            inner = inner[len(est.current) + 2:] if inner.startswith(f"{est.current}: ") else inner
+            return f"{est.current} ({k}/{len(est.plan)})" + (f": {inner}" if inner else "")
         return f"{self.title}: {self.description}" if self.description else self.title
 
     def fraction(self) -> float:
@@ -351,7 +352,7 @@ class BarCallback:
             self._on_change(self)
 
 
-def _columns():
+def _columns(bar_width: int = 30):
     from rich.progress import ProgressColumn, TimeElapsedColumn
     from rich.progress_bar import ProgressBar
     from rich.text import Text
@@ -359,7 +360,7 @@ def _columns():
     class EstimateBar(ProgressColumn):
         def render(self, task):
             cb = task.fields.get("callback")
-            return ProgressBar(total=1.0, completed=cb.fraction() if cb else 0.0, width=30)
+            return ProgressBar(total=1.0, completed=cb.fraction() if cb else 0.0, width=bar_width)
 
     class Percent(ProgressColumn):
         def render(self, task):
@@ -393,9 +394,10 @@ def bar(description: str = "working", *, stages: Optional[Iterable[str]] = None,
     from rich.table import Column
 
     console = console or Console(stderr=True)
-    label = TextColumn("{task.description}", table_column=Column(width=max(24, min(60, console.width - 60)),
-                                                                  no_wrap=True, overflow="ellipsis"))
-    with Progress(label, *_columns(), transient=True, console=console, redirect_stdout=False,
+    bar_width = 30 if console.width >= 110 else 16
+    label = TextColumn("{task.description}", table_column=Column(
+        width=max(20, min(60, console.width - bar_width - 36)), no_wrap=True, overflow="ellipsis"))
+    with Progress(label, *_columns(bar_width), transient=True, console=console, redirect_stdout=False,
                   redirect_stderr=False) as prog:
         task = prog.add_task(f"{description}: starting", total=1.0)
 
