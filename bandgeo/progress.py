@@ -324,8 +324,11 @@ class BarCallback:
 
     def stage(self, event: str, name: str, **info) -> None:
         if not self.by_stage:  # the first stage event switches a plain bar to the cost model
+            # planned: the stages from this one on, the report only if it is this one (callers that
+            # reload an analysis write the report under a bar of its own; a report that follows in
+            # this bar is added when it starts)
             plan = list(PIPELINE_STAGES)
-            plan = plan[plan.index(name):] if name in plan else [name]
+            plan = [s for s in plan[plan.index(name):] if s != "report" or s == name] if name in plan else [name]
             self.estimate = StageEstimate(plan, clock=self.clock)
             self.estimate.start = self.started
         self.estimate.stage(event, name, **info)
