@@ -189,7 +189,7 @@ def _stage(name, fn, out):
     return value
 
 
-def child(scan: str, up) -> dict:
+def child(scan: str, up, chunk_faces=None) -> dict:
     import resource
 
     from bandgeo.features import compute_features
@@ -198,7 +198,7 @@ def child(scan: str, up) -> dict:
     stages: dict = {}
     box = [_stage("load", lambda: load_scan(scan), stages)]
     spec = _stage("orient", lambda: prepare(box.pop(), units="mm", up=up), stages)  # the scan is dropped after
-    feats = _stage("features", lambda: compute_features(spec), stages)
+    feats = _stage("features", lambda: compute_features(spec, chunk_faces=chunk_faces), stages)
     try:
         from threadpoolctl import threadpool_info
         threads = sorted({f"{i['internal_api']}={i['num_threads']}" for i in threadpool_info()})
@@ -211,11 +211,13 @@ def child(scan: str, up) -> dict:
             "threads": threads, "cleaning": spec.cleaning}
 
 
-def _run_child(scan: Path, up) -> dict:
+def _run_child(scan: Path, up, chunk_faces=None) -> dict:
     env = dict(os.environ)
     env.setdefault("OMP_NUM_THREADS", "2")
     env.setdefault("OPENBLAS_NUM_THREADS", "2")
     cmd = [sys.executable, __file__, "--child", str(scan), "--up", json.dumps(up)]
+    if chunk_faces:
+        cmd += ["--chunk-faces", str(int(chunk_faces))]
     res = subprocess.run(cmd, capture_output=True, text=True, env=env)
     if res.returncode != 0:
         raise RuntimeError(f"child failed on {scan}: {res.stderr.strip().splitlines()[-1:]}")
@@ -312,11 +314,12 @@ def main(argv=None) -> int:
                     help="only the whole `bandgeo analyze` (its stage seconds and per-stage memory peaks)")
     ap.add_argument("--rss-limit-gb", type=float, default=15.5, help="stop an analyze above this (default 15.5)")
     ap.add_argument("--json", help="write the figures here")
+    ap.add_argument("--chunk-faces", type=float, help="features slab size (default: bandgeo's CHUNK_FACES)")
     ap.add_argument("--child", help=argparse.SUPPRESS)
     ap.add_argument("--up", help=argparse.SUPPRESS)
     args = ap.parse_args(argv)
     if args.child:
-        print(json.dumps(child(args.child, json.loads(args.up))))
+        print(json.dumps(child(args.child, json.loads(args.up), int(args.chunk_faces) if args.chunk_faces else None)))
         return 0
     scans = [Path(s) for s in args.scan] if args.scan else \
         [mesh_for(float(x), Path(args.mesh_dir)) for x in args.faces.split(",")]
@@ -342,7 +345,7 @@ def main(argv=None) -> int:
         return 0
     for scan in scans:
         up = _up_of(scan)
-        runs = [_run_child(scan, up) for _ in range(max(1, args.repeat))]
+        runs = [_run_child(scan, up, args.chunk_faces) for _ in range(max(1, args.repeat))]
         row = {"scan": str(scan), "faces": runs[0]["faces"], "runs": runs}
         for st in ("load", "orient", "features"):
             row[st] = {k: statistics.median(r["stages"][st][k] for r in runs)
