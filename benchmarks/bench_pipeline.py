@@ -175,20 +175,36 @@ def child_pipeline(scan: Path, out: Path) -> None:
 
 def child_review(folder: Path) -> None:
     """One review save as the page makes it: ReviewApp (the page's session object) with its re-run
-    warmed (the page does this while the browser opens), one boundary rejected, then save()."""
+    warmed and ready (the page does this while the browser opens; with a re-run worker process, its
+    ``wait_ready``), one boundary rejected, then save(); timed to the new figures and to the report."""
+    import psutil
+
     start = time.perf_counter()
     from bandgeo.review.app import ReviewApp
 
     app = ReviewApp(folder, token="bench")
     open_s = time.perf_counter() - start
     start = time.perf_counter()
-    if hasattr(app.rerun, "warm"):
-        app.rerun.warm(folder)
+    rerun = app.rerun
+    if hasattr(rerun, "warm"):
+        rerun.warm(folder)
+    if hasattr(rerun, "wait_ready"):
+        rerun.wait_ready(timeout=1800)
     warm_s = time.perf_counter() - start
+    worker = psutil.Process(rerun.pid) if getattr(rerun, "pid", None) else None
+
+    def cpu_now():
+        own = psutil.Process().cpu_times()
+        total = own.user + own.system
+        if worker is not None and worker.is_running():
+            w = worker.cpu_times()
+            total += w.user + w.system
+        return total
+
     boundaries = app.data.segmentation.boundaries
     target = boundaries[len(boundaries) // 2].id
     app.session.push({"op": "reject", "id": int(target)})
-    cpu0 = _cpu_seconds()
+    cpu0 = cpu_now()
     start = time.perf_counter()
     app.save()
     figures_s = None
@@ -201,10 +217,22 @@ def child_review(folder: Path) -> None:
         time.sleep(0.02)
     app.wait()
     total_s = time.perf_counter() - start
+    cpu = cpu_now() - cpu0
+    worker_peak = 0.0
+    if worker is not None and worker.is_running():
+        try:  # the worker's own high-water mark (Linux)
+            worker_peak = max(worker_peak, worker.memory_full_info().uss / 2**30)
+            for line in Path(f"/proc/{worker.pid}/status").read_text().splitlines():
+                if line.startswith("VmHWM:"):
+                    worker_peak = max(worker_peak, int(line.split()[1]) / 2**20)
+        except (OSError, psutil.Error):
+            pass
     status = app.rerun_status()
+    if hasattr(rerun, "close"):
+        rerun.close()
     _emit({"open_s": open_s, "warm_s": warm_s, "figures_s": figures_s if figures_s is not None else total_s,
-           "total_s": total_s, "cpu": _cpu_seconds() - cpu0, "state": status.get("state"),
-           "error": status.get("error"), "peak_gb": _peak_rss_gb()})
+           "total_s": total_s, "cpu": cpu, "state": status.get("state"), "error": status.get("error"),
+           "peak_gb": max(_peak_rss_gb(), worker_peak), "worker": type(rerun).__name__})
 
 
 def child_anchors(scan: Path) -> None:
@@ -309,11 +337,11 @@ def summarise(size_m: float, runs: list[dict]) -> dict:
             out["ratio_igl_paired"] = _median([r["pipeline"]["wall"] / r["anchors"]["igl_curvature"] for r in runs
                                                if "failed" not in r["pipeline"] and "failed" not in r.get("anchors", {"failed": 1})])
     if review:
-        for key in ("open_s", "warm_s", "figures_s", "total_s"):
+        for key in ("open_s", "warm_s", "figures_s", "total_s", "cpu"):
             out[f"review_{key}"] = _median([r[key] for r in review])
         out["review_peak_gb"] = max(r["peak_gb"] for r in review)
         out["review_state"] = sorted({str(r["state"]) + (f" ({r['error']})" if r.get("error") else "")
-                                      for r in review})
+                                      + f" via {r.get('worker', '?')}" for r in review})
     return out
 
 
@@ -354,7 +382,8 @@ def table(results: list[dict], markdown: bool = False) -> str:
     add("review save -> report rewritten (s)", lambda r: r.get("review_total_s"), "{:.2f}", "review")
     add("  review page open + warm-up (s)", lambda r: (r["review_open_s"] + r["review_warm_s"])
         if r.get("review_open_s") is not None else None)
-    add("  review process peak RSS (GB)", lambda r: r.get("review_peak_gb"))
+    add("  review save CPU, page + worker (s)", lambda r: r.get("review_cpu"))
+    add("  review page + worker peak RSS (GB)", lambda r: r.get("review_peak_gb"))
     width = max(len(label) for label, _ in rows)
     colw = [max(len(h), *(len(c[i]) for _, c in rows)) for i, h in enumerate(heads)]
     if markdown:
@@ -403,6 +432,15 @@ def main(argv=None) -> int:
     for var in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
         env[var] = str(args.threads)
     env.setdefault("PYTHONHASHSEED", "0")
+    try:
+        head = subprocess.run(["git", "rev-parse", "--short", "HEAD"], cwd=HERE.parent, capture_output=True,
+                              text=True).stdout.strip()
+        dirty = subprocess.run(["git", "status", "--porcelain", "--untracked-files=no", "bandgeo"], cwd=HERE.parent,
+                               capture_output=True, text=True).stdout.strip()
+        code = f"code {head or '?'}" + (" + uncommitted changes in bandgeo/" if dirty else "")
+    except OSError:
+        code = "code version unknown"
+    print(f"{time.strftime('%Y-%m-%d %H:%M UTC', time.gmtime())}; {code}")
     print(f"bench_pipeline: sizes {', '.join(f'{s:g} M' for s in sizes)} faces, {args.repeat} repeat(s), "
           f"{os.cpu_count()} cores, BLAS/OpenMP threads {args.threads}; load average "
           f"{', '.join(f'{x:.2f}' for x in os.getloadavg())} (1, 5, 15 min) at the start", flush=True)
