@@ -86,11 +86,12 @@ class PipelineRerun:
 class ProcessRerun:
     """The same re-run as :class:`PipelineRerun`, in a worker process of its own (started when the page
     opens, kept for every save), so that the page's request threads never wait for the analysis: the
-    two share no interpreter lock. The worker holds the folder's inputs in memory
+    two share no interpreter lock. The worker (``python -m bandgeo.review.worker``, a fresh interpreter
+    that does not re-run the caller's script) holds the folder's inputs in memory
     (``bandgeo.pipeline.Rerunner``, warmed once), reads the saved ``review.json`` on each request, sends
     progress as it goes, the new figures as soon as result.json and bands.csv are swapped in, and then
     writes the report. A worker that dies (e.g. out of memory) makes that save fail with one line; the
-    next save starts a new one.
+    next save starts a new one. The worker exits when its pipe closes (the page's process ended).
     """
 
     def __init__(self, report: bool = True):
@@ -102,23 +103,29 @@ class ProcessRerun:
 
     @property
     def pid(self):
-        """The worker's process id (None before it starts)."""
+        """The worker's process id (None when none is running)."""
         return None if self._proc is None else self._proc.pid
 
     def _start(self, folder) -> None:
-        if self._proc is not None and self._proc.is_alive():
+        if self._proc is not None and self._proc.poll() is None:
             return
-        import multiprocessing
+        import socket
+        import subprocess
+        from multiprocessing.connection import Connection
 
         self._stop(wait=0)
-        ctx = multiprocessing.get_context("spawn")  # no fork of a threaded server
-        parent, child = ctx.Pipe()
-        proc = ctx.Process(target=_rerun_worker, args=(child, str(folder), self.report),
-                           name="bandgeo-review-rerun", daemon=True)
-        proc.start()
-        child.close()
-        self._proc, self._conn = proc, parent
-        self._ready = False
+        ours, theirs = socket.socketpair()
+        package_root = str(Path(__file__).resolve().parents[2])  # this bandgeo, importable in the worker
+        env = dict(os.environ)
+        env["PYTHONPATH"] = os.pathsep.join([package_root, *filter(None, [env.get("PYTHONPATH")])])
+        try:
+            proc = subprocess.Popen(
+                [sys.executable, "-m", "bandgeo.review.worker", str(theirs.fileno()), str(folder),
+                 "report" if self.report else "figures"],
+                pass_fds=(theirs.fileno(),), stdin=subprocess.DEVNULL, env=env)
+        finally:
+            theirs.close()
+        self._proc, self._conn, self._ready = proc, Connection(ours.detach()), False
 
     def warm(self, folder) -> None:
         """Start the worker, which loads and warms the inputs at once (returns without waiting)."""
@@ -144,8 +151,8 @@ class ProcessRerun:
         from types import SimpleNamespace
 
         with self._lock:
-            self._start(folder)
             try:
+                self._start(folder)
                 self._conn.send(("run", partial is not None))
                 while True:
                     kind, payload = self._conn.recv()
@@ -170,18 +177,25 @@ class ProcessRerun:
     def _stop(self, wait: float = 5.0) -> None:
         proc, conn = self._proc, self._conn
         self._proc = self._conn = None
+        self._ready = False
         if conn is not None:
             try:
                 conn.send(("stop", None))
             except (OSError, ValueError):
                 pass
+            conn.close()  # the worker also stops when its end of the pipe closes
         if proc is not None:
-            proc.join(wait)
-            if proc.is_alive():
+            import subprocess
+
+            try:
+                proc.wait(wait)
+            except subprocess.TimeoutExpired:
                 proc.terminate()
-                proc.join(2.0)
-        if conn is not None:
-            conn.close()
+                try:
+                    proc.wait(2.0)
+                except subprocess.TimeoutExpired:
+                    proc.kill()
+                    proc.wait()
 
     def close(self, wait: float = 5.0) -> None:
         """Stop the worker (after the save in progress, if any, up to ``wait`` seconds)."""
@@ -191,53 +205,6 @@ class ProcessRerun:
         finally:
             if got:
                 self._lock.release()
-
-
-def _rerun_worker(conn, folder, report) -> None:
-    """The worker process of :class:`ProcessRerun`: one re-run per request, until told to stop or the
-    page's process goes away (its end of the pipe closes)."""
-    import signal
-
-    signal.signal(signal.SIGINT, signal.SIG_IGN)  # Ctrl-C reaches the whole group; the server stops us
-    from .. import pipeline
-
-    runner = None
-
-    def send(kind, payload):
-        conn.send((kind, payload))
-
-    def progress(description, done, total):
-        send("progress", (str(description), float(done or 0), float(total or 0)))
-
-    try:
-        runner = pipeline.Rerunner(folder)
-        runner.warm()
-    except Exception:  # the first save makes it again and reports the problem in one line
-        pass
-    send("ready", None)
-    while True:
-        try:
-            kind, with_partial = conn.recv()
-        except (EOFError, OSError, KeyboardInterrupt):
-            return
-        if kind != "run":
-            return
-        try:
-            if runner is None:
-                runner = pipeline.Rerunner(folder)
-            later = bool(report and with_partial)  # figures first, then the report
-            analysis = runner(report=report and not later, progress=progress)
-            payload = {"result": analysis.result, "band_table": analysis.band_table}
-            if later:
-                send("partial", payload)
-                pipeline.write_analysis_report(analysis, folder, progress=progress, rewrite_result=False)
-            payload["stage_seconds"] = dict(analysis.stage_seconds)
-            send("done", payload)
-        except BandgeoError as exc:
-            send("error", (str(exc), True))
-        except Exception as exc:
-            traceback.print_exc(file=sys.stderr)
-            send("error", (f"{type(exc).__name__}: {exc}", False))
 
 
 _default_rerun = PipelineRerun()  # kept for callers of the old name
@@ -261,7 +228,7 @@ class ReviewApp:
     def __init__(self, folder, token, rerun=None, segmentation=None):
         self.folder = Path(folder)
         self.token = token
-        self.rerun = rerun or ProcessRerun()
+        self.rerun = rerun or (ProcessRerun() if os.name == "posix" else PipelineRerun())
         self.removed_temp = clean_temp_files(self.folder)
         self.data = FolderData(self.folder, segmentation=segmentation)
         base = [(b.id, b.height_mm) for b in self.data.segmentation.boundaries]
