@@ -103,7 +103,7 @@ def main(argv=None) -> int:
     from threadpoolctl import threadpool_info
 
     from bandgeo import pipeline
-    from bandgeo.review.app import PipelineRerun, ProcessRerun
+    from bandgeo.review import app as review_app
     from bandgeo.review.server import serve
 
     tmp = tempfile.TemporaryDirectory(prefix="bench-review-")
@@ -129,8 +129,10 @@ def main(argv=None) -> int:
         pipeline.analyze(scan, folder, units=units, up=up, report=not args.no_report)
         print(f"analyze (once): {time.perf_counter() - t:.1f} s")
 
-    rerun = (PipelineRerun if args.in_process else ProcessRerun)(report=not args.no_report)
-    figures_at, analyses = [], []
+    kind = "PipelineRerun" if args.in_process or not hasattr(review_app, "ProcessRerun") else "ProcessRerun"
+    rerun = getattr(review_app, kind)(report=not args.no_report)
+    print(f"re-run: {kind} ({'a thread of the server' if kind == 'PipelineRerun' else 'a worker process'})")
+    figures_at, analyses, steps = [], [], []
 
     class TimedRerun:
         """The server's default re-run, noting when the figures are in and keeping the analysis."""
@@ -145,7 +147,14 @@ def main(argv=None) -> int:
             def on_partial(analysis):
                 figures_at.append(time.perf_counter())
                 partial(analysis)
-            analysis = rerun(folder_, progress=progress, partial=on_partial if partial else None)
+
+            def on_progress(description, done, total):
+                steps.append((time.perf_counter(), str(description)))
+                if progress is not None:
+                    progress(description, done, total)
+            steps.clear()
+            analysis = rerun(folder_, progress=on_progress, partial=on_partial if partial else None)
+            steps.append((time.perf_counter(), "end"))
             analyses.append(analysis)
             return analysis
 
@@ -168,7 +177,7 @@ def main(argv=None) -> int:
         idle.append(time.perf_counter() - q)
         time.sleep(0.02)
     rng = np.random.default_rng(7)
-    rows = []
+    rows, report_parts = [], []
     load0 = os.getloadavg()
     for _ in range(args.rounds):
         for kind in EDITS:
@@ -194,6 +203,12 @@ def main(argv=None) -> int:
             stages = {k: sec.get(k, 0.0) for k in ("review", "measure", "series", "periodicity")}
             stages["save figures"] = max(0.0, t_fig - sum(stages.values()))
             stages["report"] = sec.get("report", 0.0) if not args.no_report else 0.0
+            parts = {}  # the report's own steps, from its progress lines
+            for (t_a, what), (t_b, _) in zip(steps, steps[1:]):
+                if what.startswith("report:"):
+                    key = what.split(":")[-1].strip()
+                    parts[key] = parts.get(key, 0.0) + t_b - t_a
+            report_parts.append(parts)
             worst = {phase: max([x for x, p in latency if p == phase] or [0.0]) for phase in ("figures", "report")}
             rows.append({"kind": kind, "figures": t_fig, "done": t_done, "stages": stages,
                          "state_max_s": worst, "bands": st["n_bands"]})
@@ -217,6 +232,10 @@ def main(argv=None) -> int:
           f"(target <= {TARGET_S:.0f} s, aim {AIM_S:.0f} s): {'PASS' if fig <= TARGET_S else 'OVER'}")
     if not args.no_report:
         print(f"save, report done too: median {done:.2f} s (report stage is helper-owned bandgeo/report)")
+    if report_parts and any(report_parts):
+        keys = sorted({k for p in report_parts for k in p}, key=lambda k: -med([p.get(k, 0.0) for p in report_parts]))
+        print("report steps (median s, as its progress lines name them; time until the next line): " + ", ".join(
+            f"{k} {med([p.get(k, 0.0) for p in report_parts]):.2f}" for k in keys[:8]))
     print("stage split (median s): " + ", ".join(
         f"{k} {med([r['stages'][k] for r in rows]):.2f}" for k in rows[0]["stages"]))
     print("slowest /api/state reply while the figures were made: "

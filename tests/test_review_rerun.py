@@ -103,3 +103,28 @@ def test_a_worker_that_dies_fails_one_save_and_the_next_save_starts_a_new_one(lo
         app.wait(60)
         rerun.close()
     assert rerun.pid is None
+
+
+def test_a_script_without_a_main_guard_can_serve_the_page(long_folder, tmp_path):
+    """The worker is a fresh interpreter: a user's script that starts the page at module level (no
+    ``if __name__ == "__main__"``) is not run a second time in it."""
+    import subprocess
+    import sys
+    import textwrap
+
+    script = tmp_path / "my_review.py"
+    marker = tmp_path / "runs.txt"
+    script.write_text(textwrap.dedent(f"""
+        from pathlib import Path
+        from bandgeo.review.app import ProcessRerun
+        with open({str(marker)!r}, "a") as fh:
+            fh.write("run\\n")
+        rerun = ProcessRerun(report=False)
+        analysis = rerun({str(long_folder)!r})
+        rerun.close()
+        print(analysis.result["bands"]["count"])
+    """))
+    proc = subprocess.run([sys.executable, str(script)], capture_output=True, text=True, timeout=300)
+    assert proc.returncode == 0, proc.stderr[-2000:]
+    assert int(proc.stdout.strip().splitlines()[-1]) == _fresh(long_folder).result["bands"]["count"]
+    assert marker.read_text().count("run") == 1
