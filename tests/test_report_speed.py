@@ -75,6 +75,10 @@ def test_helper_pdf_is_the_in_process_pdf(state, tmp_path, monkeypatch):
     monkeypatch.setenv("BANDGEO_REPORT_FORK", "0")
     paths_b, sec_b = build_report(state, b, formats=("html", "pdf"))
     assert sec_a["pdf_parallel"] == 1.0 and sec_b["pdf_parallel"] == 0.0
+    assert sec_a["figures_parallel"] == 1.0 and "figures_parallel" not in sec_b
+    # the plots drawn in the helper are the very SVGs drawn in-process (fixed hash salt)
+    figs = [re.findall(r'src="(data:image/[^"]+)"', p["report.html"].read_text()) for p in (paths_a, paths_b)]
+    assert len(figs[0]) >= 3 and figs[0] == figs[1]
     assert _pages(paths_a["report.pdf"]) == _pages(paths_b["report.pdf"])
     assert _text(paths_a["report.pdf"]) == _text(paths_b["report.pdf"])
     for key in ("figures", "html", "pdf", "pdf_wait", "total"):
@@ -174,3 +178,10 @@ def test_specimen_figure_reads_the_cached_unroll(state, monkeypatch):
     a = np.asarray(Image.open(io.BytesIO(own)).convert("RGB"), float)
     b = np.asarray(Image.open(io.BytesIO(cached)).convert("RGB"), float)
     assert a.shape == b.shape and np.abs(a - b).mean() < 0.5
+
+
+def test_progress_counts_to_its_total(state, tmp_path):
+    seen = []
+    build_report(state, tmp_path, progress=lambda what, done, total: seen.append((done, total)))
+    dones = [d for d, _ in seen]
+    assert seen and dones == sorted(dones) and seen[-1][0] == seen[-1][1] and len({t for _, t in seen}) == 1

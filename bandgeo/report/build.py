@@ -3,6 +3,7 @@ the PDF typeset from that same page (WeasyPrint, print CSS), and the CSV and PLY
 from __future__ import annotations
 
 import datetime as _dt
+import json
 import time
 from pathlib import Path
 from typing import Any, Iterable, Mapping
@@ -269,7 +270,7 @@ def build_report(state: Any, folder=None, formats: Iterable[str] = FORMATS, prog
     paths: dict[str, Path] = {}
     seconds: dict[str, float] = {}
     docs = "html" in formats or "pdf" in formats
-    steps = (2 if "csv" in formats else 0) + ("ply" in formats) + (docs * 3) + ("pdf" in formats)
+    steps = (2 if "csv" in formats else 0) + ("ply" in formats) + (docs * 4) + ("pdf" in formats)
     done = 0
 
     def tick(what):
@@ -277,7 +278,7 @@ def build_report(state: Any, folder=None, formats: Iterable[str] = FORMATS, prog
         done += 1
         _progress(progress, what, done, steps)
 
-    t_start = time.perf_counter()
+    t_start, c_start = time.perf_counter(), time.process_time()
     typesetter = None
     if "pdf" in formats:
         from .typeset import Typesetter
@@ -286,14 +287,14 @@ def build_report(state: Any, folder=None, formats: Iterable[str] = FORMATS, prog
     try:
         pending = None
         if docs:
-            pending = _documents(state, formats, seconds, tick, t_start, typesetter)
+            pending = _documents(state, formats, seconds, tick, t_start, typesetter, c_start)
         _exports(state, folder, formats, paths, seconds, tick)
         if pending is not None:
             _finish_documents(state, folder, formats, paths, seconds, tick, t_start, typesetter, pending)
     finally:
         if typesetter is not None:
             typesetter.close()
-    seconds["total"] = time.perf_counter() - t_start
+    seconds["total"], seconds["cpu"] = time.perf_counter() - t_start, time.process_time() - c_start
     return paths, seconds
 
 
@@ -321,7 +322,7 @@ def _pdf_title(ctx) -> str:
     return f"Specimen {ctx['specimen_id']}: growth-band periodicity report"
 
 
-def _documents(state, formats, seconds, tick, t_start, typesetter):
+def _documents(state, formats, seconds, tick, t_start, typesetter, c_start=0.0):
     """Figures, context and page; the page goes to the PDF helper when there is one."""
     import matplotlib
 
@@ -331,14 +332,48 @@ def _documents(state, formats, seconds, tick, t_start, typesetter):
     tilt = tilt_summary(state)
     specs, omitted = figure_specs(state, tilt)
     tick("report: content")
-    figs = []
-    with matplotlib.rc_context({"font.size": 8}):
-        for f in specs:
+
+    def encode(f) -> str:
+        with matplotlib.rc_context({"font.size": 8}):
             fig = f["build"]()
-            figs.append({"id": f["id"], "number": f["number"], "title": f["title"], "caption": f["caption"],
-                         "raster": f["raster"], "src": figure_data_uri(fig, raster=f["raster"], dpi=110 if f["raster"] else 150,
-                                                 tight=f.get("tight", True))})
+            src = figure_data_uri(fig, raster=f["raster"], dpi=110 if f["raster"] else 150,
+                                  tight=f.get("tight", True))
             fig.clear()                               # figures hold their artists until collected
+        return src
+
+    # The vector plots are drawn in a forked helper while this process draws the specimen figure (both
+    # are mostly single-threaded); without the helper, or if it fails, they are drawn here.
+    srcs: dict[str, str] = {}
+    plots = [f for f in specs if not f["raster"]]
+    helper = None
+    if 2 <= len(plots) < len(specs):
+        from .typeset import Forked
+
+        def draw_plots() -> bytes:
+            c = time.process_time()
+            out = {f["id"]: encode(f) for f in plots}
+            return json.dumps({"srcs": out, "cpu": time.process_time() - c}).encode("ascii")
+
+        helper = Forked.start(draw_plots)
+    try:
+        for f in specs:
+            if helper is None or f["raster"]:
+                srcs[f["id"]] = encode(f)
+        if helper is not None:
+            answer = helper.result()
+            if answer is not None:
+                got = json.loads(answer.decode("ascii"))
+                srcs.update(got["srcs"])
+                seconds["figures_helper_cpu"] = float(got["cpu"])
+            seconds["figures_parallel"] = float(answer is not None)
+    finally:
+        if helper is not None:
+            helper.close()
+    for f in specs:                                   # anything the helper did not give
+        if f["id"] not in srcs:
+            srcs[f["id"]] = encode(f)
+    figs = [{"id": f["id"], "number": f["number"], "title": f["title"], "caption": f["caption"],
+             "raster": f["raster"], "src": srcs[f["id"]]} for f in specs]
     seconds["figures"], seconds["figures_cpu"] = time.perf_counter() - t0, time.process_time() - c0
     tick("report: figures")
     t0 = time.perf_counter()
@@ -348,6 +383,7 @@ def _documents(state, formats, seconds, tick, t_start, typesetter):
     sent = False
     if "pdf" in formats and typesetter is not None:
         sent = typesetter.submit(page, title=_pdf_title(ctx))
+    seconds["cpu_before_pdf"] = time.process_time() - c_start
     tick("report: page")
     return {"ctx": ctx, "page": page, "sent": sent}
 

@@ -37,7 +37,7 @@ def figure_data_uri(fig, raster: bool = False, dpi: int = 110, tight: bool = Tru
         # text stays text (smaller files, quicker to typeset, selectable in the PDF); fonts are DejaVu,
         # matplotlib's default, which the page's CSS names too
         with matplotlib.rc_context({"svg.fonttype": "none", "svg.hashsalt": "bandgeo", "font.family": "DejaVu Sans"}):
-            fig.savefig(buf, format="svg", dpi=dpi)
+            fig.savefig(buf, format="svg", dpi=dpi, metadata={"Date": None})   # same input, same bytes
         mime = "image/svg+xml"
     return f"data:{mime};base64,{base64.b64encode(buf.getvalue()).decode('ascii')}"
 

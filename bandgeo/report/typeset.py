@@ -192,17 +192,8 @@ class Typesetter:
                 except OSError:
                     pass
                 setattr(self, attr, -1)
-        if self.pid:
-            try:
-                done, _ = os.waitpid(self.pid, os.WNOHANG)
-                if done == 0:
-                    import signal
-
-                    os.kill(self.pid, signal.SIGKILL)
-                    os.waitpid(self.pid, 0)
-            except (ChildProcessError, ProcessLookupError, OSError):
-                pass
-            self.pid = 0
+        _reap(self.pid)
+        self.pid = 0
 
     def __enter__(self):
         return self
@@ -210,3 +201,88 @@ class Typesetter:
     def __exit__(self, *exc):
         self.close()
         return False
+
+
+class Forked:
+    """Run ``fn() -> bytes`` in a forked child while this process does something else.
+
+    ``Forked.start(fn)`` returns None where forking is not allowed (see :func:`fork_allowed`);
+    ``result(timeout)`` gives the bytes, or None if the child failed, died or timed out (the caller then
+    runs ``fn`` itself); always ``close()``. The report draws its vector plots this way while it draws
+    the specimen figure: both are mostly single-threaded Python and the machine has two cores.
+    """
+
+    def __init__(self, pid: int, r_out: int):
+        self.pid, self._r_out = pid, r_out
+        self.error: str | None = None
+
+    @classmethod
+    def start(cls, fn) -> "Forked | None":
+        if not fork_allowed():
+            return None
+        try:
+            r_out, w_out = os.pipe()
+        except OSError:
+            return None
+        try:
+            pid = os.fork()
+        except OSError:
+            os.close(r_out)
+            os.close(w_out)
+            return None
+        if pid == 0:
+            code = 1
+            try:
+                os.close(r_out)
+                try:
+                    data = fn()
+                    _write_all(w_out, _frame(b"K", data))
+                except Exception as exc:  # noqa: BLE001 - reported; the parent runs fn itself
+                    _write_all(w_out, _frame(b"E", f"{type(exc).__name__}: {exc}".encode("utf-8", "replace")))
+                code = 0
+            except BaseException:  # noqa: BLE001
+                code = 1
+            finally:
+                os._exit(code)
+        os.close(w_out)
+        return cls(pid, r_out)
+
+    def result(self, timeout: float | None = None) -> bytes | None:
+        if self._r_out < 0:
+            return None
+        wait = TIMEOUT_S if timeout is None else float(timeout)
+        try:
+            parts = _read_frame(self._r_out, 2, deadline=time.monotonic() + wait)
+        except OSError as exc:
+            parts, self.error = None, f"reading from the helper failed ({exc})"
+        if parts is None:
+            self.error = self.error or "the helper process gave no answer"
+            return None
+        if parts[0] != b"K":
+            self.error = parts[1].decode("utf-8", "replace")
+            return None
+        return parts[1]
+
+    def close(self) -> None:
+        if self._r_out >= 0:
+            try:
+                os.close(self._r_out)
+            except OSError:
+                pass
+            self._r_out = -1
+        _reap(self.pid)
+        self.pid = 0
+
+
+def _reap(pid: int) -> None:
+    if not pid:
+        return
+    try:
+        done, _ = os.waitpid(pid, os.WNOHANG)
+        if done == 0:
+            import signal
+
+            os.kill(pid, signal.SIGKILL)
+            os.waitpid(pid, 0)
+    except (ChildProcessError, ProcessLookupError, OSError):
+        pass
