@@ -10,7 +10,9 @@ Modules: ``build`` (orchestration), ``content`` (what the page says: headline, t
 (sway plane, sway amplitude, mean lean), ``figures``, ``comparison`` and ``specimen_view`` (figures),
 ``spectra`` (reading the saved spectra), ``references`` (published reference points), ``html`` (the
 page), ``pdf`` (the same page typeset by WeasyPrint), ``exports`` (CSV, PLY) and ``palette``
-(colour-blind-safe colours). ``unroll`` and ``render3d`` are older helpers kept for callers. Matplotlib, jinja2 and WeasyPrint are imported only when a report is built.
+(colour-blind-safe colours), ``typeset`` (forked helpers: the PDF is typeset, and the vector plots
+drawn, in child processes while this one draws the specimen figure; ``BANDGEO_REPORT_FORK=0`` keeps
+everything in-process). ``unroll`` and ``render3d`` are older helpers kept for callers. Matplotlib, jinja2 and WeasyPrint are imported only when a report is built.
 """
 from __future__ import annotations
 
