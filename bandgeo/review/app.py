@@ -153,6 +153,8 @@ class ProcessRerun:
         with self._lock:
             try:
                 self._start(folder)
+                if not self._ready and progress is not None:
+                    progress("loading the specimen for re-runs", 0, 1)
                 self._conn.send(("run", partial is not None))
                 while True:
                     kind, payload = self._conn.recv()
