@@ -185,3 +185,16 @@ def test_progress_counts_to_its_total(state, tmp_path):
     build_report(state, tmp_path, progress=lambda what, done, total: seen.append((done, total)))
     dones = [d for d, _ in seen]
     assert seen and dones == sorted(dones) and seen[-1][0] == seen[-1][1] and len({t for _, t in seen}) == 1
+
+
+@needs_fork
+def test_hung_plot_helper_falls_back(state, tmp_path, monkeypatch):
+    from bandgeo.report import build
+
+    real_start = typeset.Forked.start
+    monkeypatch.setattr(typeset.Forked, "start", classmethod(lambda cls, fn: real_start(lambda: time.sleep(600))))
+    monkeypatch.setattr(build, "PLOT_TIMEOUT_S", 1.0)
+    paths, seconds = build_report(state, tmp_path, formats=("html",))
+    assert seconds["figures_parallel"] == 0.0
+    html = paths["report.html"].read_text()
+    assert html.count("data:image/svg+xml") >= 3 and "Figure 2." in html

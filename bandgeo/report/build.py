@@ -19,6 +19,8 @@ from .references import reference_points
 from .spectra import normalise_evolutive, normalise_spectra
 
 FORMATS = ("html", "pdf", "csv", "ply")
+#: Seconds the report waits for the plots drawn in a helper process before drawing them itself.
+PLOT_TIMEOUT_S = 120.0
 OUTPUT_NAMES = {"html": ["report.html"], "pdf": ["report.pdf"], "csv": ["bands.csv", "spectra.csv"],
                 "ply": ["labelled_mesh.ply"]}
 
@@ -360,7 +362,7 @@ def _documents(state, formats, seconds, tick, t_start, typesetter, c_start=0.0):
             if helper is None or f["raster"]:
                 srcs[f["id"]] = encode(f)
         if helper is not None:
-            answer = helper.result()
+            answer = helper.result(timeout=PLOT_TIMEOUT_S)
             if answer is not None:
                 got = json.loads(answer.decode("ascii"))
                 srcs.update(got["srcs"])

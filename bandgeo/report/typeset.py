@@ -42,6 +42,17 @@ def fork_allowed() -> bool:
             and os.environ.get("BANDGEO_REPORT_FORK", "1").strip() not in ("0", "no", "false", ""))
 
 
+def _quiet_child() -> None:
+    """In a forked child: fresh stdout/stderr objects on /dev/null. A thread of the parent (a progress
+    display, a web server) may have held their locks at the fork; the child must never wait on them,
+    and has nothing to print (failures go back through the pipe)."""
+    try:
+        sink = open(os.devnull, "w", encoding="utf-8")
+        sys.stdout = sys.stderr = sink
+    except OSError:
+        pass
+
+
 def _write_all(fd: int, data: bytes) -> None:
     view = memoryview(data)
     while view:
@@ -136,6 +147,7 @@ class Typesetter:
         if pid == 0:                                    # the helper: never returns to the caller
             code = 1
             try:
+                _quiet_child()
                 os.close(w_page)
                 os.close(r_pdf)
                 _child(r_page, w_pdf)
@@ -233,6 +245,7 @@ class Forked:
         if pid == 0:
             code = 1
             try:
+                _quiet_child()
                 os.close(r_out)
                 try:
                     data = fn()
