@@ -124,7 +124,7 @@ def _result_folder(faces: float, cache: Path, env: dict, fresh: bool) -> Path:
         info = _child(["make", str(faces), str(mesh)], env, timeout=3600)
         if "failed" in info:
             raise SystemExit(f"could not make the scan: {info['failed']}")
-    out = mesh / "analysis-for-report"
+    out = cache / f"report-analysis-{size_m:g}M-seed{SYNTH_SEED}-sway{SWAY_DEG:g}"    # beside, not inside, the scan's folder
     if fresh or not (out / "result.json").exists():
         print(f"analysing {scan} once (no report) into {out} ...", flush=True)
         info = _child(["analyze", str(scan), str(out)], env, timeout=3600)
