@@ -128,6 +128,7 @@ class Typesetter:
         self.pid, self._w_page, self._r_pdf = pid, w_page, r_pdf
         self.error: str | None = None
         self._sent = False
+        self._sender = None
 
     @classmethod
     def start(cls) -> "Typesetter | None":
@@ -161,19 +162,27 @@ class Typesetter:
         return cls(pid, w_page, r_pdf)
 
     def submit(self, page: str, title: str | None = None) -> bool:
-        """Send the finished page; False if the helper is gone (the caller then typesets itself)."""
+        """Send the finished page (from a short-lived thread, so that the caller goes on with its own
+        work while the helper may still be warming up); False if it cannot be sent."""
         if self._sent or self._w_page < 0:
             return False
         self._sent = True
-        try:
-            _write_all(self._w_page, _frame((title or "").encode("utf-8"), page.encode("utf-8")))
-            return True
-        except OSError as exc:
-            self.error = f"the PDF helper process could not take the page ({exc})"
-            return False
-        finally:
-            os.close(self._w_page)
-            self._w_page = -1
+        data = _frame((title or "").encode("utf-8"), page.encode("utf-8"))
+        fd, self._w_page = self._w_page, -1
+
+        def send():
+            try:
+                _write_all(fd, data)
+            except OSError as exc:
+                self.error = f"the PDF helper process could not take the page ({exc})"
+            finally:
+                os.close(fd)
+
+        import threading
+
+        self._sender = threading.Thread(target=send, name="bandgeo-pdf-page", daemon=True)
+        self._sender.start()
+        return True
 
     def result(self, timeout: float | None = None):
         """``(pdf_bytes, seconds)``, or None when the helper failed; ``seconds`` holds the helper's wall
@@ -184,6 +193,8 @@ class Typesetter:
         try:
             wait = TIMEOUT_S if timeout is None else float(timeout)
             parts = _read_frame(self._r_pdf, 3, deadline=time.monotonic() + wait)
+            if self._sender is not None:
+                self._sender.join(timeout=5.0)
         except OSError as exc:
             parts, self.error = None, f"reading from the PDF helper failed ({exc})"
         if parts is None:
