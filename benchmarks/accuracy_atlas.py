@@ -120,7 +120,7 @@ def score(truth, seg):
             "n_true": n_true, "n_found": int(len(det_inner))}
 
 
-def score_planes(truth, seg, specimen):
+def score_planes(truth, seg, specimen, min_edges=3.0):
     """As :func:`score`, but a detection is matched by geometry rather than by arc length.
 
     Each detected boundary's centre (specimen frame) is put against every true boundary plane (the
@@ -160,7 +160,14 @@ def score_planes(truth, seg, specimen):
     heights = np.array([x.height_mm for x in bounds])[~rim] if len(det) else np.zeros(0)
     true_mean = float(np.mean(np.diff(h[1:-1]))) if len(h) > 3 else float("nan")
     det_mean = float(np.mean(np.diff(heights))) if len(heights) > 1 else float("nan")
+    # recall over the boundaries both of whose laminae span at least `min_edges` edge lengths (the
+    # ones a scan of this sampling can show: an irregular record holds laminae far thinner than its mean)
+    edge = float(truth.get("mesh", {}).get("edge_mm") or truth.get("mesh", {}).get("edge_length_mm") or 0.0)
+    ok_j = np.array([j for j in range(1, len(h) - 1) if min(th[j - 1], th[j]) >= min_edges * edge]) if edge > 0 else np.zeros(0, int)
+    hit = set(match[match >= 0].tolist())
+    recall_res = float(np.mean([j in hit for j in ok_j])) if len(ok_j) else float("nan")
     return {"recall": tp / max(n_true, 1), "precision": tp / n_det if n_det else float("nan"),
+            "recall_resolvable": recall_res, "n_resolvable": int(len(ok_j)),
             "count_error": (n_det - n_true) / n_true if n_true else float("nan"),
             "thickness_error": (det_mean - true_mean) / true_mean if np.isfinite(det_mean) else float("nan"),
             "n_true": n_true, "n_found": n_det, "matched_by": "plane"}

@@ -239,3 +239,17 @@ def test_non_column_shapes_report_no_bands():
     spec = SimpleNamespace(vertices_mm=np.asarray(tiny.vertices), faces=np.asarray(tiny.faces), colors=None)
     with pytest.raises(InputError):
         BandSegmenter().fit(spec, compute_features(spec))
+
+
+def test_mixture_posterior_matches_scikit_learn():
+    # the segmenter's float32 posterior against scikit-learn's GaussianMixture.predict_proba (the
+    # reference implementation of Bishop 2006, eq. 9.23), full and diagonal covariances
+    from sklearn.mixture import GaussianMixture
+
+    from bandgeo.segment import cluster
+
+    rng = np.random.default_rng(0)
+    X = np.r_[rng.normal(0, 1, (3000, 5)), rng.normal(2, 0.5, (2000, 5))].astype(np.float32)
+    for kind in ("full", "diag"):
+        gm = GaussianMixture(3, covariance_type=kind, random_state=0).fit(X.astype(float))
+        np.testing.assert_allclose(cluster.predict_proba(gm, X), gm.predict_proba(X.astype(float)), atol=1e-4)

@@ -19,7 +19,9 @@ from scipy.signal import savgol_filter
 
 #: A slab counts for the centreline when it holds this fraction of a full slab's vertices: the end
 #: slabs of a column cut across at a slant hold a partial ring, whose circle centre is pulled aside.
-FULL_SLAB = 0.9
+FULL_SLAB = 0.75
+#: ... and its thinnest sixteenth of the circumference holds this fraction of the median sixteenth.
+BALANCED_SLAB = 0.5
 
 
 @dataclass
@@ -47,18 +49,41 @@ class Centreline:
         """
         s_arr = np.atleast_1d(np.asarray(s, dtype=float))
         h, p, t = self.heights_mm, self.points_mm, self.tangents
-        # one search, shared weights for the six coordinates (linear interpolation, clamped)
-        i = np.clip(np.searchsorted(h, s_arr), 1, len(h) - 1)
-        w = np.clip((s_arr - h[i - 1]) / (h[i] - h[i - 1]), 0.0, 1.0)[:, None]
-        pts = p[i - 1] * (1.0 - w) + p[i] * w
-        tan = t[i - 1] * (1.0 - w) + t[i] * w
+        # one search, shared weights for the six coordinates (linear interpolation, clamped); the
+        # segment differences are computed once per curve (this runs on every vertex several times)
+        dp, dt = self._diffs()
+        i = np.clip(np.searchsorted(h, s_arr), 1, len(h) - 1) - 1
+        w = np.clip((s_arr - h[i]) / (h[i + 1] - h[i]), 0.0, 1.0)[:, None]
+        pts = p[i] + w * dp[i]
+        tan = t[i] + w * dt[i]
         lo, hi = s_arr < h[0], s_arr > h[-1]
-        pts[lo] = p[0] + (s_arr[lo] - h[0])[:, None] * t[0]
-        pts[hi] = p[-1] + (s_arr[hi] - h[-1])[:, None] * t[-1]
-        tan /= np.linalg.norm(tan, axis=1, keepdims=True)
+        if lo.any():
+            pts[lo] = p[0] + (s_arr[lo] - h[0])[:, None] * t[0]
+        if hi.any():
+            pts[hi] = p[-1] + (s_arr[hi] - h[-1])[:, None] * t[-1]
+        tan /= np.sqrt(np.einsum("ij,ij->i", tan, tan))[:, None]
         if np.ndim(s) == 0:
             return pts[0], tan[0]
         return pts, tan
+
+    def _diffs(self):
+        cache = self.__dict__.get("_diff_cache")
+        if cache is None or cache[0] is not self.points_mm or cache[1] is not self.tangents:
+            cache = (self.points_mm, self.tangents, np.diff(self.points_mm, axis=0), np.diff(self.tangents, axis=0))
+            self.__dict__["_diff_cache"] = cache
+        return cache[2], cache[3]
+
+    def approx_s(self, vertices: np.ndarray) -> np.ndarray:
+        """Arc length of each vertex's position along the chord (no iterations): within a few tenths of
+        a radius of :meth:`project` on a bent column; for tangents and coarse selections."""
+        h, p = self.heights_mm, self.points_mm
+        chord = p[-1] - p[0]
+        if np.linalg.norm(chord) < 1e-12:
+            chord = self.tangents[0]
+        chord = chord / np.linalg.norm(chord)
+        u_pts = (p - p[0]) @ chord
+        order = np.argsort(u_pts)
+        return np.interp((vertices - p[0]) @ chord, u_pts[order], h[order])
 
     def project(self, vertices: np.ndarray, iterations: int = 3):
         """Arc length of the normal plane through each vertex, and the radial offset vector.
@@ -73,14 +98,7 @@ class Centreline:
         radial : (n, 3) float, mm
             ``v - c(s)``, perpendicular to the tangent at ``s``.
         """
-        h, p = self.heights_mm, self.points_mm
-        chord = p[-1] - p[0]
-        if np.linalg.norm(chord) < 1e-12:
-            chord = self.tangents[0]
-        chord = chord / np.linalg.norm(chord)
-        u_pts = (p - p[0]) @ chord
-        order = np.argsort(u_pts)
-        s = np.interp((vertices - p[0]) @ chord, u_pts[order], h[order])
+        s = self.approx_s(vertices)
         for _ in range(iterations):
             c, t = self.at(s)
             s = s + np.einsum("ij,ij->i", vertices - c, t)
@@ -152,7 +170,8 @@ def _straight(vertices: np.ndarray, axis: np.ndarray) -> Centreline:
 
 
 def fit_centreline(vertices: np.ndarray, wall: np.ndarray, axis0: np.ndarray, slab_mm: float,
-                   smooth_mm: float, passes: int = 2, noise_mm: float = 0.0, faces=None) -> Centreline:
+                   smooth_mm: float, passes: int = 2, noise_mm: float = 0.0, faces=None,
+                   smooth_max_mm: float | None = None, candidates=None):
     """Centreline through circle centres of slabs of the side wall.
 
     Parameters
@@ -165,7 +184,8 @@ def fit_centreline(vertices: np.ndarray, wall: np.ndarray, axis0: np.ndarray, sl
     slab_mm : float
         Slab thickness along the axis.
     smooth_mm : float
-        Gaussian smoothing of the centres along the axis (mm, sigma).
+        Gaussian smoothing of the centres along the axis (mm, sigma); with ``smooth_max_mm``, the
+        least smoothing, raised by :func:`auto_smooth` as far as the slab centres' scatter needs.
     passes : int
         Each pass cuts the slabs across the previous pass's curve.
     noise_mm : float
@@ -173,16 +193,21 @@ def fit_centreline(vertices: np.ndarray, wall: np.ndarray, axis0: np.ndarray, sl
     faces : (m, 3) int, optional
         With faces, an open base is found as the mesh's lowest boundary loop.
 
+    candidates : sequence of float, optional
+        Several smoothings (sigma, mm): the last pass returns one centreline for each (a list), the
+        earlier passes use their median.
+
     Returns
     -------
-    Centreline
+    Centreline (or a list of them, with ``candidates``)
         Arc length 0 at the base: the lowest part of the whole mesh along the curve.
     """
     line = _straight(vertices[wall], axis0)
     vw = vertices[wall]
     c0 = vw - vw.mean(axis=0)
     radius_mm = float(np.median(np.linalg.norm(c0 - np.outer(c0 @ axis0, axis0), axis=1))) if len(vw) else 1.0
-    for _ in range(passes):
+    lines = []
+    for it in range(passes):
         s, radial = line.project(vw)
         e1, e2 = line.frame(s)
         x = np.einsum("ij,ij->i", radial, e1)
@@ -199,6 +224,10 @@ def fit_centreline(vertices: np.ndarray, wall: np.ndarray, axis0: np.ndarray, sl
         from scipy.ndimage import maximum_filter1d
         ref = maximum_filter1d(counts.astype(float), size=max(5, int(4 * radius_mm / slab_mm) | 1), mode="nearest")
         full = counts >= FULL_SLAB * np.maximum(ref, 1.0)
+        # ... and whose vertices go all round: an end cut at a slant leaves one side of the slab thin
+        sec = np.minimum(((np.arctan2(y, x) + np.pi) / (2 * np.pi) * 16).astype(np.int64), 15)
+        per = np.bincount(u * 16 + sec, minlength=nb * 16).reshape(nb, 16).astype(float)
+        full &= per.min(axis=1) >= BALANCED_SLAB * np.maximum(np.median(per, axis=1), 1.0)
         ok = np.isfinite(cx) & full
         if ok.sum() < 2:
             break
@@ -207,19 +236,55 @@ def fit_centreline(vertices: np.ndarray, wall: np.ndarray, axis0: np.ndarray, sl
         base, _ = line.at(ms[ok])
         be1, be2 = line.frame(ms[ok])
         pts = base + cx[ok, None] * be1 + cy[ok, None] * be2
-        pts = _smooth(pts, smooth_mm / slab_mm)
-        seg = np.linalg.norm(np.diff(pts, axis=0), axis=1)
-        keep = np.r_[True, seg > 1e-9]
-        pts = pts[keep]
-        arc = np.r_[0.0, np.cumsum(np.linalg.norm(np.diff(pts, axis=0), axis=1))]
-        tan = np.gradient(pts, arc, axis=0) if len(pts) > 2 else np.repeat((pts[1:] - pts[:1]), 2, axis=0)
-        tan /= np.linalg.norm(tan, axis=1, keepdims=True)
-        if tan[:, 2].mean() < 0 and np.dot(tan.mean(axis=0), axis0) < 0:
-            pts, tan, arc = pts[::-1], -tan[::-1], arc[-1] - arc[::-1]
-        line = Centreline(arc, pts, tan)
+        last = it == passes - 1
+        if candidates is not None:
+            sigmas = list(candidates) if last else [float(np.median(candidates))]
+        else:
+            sigmas = [smooth_mm if smooth_max_mm is None else auto_smooth(pts, slab_mm, smooth_mm, smooth_max_mm)]
+        lines = [_curve(pts, sg / slab_mm, axis0) for sg in sigmas]
+        line = lines[len(lines) // 2]
     # arc length 0 at the lowest point of the whole mesh along the curve
-    shift = _base_height(line, vertices, wall, noise_mm, faces)
-    return Centreline(line.heights_mm - shift, line.points_mm, line.tangents)
+    out = []
+    for ln in (lines if lines else [line]):
+        shift = _base_height(ln, vertices, wall, noise_mm, faces)
+        out.append(Centreline(ln.heights_mm - shift, ln.points_mm, ln.tangents))
+    return out if candidates is not None else out[0]
+
+
+def _curve(pts: np.ndarray, sigma_samples: float, axis0: np.ndarray) -> Centreline:
+    """Smoothed centreline through slab centres, arc-length parametrised, pointing along ``axis0``."""
+    pts = _smooth(pts, sigma_samples)
+    seg = np.linalg.norm(np.diff(pts, axis=0), axis=1)
+    keep = np.r_[True, seg > 1e-9]
+    pts = pts[keep]
+    arc = np.r_[0.0, np.cumsum(np.linalg.norm(np.diff(pts, axis=0), axis=1))]
+    tan = np.gradient(pts, arc, axis=0) if len(pts) > 2 else np.repeat((pts[1:] - pts[:1]), 2, axis=0)
+    tan /= np.linalg.norm(tan, axis=1, keepdims=True)
+    if tan[:, 2].mean() < 0 and np.dot(tan.mean(axis=0), axis0) < 0:
+        pts, tan, arc = pts[::-1], -tan[::-1], arc[-1] - arc[::-1]
+    return Centreline(arc, pts, tan)
+
+
+#: Tangent error (rad) the centreline's smoothing aims for against the scatter of the slab centres.
+TANGENT_ERROR_RAD = np.radians(0.3)
+
+
+def auto_smooth(pts: np.ndarray, slab_mm: float, lo_mm: float, hi_mm: float) -> float:
+    """Smoothing (sigma, mm) that holds the tangent error from slab-centre scatter near 0.3 degrees.
+
+    The scatter ``d`` of independent centre errors is read from second differences of the centres
+    (var = 6 d^2; a real bend adds little over three slabs). A local fit over about four sigma gives a
+    slope error of about ``d / sigma * sqrt(slab / sigma)``, so sigma = (d sqrt(slab) / e)^(2/3). A
+    round, well-sampled column keeps the least smoothing and so follows its meander; an elliptical or
+    noisy section gets more (bounded by ``hi_mm``), and the tilt field takes up what is left.
+    """
+    if len(pts) < 7:
+        return float(lo_mm)
+    d2 = pts[2:] - 2 * pts[1:-1] + pts[:-2]
+    d2 = d2 - np.median(d2, axis=0)
+    scatter = float(1.4826 * np.median(np.linalg.norm(d2, axis=1)) / np.sqrt(6.0 * 2.0))  # 2 components
+    sigma = (scatter * np.sqrt(slab_mm) / TANGENT_ERROR_RAD) ** (2.0 / 3.0)
+    return float(np.clip(sigma, lo_mm, max(lo_mm, hi_mm)))
 
 
 def _smooth(pts: np.ndarray, sigma_samples: float) -> np.ndarray:
@@ -242,14 +307,22 @@ def _base_height(line: Centreline, vertices: np.ndarray, wall: np.ndarray, noise
     or without faces the lowest side-wall vertices. Medians keep scanner noise from pulling the base
     below the surface (common practice).
     """
+    # Only the vertices near the low end matter: select them by the cheap chord position (good to a
+    # fraction of a radius), then project just those (a full projection of a 10 M-vertex mesh is slow).
+    wall = wall if wall.any() else np.ones(len(vertices), bool)
+    s_apx = line.approx_s(vertices)
+    widx = np.flatnonzero(wall)
+    sub = widx[:: max(1, len(widx) // 50_000)]
+    r_wall = float(np.median(np.linalg.norm(line.project(vertices[sub])[1], axis=1)))
+    cand = np.flatnonzero(s_apx < float(s_apx[widx].min()) + 2.5 * r_wall)
+    vertices, wall = vertices[cand], wall[cand]
     s_all, radial = line.project(vertices)
     rho = np.linalg.norm(radial, axis=1)
-    r_wall = float(np.median(rho[wall])) if wall.any() else float(np.median(rho))
     s_wall = s_all[wall] if wall.any() else s_all
     low_wall = float(s_wall.min())
     tol = 6.0 * noise_mm if np.isfinite(noise_mm) and noise_mm > 0 else 0.0
     # tilt allowance: a fifth of the radius, but never reaching the far end of a short, wide stretch
-    allow = min(0.2 * r_wall, 0.25 * float(s_wall.max() - low_wall))
+    allow = min(0.2 * r_wall, 0.25 * float(s_apx[widx].max() - low_wall))
     # cap vertices near the axis, below the lowest part of the side wall plus the tilt allowance
     near = (rho < r_wall / 3.0) & (s_all < low_wall + allow)
     if near.sum() >= 3:
@@ -259,7 +332,7 @@ def _base_height(line: Centreline, vertices: np.ndarray, wall: np.ndarray, noise
     if faces is not None and len(faces):
         from ..features.curvature import boundary_vertices
 
-        rim = boundary_vertices(np.asarray(faces), len(vertices)) & (s_all < low_wall + allow)
+        rim = boundary_vertices(np.asarray(faces), len(s_apx))[cand] & (s_all < low_wall + allow)
         if rim.sum() >= 3:
             return float(np.median(s_all[rim]))
     ring = s_wall[s_wall <= low_wall + max(tol, 1e-9)]

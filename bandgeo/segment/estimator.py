@@ -37,7 +37,7 @@ class BandSegmenter:
         Number of curvature classes, or 'bic' to pick it (1..max_classes) by the Bayesian information
         criterion (Schwarz 1978, Ann. Stat. 6:461-464).
     max_classes : int, default=6
-    subsample : int, default=250_000
+    subsample : int, default=150_000
         Side-wall vertices used to fit the mixture; all vertices are then predicted.
     random_state : int, default=DEFAULT_SEED
     covariance_type : {'full', 'diag'}, default='full'
@@ -90,7 +90,7 @@ class BandSegmenter:
     7. Resolution honesty (:mod:`bandgeo.segment.resolution`), in each boundary's own frame.
     """
 
-    def __init__(self, n_classes="bic", max_classes=6, subsample=250_000, random_state=DEFAULT_SEED,
+    def __init__(self, n_classes="bic", max_classes=6, subsample=150_000, random_state=DEFAULT_SEED,
                  covariance_type="full", bic_subsample=10_000, use_luminance=False, min_relief_to_noise=0.0,
                  min_groove_z=resolution.MIN_GROOVE_Z, max_wall_vertices=MAX_WALL_VERTICES):
         self.n_classes = n_classes

@@ -37,6 +37,8 @@ def frame(v, faces, features, rng, max_wall, run):
     samp0 = float(features.sampling_along_mm) if np.isfinite(features.sampling_along_mm) else 0.05
     noise = float(features.noise_mm)
     axis_c = coarse_centreline(v, wall, axis0, samp0, noise, faces, rng)
+    if "smoothing" in axis_c.__dict__:
+        run.info["centreline_smoothing"] = axis_c.__dict__["smoothing"]
     wall_idx = np.flatnonzero(wall)
     if len(wall_idx) > max_wall:
         keep = np.sort(rng.choice(len(wall_idx), size=max_wall, replace=False))
@@ -51,9 +53,8 @@ def frame(v, faces, features, rng, max_wall, run):
     samp = samp0
     if faces is not None:
         # sampling interval along the coarse centreline's local tangent (not the rough straight axis)
-        tang = np.empty_like(v)
-        s_all, _ = axis_c.project(v)
-        tang[:] = axis_c.at(s_all)[1]
+        # (the tangent turns slowly: the chord position is close enough, no projection of every vertex)
+        tang = axis_c.at(axis_c.approx_s(v))[1]
         samp = sampling_along(v, faces, tang)
         del tang
     run.info["radius_mm"] = W.radius_mm

@@ -69,10 +69,12 @@ def coarse_centreline(v: np.ndarray, wall: np.ndarray, axis0: np.ndarray, sampli
                       faces, rng: np.random.Generator) -> Centreline:
     """Centreline through slab circle centres, slabs about a tenth of the radius thick.
 
-    The centres are smoothed over three quarters of a radius: a column does not bend within less than
-    its own width, while slab centres of an elliptical or obliquely cut section scatter by tenths of a
-    millimetre (smoothing over a slab or two let the tangent swing by tens of degrees near a cut end).
-    Sway faster than that is left to the tilt field (:mod:`bandgeo.segment.tilt`)."""
+    The centres are smoothed over a slab and a half, or more where their scatter needs it
+    (:func:`bandgeo.segment.axis.auto_smooth`), up to three quarters of a radius: slab centres of an
+    elliptical or noisy section scatter by tenths of a millimetre (smoothing over a slab or two let the
+    tangent swing by tens of degrees near a cut end), while a round, finely sampled column keeps
+    following its meander. Sway faster than the smoothing is left to the tilt field
+    (:mod:`bandgeo.segment.tilt`)."""
     wall_axis = wall.copy()
     idx = np.flatnonzero(wall)
     if len(idx) > AXIS_SUBSAMPLE:
@@ -84,8 +86,38 @@ def coarse_centreline(v: np.ndarray, wall: np.ndarray, axis0: np.ndarray, sampli
     slab = max(radius / 10.0, 5.0 * sampling_mm)
     length = float(np.ptp(c @ axis0)) if len(c) else 0.0
     # ... but over no more than an eighth of the stretch, so that a short stretch keeps its own bend
-    smooth = max(1.5 * slab, min(CENTRELINE_SMOOTH_RADII * radius, length / 8.0))
-    return fit_centreline(v, wall_axis, axis0, slab_mm=slab, smooth_mm=smooth, noise_mm=noise_mm, faces=faces)
+    smooth_max = max(1.5 * slab, min(CENTRELINE_SMOOTH_RADII * radius, length / 8.0))
+    cands = sorted({round(x, 6) for x in np.geomspace(1.5 * slab, smooth_max, 3)})
+    lines = fit_centreline(v, wall_axis, axis0, slab_mm=slab, smooth_mm=1.5 * slab, noise_mm=noise_mm,
+                           faces=faces, candidates=cands)
+    if len(lines) == 1:
+        return lines[0]
+    # the smoothing whose centreline leaves the laminae most nearly square to it: the ring-averaged
+    # relief keeps the most groove contrast (a tilted or wandering centreline smears the grooves of
+    # a ring over one another; the noise is the same for every candidate)
+    idx = np.flatnonzero(wall_axis)
+    sub = idx[:: max(1, len(idx) // 200_000)]
+    scores = [ring_contrast(v[sub], ln, sampling_mm) for ln in lines]
+    best = int(np.argmax(scores))
+    lines[best].__dict__["smoothing"] = {"sigma_mm": float(cands[best] if len(cands) == len(lines) else float("nan")),
+                                         "candidates_mm": [float(c) for c in cands],
+                                         "ring_contrast": [float(x) for x in scores]}
+    return lines[best]
+
+
+def ring_contrast(vw: np.ndarray, line: Centreline, sampling_mm: float) -> float:
+    """Variance of the ring-averaged relief along ``line`` (bins of half a sampling interval), mm^2."""
+    s, radial = line.project(vw)
+    r = np.linalg.norm(radial, axis=1)
+    e1, e2 = line.frame(s)
+    theta = np.arctan2(np.einsum("ij,ij->i", radial, e2), np.einsum("ij,ij->i", radial, e1))
+    rel = relief_highpass(s, theta, r, float(np.median(r)))
+    b = max(0.5 * sampling_mm, 1e-6)
+    ib = ((s - s.min()) / b).astype(np.int64)
+    cnt = np.bincount(ib)
+    mean = np.bincount(ib, rel) / np.maximum(cnt, 1)
+    ok = cnt >= 3
+    return float(np.sum(cnt[ok] * mean[ok] ** 2) / max(np.sum(cnt[ok]), 1))
 
 
 def unroll(v: np.ndarray, wall_idx: np.ndarray, axis: Centreline) -> Wall:
