@@ -14,7 +14,9 @@ The result folder is made once per size from the forward model's photogrammetric
 Prints the median over the repeats of the stage's wall seconds and its split: figures (drawing and
 encoding), page, PDF typesetting (in the helper process, see ``bandgeo.report.typeset``) and the time
 the stage waited for it, CSV, PLY; CPU seconds of the stage and of the PDF helper; peak memory; the load
-average. ``--serial`` also times the PDF typeset in-process (``BANDGEO_REPORT_FORK=0``) for comparison.
+average. The helpers are forced on (``BANDGEO_REPORT_FORK=1``); by default the report uses them only
+while the machine is not busy. ``--serial`` also times everything in one process
+(``BANDGEO_REPORT_FORK=0``), alternating with the helper runs so that both see the same load.
 
     python benchmarks/bench_report.py [--faces 2000000] [--repeats 3] [--folder DIR] [--serial]
 """
@@ -166,7 +168,7 @@ def summarise(label: str, runs: list[dict]) -> None:
     cpu = _median(ok, lambda r: r["cpu"])
     pdf_cpu = _median(ok, lambda r: r["seconds"].get("pdf_cpu"))
     warm_cpu = _median(ok, lambda r: r["seconds"].get("pdf_warm_cpu"))
-    where = "in a helper process, alongside the figures" if par else "in this process, after the figures"
+    where = "in a helper process, alongside the figures" if par else "in the stage's own process, after the figures"
     print(f"    PDF typeset {where}" + (f"; the helper's WeasyPrint import and warm-up {warm:.2f} s" if par and warm
                                          is not None else ""))
     plots_cpu = _median(ok, lambda r: r["seconds"].get("figures_helper_cpu"))
@@ -210,14 +212,20 @@ def main(argv=None) -> int:
         folders = [_result_folder(f, args.cache, env, args.fresh) for f in sizes]
     print(f"load average at the start: {', '.join(f'{x:.2f}' for x in os.getloadavg())} on {os.cpu_count()} cores "
           f"(wall seconds stretch with load; compare CPU seconds and runs made together)")
-    modes = [("helper process", "1")] + ([("in-process PDF", "0")] if args.serial else [])
+    from bandgeo.report.typeset import machine_has_room
+
+    print(f"at this load the report would {'use' if machine_has_room() else 'not use'} helper processes "
+          f"(BANDGEO_REPORT_FORK unset)")
+    modes = [("helper processes", "1")] + ([("one process", "0")] if args.serial else [])
     for folder in folders:
-        for name, fork in modes:
-            runs = []
-            for _ in range(args.repeats):
-                runs.append(_child(["report", str(folder)], dict(env, BANDGEO_REPORT_FORK=fork), timeout=1800))
-            faces = next((r["faces"] for r in runs if "faces" in r), 0)
-            summarise(f"{folder.name} ({faces / 1e6:.2f} M faces), {name}", runs)
+        runs: dict[str, list] = {name: [] for name, _ in modes}
+        for _ in range(args.repeats):
+            for name, fork in modes:                  # alternate: both modes see the same load
+                runs[name].append(_child(["report", str(folder)], dict(env, BANDGEO_REPORT_FORK=fork),
+                                         timeout=1800))
+        for name, _ in modes:
+            faces = next((r["faces"] for r in runs[name] if "faces" in r), 0)
+            summarise(f"{folder.name} ({faces / 1e6:.2f} M faces), {name}", runs[name])
     print(f"load average at the end: {', '.join(f'{x:.2f}' for x in os.getloadavg())}")
     return 0
 

@@ -19,7 +19,8 @@ from test_report_fixtures import make_state
 
 SMALL = dict(n_rows=120, n_cols=48)       # ~11 k faces
 
-needs_fork = pytest.mark.skipif(not typeset.fork_allowed(), reason="the PDF helper needs Linux fork")
+needs_fork = pytest.mark.skipif(not (hasattr(os, "fork") and __import__("sys").platform.startswith("linux")),
+                                reason="the PDF helper needs Linux fork")
 
 
 def _text(path):
@@ -31,6 +32,12 @@ def _text(path):
 def _pages(path):
     info = subprocess.run(["pdfinfo", str(path)], capture_output=True, text=True, check=True).stdout
     return int(re.search(r"Pages:\s+(\d+)", info).group(1))
+
+
+@pytest.fixture(autouse=True)
+def _helpers_on(monkeypatch):
+    """Helpers forced on (by default they are skipped on a busy machine, which a test machine may be)."""
+    monkeypatch.setenv("BANDGEO_REPORT_FORK", "1")
 
 
 @pytest.fixture(scope="module")
@@ -144,7 +151,16 @@ def test_hung_helper_is_killed_after_the_timeout(tmp_path, monkeypatch):
 
 def test_fork_can_be_switched_off(monkeypatch):
     monkeypatch.setenv("BANDGEO_REPORT_FORK", "0")
-    assert typeset.Typesetter.start() is None
+    assert typeset.Typesetter.start() is None and typeset.Forked.start(lambda: b"") is None
+
+
+def test_auto_mode_follows_the_load(monkeypatch):
+    monkeypatch.setenv("BANDGEO_REPORT_FORK", "auto")
+    monkeypatch.setattr(os, "sched_getaffinity", lambda _pid: {0, 1}, raising=False)
+    monkeypatch.setattr(os, "getloadavg", lambda: (6.0, 6.0, 6.0))
+    assert not typeset.fork_allowed()                 # busy 2-core machine: one process
+    monkeypatch.setattr(os, "getloadavg", lambda: (1.2, 1.0, 0.8))
+    assert typeset.fork_allowed() == (hasattr(os, "fork") and __import__("sys").platform.startswith("linux"))
 
 
 def test_specimen_figure_reads_the_cached_unroll(state, monkeypatch):

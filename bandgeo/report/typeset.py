@@ -7,9 +7,10 @@ page with the report's fonts (warm-up) while the parent draws the figures on the
 then sends the finished page and writes the CSV and PLY files while the helper typesets. The helper
 returns the PDF's bytes; the parent writes the file (atomically, like every output).
 
-Anything unusual (no ``fork`` on this platform, ``BANDGEO_REPORT_FORK=0`` in the environment, a helper
-that dies, answers with an error or takes longer than :data:`TIMEOUT_S`) falls back on typesetting in
-this process, which gives the same bytes or the same error as before.
+Helpers are used where ``fork`` exists (Linux) and, by default, only while the machine is not already
+busy (:func:`fork_allowed`; ``BANDGEO_REPORT_FORK=1`` or ``0`` forces the choice). Anything unusual (a
+helper that dies, answers with an error or takes longer than :data:`TIMEOUT_S`) falls back on
+typesetting in this process, which gives the same bytes or the same error as before.
 """
 from __future__ import annotations
 
@@ -37,9 +38,32 @@ table { border-collapse: collapse; width: 100%; } td { border-bottom: 1px solid 
 
 
 def fork_allowed() -> bool:
-    """True where the helper process may be used (Linux ``fork``, not disabled by the environment)."""
-    return (hasattr(os, "fork") and sys.platform.startswith("linux")
-            and os.environ.get("BANDGEO_REPORT_FORK", "1").strip() not in ("0", "no", "false", ""))
+    """True where helper processes are used: Linux ``fork``, and ``BANDGEO_REPORT_FORK`` set to ``1``
+    (always), ``0`` (never) or unset / ``auto``: only while the machine is not busy with other work.
+
+    Helpers win wall time only when a core would otherwise sit idle; they cost some CPU of their own
+    (a second matplotlib, WeasyPrint's warm-up), so on a machine already loaded by other jobs the report
+    runs in one process. Measured on this project's 2-core machine at 2.1 M faces, loads 4-8: in-process
+    7.4-13.3 s, with helpers 7.8-15.2 s (medians of three paired runs, benchmarks/bench_report.py).
+    """
+    if not (hasattr(os, "fork") and sys.platform.startswith("linux")):
+        return False
+    mode = os.environ.get("BANDGEO_REPORT_FORK", "auto").strip().lower()
+    if mode in ("0", "no", "false", "off"):
+        return False
+    if mode in ("1", "yes", "true", "on"):
+        return True
+    return machine_has_room()
+
+
+def machine_has_room() -> bool:
+    """True when the 1-minute load average is below the usable cores plus a half (this job's own
+    threads account for up to about the core count)."""
+    try:
+        cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
+        return cores >= 2 and os.getloadavg()[0] < cores + 0.5
+    except OSError:
+        return False
 
 
 def _quiet_child() -> None:
