@@ -176,8 +176,9 @@ def summarise(label: str, runs: list[dict]) -> None:
                                 f"(WeasyPrint import and warm-up {warm_cpu or 0:.2f}, typesetting {pdf_cpu or 0:.2f})"
     plots = "" if plots_cpu is None else f" + plot helper {plots_cpu:.2f} s"
     total_cpu = cpu + ((pdf_cpu or 0) + (warm_cpu or 0) if par else 0) + (plots_cpu or 0)
-    print(f"    CPU: stage process {cpu:.2f} s{helper}{plots}; all processes {total_cpu:.2f} s "
-          f"(on 2 idle cores the wall time is at least half of that)")
+    note = "on 2 idle cores the wall time is at least half of that" if par else \
+        "one process: on an idle machine the wall time is about that"
+    print(f"    CPU: stage process {cpu:.2f} s{helper}{plots}; all processes {total_cpu:.2f} s ({note})")
     print(f"    peak memory of the process (includes the loaded analysis): {_median(ok, lambda r: r['peak_mb']):.0f} MiB;"
           f" outputs: " + ", ".join(f"{k} {v / 1024:.0f} KiB" for k, v in ok[0]["sizes"].items()))
 
