@@ -214,3 +214,23 @@ def test_hung_plot_helper_falls_back(state, tmp_path, monkeypatch):
     assert seconds["figures_parallel"] == 0.0
     html = paths["report.html"].read_text()
     assert html.count("data:image/svg+xml") >= 3 and "Figure 2." in html
+
+
+def test_one_label_style_per_log_axis():
+    """A log axis spanning beyond 0.001..1000 labels every decade as a power of ten (as matplotlib's
+    own log labels do), one within it in decimals: never both on one axis."""
+    from matplotlib.figure import Figure
+
+    from bandgeo.report.figures import plain_log_axis
+
+    fig = Figure()
+    wide, narrow = fig.subplots(1, 2)
+    for ax, lims in ((wide, (1e-8, 1e-1)), (narrow, (1e-2, 1e2))):
+        ax.set_yscale("log")
+        ax.set_ylim(*lims)
+        plain_log_axis(ax.yaxis)
+    fig.canvas.draw()
+    w = [t.get_text() for t in wide.get_yticklabels() if t.get_text()]
+    n = [t.get_text() for t in narrow.get_yticklabels() if t.get_text()]
+    assert w and all(t.startswith("10") and not t.startswith("10.") for t in w) and "10\u207b\u2074" in w
+    assert n and "0.01" in n and "100" in n and not [t for t in n if "\u207b" in t]

@@ -20,8 +20,9 @@ _OUTLINE = [patheffects.withStroke(linewidth=2.2, foreground="black")]
 _SUPERSCRIPT = str.maketrans("-0123456789", "\u207b\u2070\u00b9\u00b2\u00b3\u2074\u2075\u2076\u2077\u2078\u2079")
 
 
-def log_label(value, _pos=None) -> str:
-    """Tick label on a log axis as plain text: ``0.01``, ``100``, or ``10⁻⁵`` beyond a thousandfold.
+def log_label(value, _pos=None, powers: bool = False) -> str:
+    """Tick label on a log axis as plain text: ``0.01``, ``100``, or ``10⁻⁵`` beyond a thousandfold
+    (every decade as a power of ten with ``powers=True``).
 
     Matplotlib's own log labels are mathtext (``$10^{-5}$``), whose parser costs about 30 ms per new
     label, most of the time spent drawing a spectrum figure; Unicode superscripts look the same and stay
@@ -33,20 +34,36 @@ def log_label(value, _pos=None) -> str:
     exp = np.log10(v)
     if abs(exp - round(exp)) < 1e-9:
         k = int(round(exp))
-        return f"{v:g}" if -3 <= k <= 3 else "10" + str(k).translate(_SUPERSCRIPT)
-    if 1e-3 <= v < 1e4:
+        return f"{v:g}" if (-3 <= k <= 3 and not powers) else "10" + str(k).translate(_SUPERSCRIPT)
+    if 1e-3 <= v < 1e4 and not powers:
         return f"{v:.2g}"
     k = int(np.floor(exp))
     return f"{v / 10.0 ** k:.2g}\u00d710" + str(k).translate(_SUPERSCRIPT)
 
 
+class _PlainLogFormatter:
+    """Matplotlib tick formatter for :func:`log_label`, one style per axis: decimals when the whole view
+    lies within 0.001..1000, powers of ten otherwise (so one axis never mixes ``0.01`` and ``10⁻⁴``)."""
+
+    def __new__(cls, minor=False):
+        from matplotlib.ticker import Formatter
+
+        class Fmt(Formatter):
+            def __call__(self, x, pos=None):
+                lo, hi = sorted(self.axis.get_view_interval()) if self.axis is not None else (x, x)
+                powers = not (lo >= 0.99e-3 and hi <= 1.01e3)
+                return log_label(x, pos, powers=powers)
+
+        return Fmt()
+
+
 def plain_log_axis(axis, minor_labels: bool = False) -> None:
     """Label a log-scaled ``axis`` (an ``Axis``) with :func:`log_label`; minor ticks unlabelled unless
     ``minor_labels`` (a span under one decade has no decade to label)."""
-    from matplotlib.ticker import FuncFormatter, NullFormatter
+    from matplotlib.ticker import NullFormatter
 
-    axis.set_major_formatter(FuncFormatter(log_label))
-    axis.set_minor_formatter(FuncFormatter(log_label) if minor_labels else NullFormatter())
+    axis.set_major_formatter(_PlainLogFormatter())
+    axis.set_minor_formatter(_PlainLogFormatter() if minor_labels else NullFormatter())
 
 
 def _fixed(fig, height, left=0.1, right=0.98, top_in=0.3, bottom_in=0.5, **kw):
