@@ -244,7 +244,7 @@ def main(argv=None) -> int:
           f"{statistics.median(idle) * 1000:.0f} ms, slowest {max(idle) * 1000:.0f} ms")
     print(f"load average before/after: {load0[0]:.2f} / {load1[0]:.2f}; peak RSS "
           f"{resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 2**20:.2f} GB (server), "
-          f"{resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 2**20:.2f} GB (largest child: re-run worker); "
+          f"{resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 2**20:.2f} GB (largest child process: the re-run worker, or one the report starts); "
           f"OMP_NUM_THREADS="
           f"{os.environ.get('OMP_NUM_THREADS')}; BLAS threads "
           f"{sorted({i.get('num_threads') for i in threadpool_info()})}")
