@@ -76,14 +76,19 @@ class Centreline:
     def approx_s(self, vertices: np.ndarray) -> np.ndarray:
         """Arc length of each vertex's position along the chord (no iterations): within a few tenths of
         a radius of :meth:`project` on a bent column; for tangents and coarse selections."""
-        h, p = self.heights_mm, self.points_mm
-        chord = p[-1] - p[0]
-        if np.linalg.norm(chord) < 1e-12:
-            chord = self.tangents[0]
-        chord = chord / np.linalg.norm(chord)
-        u_pts = (p - p[0]) @ chord
-        order = np.argsort(u_pts)
-        return np.interp((vertices - p[0]) @ chord, u_pts[order], h[order])
+        cache = self.__dict__.get("_chord_cache")
+        if cache is None or cache[0] is not self.points_mm:
+            h, p = self.heights_mm, self.points_mm
+            chord = p[-1] - p[0]
+            if np.linalg.norm(chord) < 1e-12:
+                chord = self.tangents[0]
+            chord = chord / np.linalg.norm(chord)
+            u_pts = (p - p[0]) @ chord
+            order = np.argsort(u_pts)
+            cache = (self.points_mm, p[0].copy(), chord, u_pts[order], h[order])
+            self.__dict__["_chord_cache"] = cache
+        _, p0, chord, u_sorted, h_sorted = cache
+        return np.interp((vertices - p0) @ chord, u_sorted, h_sorted)
 
     def project(self, vertices: np.ndarray, iterations: int = 3):
         """Arc length of the normal plane through each vertex, and the radial offset vector.

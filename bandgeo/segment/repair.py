@@ -112,9 +112,9 @@ def repair(rings: list, spacing: float, trace_weak, log: list) -> list:
     gaps_flagged = []
     if len(rings) >= 3:
         i = 0
+        h = np.array([r["height"] for r in rings])
+        loc = local_spacing(h, spacing, window=7)  # recomputed only after a ring is added
         while i < len(rings) - 1:
-            h = np.array([r["height"] for r in rings])
-            loc = local_spacing(h, spacing, window=7)
             gap = h[i + 1] - h[i]
             ref = 0.5 * (loc[i] + loc[i + 1])
             if gap > GAP_FRACTION * ref:
@@ -124,6 +124,8 @@ def repair(rings: list, spacing: float, trace_weak, log: list) -> list:
                     new.setdefault("flags", []).append("gap filled")
                     log.append(f"R4 filled a {gap:.3f} mm gap with a weak ring at {new['height']:.3f} mm")
                     rings.insert(i + 1, new)
+                    h = np.array([r["height"] for r in rings])
+                    loc = local_spacing(h, spacing, window=7)
                     continue  # re-check the two halves
                 log.append(f"R4 gap of {gap:.3f} mm between {h[i]:.3f} and {h[i + 1]:.3f} mm "
                            f"(> {GAP_FRACTION} x local spacing {ref:.3f} mm): possible missed boundary")
