@@ -253,3 +253,28 @@ def test_mixture_posterior_matches_scikit_learn():
     for kind in ("full", "diag"):
         gm = GaussianMixture(3, covariance_type=kind, random_state=0).fit(X.astype(float))
         np.testing.assert_allclose(cluster.predict_proba(gm, X), gm.predict_proba(X.astype(float)), atol=1e-4)
+
+
+def test_centreline_projection_on_a_circular_arc():
+    # analytic reference: a centreline bent along a circle of radius 200 mm in the x-z plane; the normal
+    # plane at angle phi holds the circle's centre, so a point's foot lies at phi = atan2(z, R - x)
+    # (plane geometry; arc length R phi). The projection must find it to well under a micrometre.
+    from bandgeo.segment.axis import Centreline
+
+    R = 200.0
+    phi = np.linspace(0.0, 0.4, 2001)
+    pts = np.stack([R * (1 - np.cos(phi)), np.zeros_like(phi), R * np.sin(phi)], axis=1)
+    tan = np.stack([np.sin(phi), np.zeros_like(phi), np.cos(phi)], axis=1)
+    line = Centreline(R * phi, pts, tan)
+    rng = np.random.default_rng(0)
+    f = rng.uniform(0.02, 0.38, 5000)
+    ang = rng.uniform(-np.pi, np.pi, 5000)
+    rad = rng.uniform(1.0, 8.0, 5000)
+    # points at distance rad from the curve, in the normal plane at angle f
+    e1 = np.stack([np.cos(f), np.zeros_like(f), -np.sin(f)], axis=1)
+    e2 = np.tile([0.0, 1.0, 0.0], (len(f), 1))
+    c = np.stack([R * (1 - np.cos(f)), np.zeros_like(f), R * np.sin(f)], axis=1)
+    v = c + (rad * np.cos(ang))[:, None] * e1 + (rad * np.sin(ang))[:, None] * e2
+    s, radial = line.project(v)
+    np.testing.assert_allclose(s, R * f, atol=5e-4)
+    np.testing.assert_allclose(np.linalg.norm(radial, axis=1), rad, atol=5e-4)
