@@ -103,67 +103,14 @@ class Centreline:
         radial : (n, 3) float, mm
             ``v - c(s)``, perpendicular to the tangent at ``s``.
         """
-        vertices = np.asarray(vertices, dtype=float)
-        s = self._solve_segments(vertices, self.approx_s(vertices))
+        s = self.approx_s(vertices)
+        for _ in range(iterations):
+            c, t = self.at(s)
+            s = s + np.einsum("ij,ij->i", vertices - c, t)
         c, t = self.at(s)
         radial = vertices - c
         radial -= np.einsum("ij,ij->i", radial, t)[:, None] * t
         return s, radial
-
-    def _solve_segments(self, v: np.ndarray, s0: np.ndarray, passes: int = 8) -> np.ndarray:
-        """Exact foot points: on segment ``i`` the point ``p_i + w dp_i`` and the (unnormalised) tangent
-        ``t_i + w dt_i`` make ``(v - c(w)) . t(w) = 0`` a quadratic in ``w``; solve it, and move to the
-        neighbouring segment while the root falls outside [0, 1]. Same condition as Newton's iteration
-        ``s += (v - c(s)) . t(s)`` (which converged by about a factor 5 per step, 3e-3 mm after three),
-        in one or two passes over the vertices. Beyond the ends the curve runs straight on."""
-        h, p, t = self.heights_mm, self.points_mm, self.tangents
-        dp, dt = self._diffs()
-        nseg = len(h) - 1
-        i = np.clip(np.searchsorted(h, s0) - 1, 0, nseg - 1)
-        w = np.zeros(len(v))
-        todo = np.arange(len(v))
-        for _ in range(passes):
-            if len(todo) == 0:
-                break
-            ii = i[todo]
-            a = v[todo] - p[ii]
-            dpi, dti, ti = dp[ii], dt[ii], t[ii]
-            A = -np.einsum("ij,ij->i", dpi, dti)
-            B = np.einsum("ij,ij->i", a, dti) - np.einsum("ij,ij->i", dpi, ti)
-            C = np.einsum("ij,ij->i", a, ti)
-            with np.errstate(divide="ignore", invalid="ignore"):
-                lin = -C / B
-                disc = np.sqrt(np.maximum(B * B - 4 * A * C, 0.0))
-                # the root nearer the linear one (the other lies far off the segment)
-                q = -0.5 * (B + np.copysign(disc, B))
-                r1, r2 = q / A, C / q
-                quad = np.where(np.abs(r1 - lin) < np.abs(r2 - lin), r1, r2)
-                ww = np.where(np.abs(A) > 1e-12 * np.maximum(np.abs(B), 1e-300), quad, lin)
-            ww = np.where(np.isfinite(ww), ww, 0.0)
-            w[todo] = ww
-            # outside the segment: jump to the segment holding the linearised foot point
-            inside = (ww >= 0.0) & (ww <= 1.0)
-            s_est = h[ii] + ww * (h[ii + 1] - h[ii])
-            jump = np.clip(np.searchsorted(h, s_est, side="right") - 1, 0, nseg - 1)
-            jump = np.where(jump == ii, ii + np.sign(ww).astype(np.int64), jump)  # at least one step
-            new = np.where(inside, ii, np.clip(jump, 0, nseg - 1))
-            move = new != ii
-            i[todo] = new
-            todo = todo[move]
-        s = h[i] + np.clip(w, 0.0, 1.0) * (h[i + 1] - h[i])
-        # beyond the ends: straight along the end tangents
-        lo = (i == 0) & (w < 0.0)
-        hi = (i == nseg - 1) & (w > 1.0)
-        if lo.any():
-            s[lo] = h[0] + (v[lo] - p[0]) @ t[0]
-        if hi.any():
-            s[hi] = h[-1] + (v[hi] - p[-1]) @ t[-1]
-        # a few points outside a sharp bend can swap between two segments: Newton's steps from there
-        stuck = todo[~(lo[todo] | hi[todo])] if len(todo) else todo
-        for _ in range(6 if len(stuck) else 0):
-            c, tt = self.at(s[stuck])
-            s[stuck] = s[stuck] + np.einsum("ij,ij->i", v[stuck] - c, tt)
-        return s
 
     def frame(self, s):
         """Orthonormal (e1, e2) perpendicular to the tangents at ``s`` (twist-free from +x)."""
