@@ -36,22 +36,22 @@ PIPELINE_STAGES = ("load", "orient", "features", "segment", "review", "measure",
 
 #: Cost model of the pipeline's stages: ``(fixed seconds, seconds per million faces)``, so that a stage
 #: is expected to take ``fixed + per_mface * faces / 1e6`` seconds before the run's own speed is known.
-#: Fitted through the median CPU seconds of each stage (a steadier figure than wall seconds on a busy
-#: machine, and close to an idle machine's wall seconds) measured by
-#: ``benchmarks/bench_pipeline.py --sizes 0.5,2 --repeat 3`` on 0.50 and 1.98 M-face photogrammetric
-#: forward-model scans (sway 7 deg), on this project's 2-core machine, 2026-12-02, 2 BLAS threads, load
-#: average 5-8 (other jobs running). Only the ratios matter: the estimate rescales them by the speed of
-#: the stages already run. Re-fit when a stage gets much faster or slower.
+#: Fitted (least squares on relative error) through the median CPU seconds of each stage (steadier than
+#: wall seconds on a shared machine; on a quiet one they are within a few % of them) measured by
+#: ``benchmarks/bench_pipeline.py --sizes 0.5,2,10 --repeat 2`` on 0.50, 1.98 and 9.95 M-face
+#: photogrammetric forward-model scans (sway 7 deg) on this project's 2-core machine, 2026-12-02 11:00
+#: UTC, code 1203cd7, 2 BLAS threads, load average 1-3. Only the ratios matter: the estimate rescales
+#: them by the speed of the stages already run. Re-fit when a stage gets much faster or slower.
 STAGE_COST: dict[str, tuple[float, float]] = {
-    "load": (0.03, 0.04),         # 0.05 s CPU at 0.50 M faces, 0.11 s at 1.98 M
-    "orient": (0.10, 0.78),       # 0.49 s, 1.64 s
-    "features": (0.21, 1.32),     # 0.87 s, 2.84 s
-    "segment": (1.67, 5.67),      # 4.49 s, 12.92 s
-    "review": (0.01, 0.0),        # 0.01 s, 0.01 s
-    "measure": (0.0, 0.05),       # 0.02 s, 0.10 s
-    "series": (0.49, 0.47),       # 0.72 s, 1.41 s
-    "periodicity": (0.75, 0.22),  # 0.86 s, 1.18 s
-    "report": (5.28, 0.20),       # 5.38 s, 5.68 s (all four formats)
+    "load": (0.0, 0.09),          # 0.03, 0.24, 1.86 s CPU at 0.50, 1.98, 9.95 M faces
+    "orient": (0.03, 0.83),       # 0.45, 1.69, 8.32 s
+    "features": (0.24, 1.45),     # 1.01, 2.70, 17.43 s
+    "segment": (2.46, 4.09),      # 4.71, 9.49, 47.40 s
+    "review": (0.01, 0.0),        # 0.01, 0.01, 0.01 s
+    "measure": (0.0, 0.05),       # 0.02, 0.09, 0.73 s
+    "series": (0.62, 0.17),       # 0.63, 1.28, 2.11 s
+    "periodicity": (0.41, 0.55),  # 0.74, 1.31, 6.74 s
+    "report": (4.51, 0.37),       # 4.96, 4.95, 8.37 s (all four formats)
 }
 
 #: Weight (model seconds) of the prior belief that this machine runs at the model's speed; the
