@@ -155,7 +155,7 @@ def upstream(scan_path, params: RunParams, *, sheet=None, timer: Optional[_Timer
     specimen.warnings.extend(orientation_warnings(specimen))
     feats = timer.run("features", _features.compute_features, specimen)
     segmenter = _segment.BandSegmenter(random_state=params.seed)
-    auto = timer.run("segment", lambda: segmenter.fit(specimen, feats).segmentation_)
+    auto = timer.run("segment", lambda progress=None: segmenter.fit(specimen, feats, progress=progress).segmentation_)
     params = params.with_stages(
         {"scales_mm": np.asarray(feats.scales_mm).tolist(), "band_spacing_mm": float(feats.band_spacing_mm),
          "band_spacing_method": feats.band_spacing_method,
