@@ -11,6 +11,10 @@ from ..progress import report
 from . import resolution, stages
 from .model import Segmentation, assign_bands
 
+#: Relative mismatch between the traced boundaries' median spacing and the spectral band spacing above
+#: which the wall is flattened and traced again at the traced spacing.
+RETRACE_MISMATCH = 0.25
+
 #: Side-wall vertices traced at most; larger scans are decimated around the rings (recorded).
 MAX_WALL_VERTICES = 6_000_000
 
@@ -150,6 +154,40 @@ class BandSegmenter:
         faces = getattr(specimen, "faces", None)
         return v, (np.asarray(faces) if faces is not None and len(faces) else None)
 
+    def _retrace(self, frame, features, cls, rings, gaps, spacing, s_flat, run):
+        """Trace once more at the traced boundaries' own spacing when it disagrees with the spectrum's.
+
+        The relief spectrum of irregular laminae can peak at a subharmonic (three laminae and more); the
+        boundaries traced with it then sit about that far apart, skipping the laminae between. When
+        their median spacing differs from the spectral one by more than a quarter, the flattening and
+        tracing are run again at the traced spacing; the second tracing is kept when its median
+        spacing agrees with the one it was traced at better than the first did (recorded in
+        ``params['retraced']``)."""
+        if len(rings) < 10 or str(features.band_spacing_method) == "given":
+            return rings, gaps, None, spacing, s_flat
+        med = float(np.median(np.diff(np.sort([r["height"] for r in rings]))))
+        if not (np.isfinite(med) and med > 0 and abs(med / spacing - 1.0) > RETRACE_MISMATCH):
+            return rings, gaps, None, spacing, s_flat
+        if med / frame.samp < resolution.MIN_SAMPLES_COUNT:
+            return rings, gaps, None, spacing, s_flat
+        run2 = _Run(warnings=[], log=[], res={}, info=dict(run.info))
+        s2 = stages.flatten(frame, med, run2)
+        rings2, gaps2, refuse2 = stages.trace(frame, s2, med, cls["p_groove_wall"], self, run2)
+        if refuse2 is not None or len(rings2) < 10:
+            return rings, gaps, None, spacing, s_flat
+        med2 = float(np.median(np.diff(np.sort([r["height"] for r in rings2]))))
+        before, after = abs(np.log(med / spacing)), abs(np.log(med2 / med))
+        run.info["retraced"] = {"spectral_spacing_mm": float(spacing), "traced_spacing_mm": med,
+                                "second_spacing_mm": med2, "boundaries_first": len(rings),
+                                "boundaries_second": len(rings2), "kept": "second" if after < before else "first"}
+        if after >= before:
+            return rings, gaps, None, spacing, s_flat
+        run.log.extend(run2.log)
+        run.info.update({k: v for k, v in run2.info.items() if k != "retraced"})
+        run.info["spacing_method"] = (f"{run.info.get('spacing_method', '')}; re-traced at the traced "
+                                      f"boundaries' median spacing {med:.4f} mm")
+        return rings2, gaps2, None, med, s2
+
     # ------------------------------------------------------------------ fit
     def fit(self, specimen, features, progress=None) -> "BandSegmenter":
         """Segment ``specimen`` using its ``features`` (from :func:`bandgeo.features.compute_features`)."""
@@ -170,6 +208,9 @@ class BandSegmenter:
         rings, gaps = [], []
         if refuse is None:
             rings, gaps, refuse = stages.trace(frame, s_flat, spacing, cls["p_groove_wall"], self, run)
+            if refuse is None:
+                rings, gaps, refuse, spacing, s_flat = self._retrace(frame, features, cls, rings, gaps, spacing,
+                                                                     s_flat, run)
         report(progress, "segment: centreline", 4, 6)
         boundaries, axis = stages.centreline(rings, frame, v, faces, features)
         report(progress, "segment: resolution checks", 5, 6)
