@@ -40,8 +40,9 @@ import time
 from pathlib import Path
 
 HERE = Path(__file__).resolve().parent
+sys.path.insert(0, str(HERE))
+from _children import emit, run_child  # noqa: E402
 STAGES = ("load", "orient", "features", "segment", "review", "measure", "series", "periodicity", "report")
-MARK = "BENCH-JSON "
 
 #: Issue 16 targets (benchmark figures, not timed tests), by requested size in millions of faces.
 #: ``stage``: every stage but segmentation; ``ratio_igl``: total / one libigl principal_curvature call.
@@ -58,8 +59,7 @@ SWAY_DEG = 7.0
 # children (each runs in its own process and prints one JSON line)
 
 
-def _emit(data: dict) -> None:
-    print(MARK + json.dumps(data), flush=True)
+_emit = emit
 
 
 def _peak_rss_gb() -> float:
@@ -260,13 +260,7 @@ def child_anchors(scan: Path) -> None:
 
 
 def _child(args: list[str], env: dict, timeout: float) -> dict:
-    proc = subprocess.run([sys.executable, str(Path(__file__).resolve()), "--child", *args], env=env,
-                          cwd=HERE.parent, capture_output=True, text=True, timeout=timeout)
-    lines = [ln for ln in proc.stdout.splitlines() if ln.startswith(MARK)]
-    if proc.returncode or not lines:
-        tail = (proc.stderr or proc.stdout).strip().splitlines()[-3:]
-        return {"failed": f"exit {proc.returncode}: " + " | ".join(tail)}
-    return json.loads(lines[-1][len(MARK):])
+    return run_child(__file__, args, env, timeout)
 
 
 def _mesh(size_m: float, cache: Path, env: dict) -> tuple[Path, dict]:

@@ -26,14 +26,14 @@ import argparse
 import json
 import os
 import statistics
-import subprocess
 import sys
 import tempfile
 import time
 from pathlib import Path
 
 HERE = Path(__file__).resolve().parent
-MARK = "BENCH-JSON "
+sys.path.insert(0, str(HERE))
+from _children import emit, run_child  # noqa: E402
 TARGET_S = 5.0          # issue 14, item 3
 AIM_S = 2.0             # issue 16's 20-s analysis leaves the report about this much
 SYNTH_SEED = 5
@@ -42,8 +42,7 @@ PARTS = (("figures", "figures (draw + encode)"), ("html", "page (HTML)"), ("pdf"
          ("pdf_wait", "waiting for the PDF"), ("csv", "CSV"), ("ply", "labelled PLY"))
 
 
-def _emit(data: dict) -> None:
-    print(MARK + json.dumps(data), flush=True)
+_emit = emit
 
 
 def _peak_mb() -> float:
@@ -104,13 +103,7 @@ def child_report(folder: Path) -> None:
 
 
 def _child(args: list[str], env: dict, timeout: float) -> dict:
-    proc = subprocess.run([sys.executable, str(Path(__file__).resolve()), "--child", *args], env=env,
-                          cwd=HERE.parent, capture_output=True, text=True, timeout=timeout)
-    lines = [ln for ln in proc.stdout.splitlines() if ln.startswith(MARK)]
-    if proc.returncode or not lines:
-        tail = (proc.stderr or proc.stdout).strip().splitlines()[-3:]
-        return {"failed": f"exit {proc.returncode}: " + " | ".join(tail)}
-    return json.loads(lines[-1][len(MARK):])
+    return run_child(__file__, args, env, timeout)
 
 
 # ----------------------------------------------------------------------------------------------------

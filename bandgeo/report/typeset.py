@@ -103,6 +103,20 @@ def _frame(*parts: bytes) -> bytes:
     return b"".join(struct.pack("<Q", len(p)) + p for p in parts)
 
 
+def _read_reply(fd: int, n_parts: int, timeout: float | None, what: str):
+    """A helper's answer: (parts, None) when it says ``K``; (None, reason) when it failed, hung or died."""
+    wait = TIMEOUT_S if timeout is None else float(timeout)
+    try:
+        parts = _read_frame(fd, n_parts, deadline=time.monotonic() + wait)
+    except OSError as exc:
+        return None, f"reading from the {what} failed ({exc})"
+    if parts is None:
+        return None, f"the {what} process gave no answer"
+    if parts[0] != b"K":
+        return None, parts[1].decode("utf-8", "replace")
+    return parts, None
+
+
 def _read_frame(fd: int, n_parts: int, deadline: float | None = None) -> list[bytes] | None:
     out = []
     for _ in range(n_parts):
@@ -214,18 +228,11 @@ class Typesetter:
         loading WeasyPrint and warming it up."""
         if not self._sent or self._r_pdf < 0:
             return None
-        try:
-            wait = TIMEOUT_S if timeout is None else float(timeout)
-            parts = _read_frame(self._r_pdf, 3, deadline=time.monotonic() + wait)
-            if self._sender is not None:
-                self._sender.join(timeout=5.0)
-        except OSError as exc:
-            parts, self.error = None, f"reading from the PDF helper failed ({exc})"
+        parts, error = _read_reply(self._r_pdf, 3, timeout, "PDF helper")
+        if self._sender is not None:
+            self._sender.join(timeout=5.0)
         if parts is None:
-            self.error = self.error or "the PDF helper process gave no answer"
-            return None
-        if parts[0] != b"K":
-            self.error = parts[1].decode("utf-8", "replace")
+            self.error = self.error or error
             return None
         values = [float(x) for x in parts[1].split()]
         return parts[2], dict(zip(("pdf", "pdf_warm", "pdf_cpu", "pdf_warm_cpu"), values))
@@ -298,16 +305,9 @@ class Forked:
     def result(self, timeout: float | None = None) -> bytes | None:
         if self._r_out < 0:
             return None
-        wait = TIMEOUT_S if timeout is None else float(timeout)
-        try:
-            parts = _read_frame(self._r_out, 2, deadline=time.monotonic() + wait)
-        except OSError as exc:
-            parts, self.error = None, f"reading from the helper failed ({exc})"
+        parts, error = _read_reply(self._r_out, 2, timeout, "helper")
         if parts is None:
-            self.error = self.error or "the helper process gave no answer"
-            return None
-        if parts[0] != b"K":
-            self.error = parts[1].decode("utf-8", "replace")
+            self.error = self.error or error
             return None
         return parts[1]
 

@@ -12,6 +12,7 @@ import numpy as np
 
 from ..constants import DEFAULT_SEED
 from ..errors import ParameterError, shown
+from ..rowgeom import cross_rows
 
 
 def unit(vector, name: str = "vector") -> np.ndarray:
@@ -128,13 +129,7 @@ def _face_geometry(vertices, faces):
     v2 = vertices[faces[:, 2]]
     a = v1 - v0
     b = v2 - v0
-    cross = np.empty_like(a)
-    np.multiply(a[:, 1], b[:, 2], out=cross[:, 0])
-    cross[:, 0] -= a[:, 2] * b[:, 1]
-    np.multiply(a[:, 2], b[:, 0], out=cross[:, 1])
-    cross[:, 1] -= a[:, 0] * b[:, 2]
-    np.multiply(a[:, 0], b[:, 1], out=cross[:, 2])
-    cross[:, 2] -= a[:, 1] * b[:, 0]
+    cross = cross_rows(a, b)
     area2 = np.sqrt(cross[:, 0] * cross[:, 0] + cross[:, 1] * cross[:, 1] + cross[:, 2] * cross[:, 2])
     v1 += v2
     v1 -= 2 * v0

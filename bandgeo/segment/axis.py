@@ -15,6 +15,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+from scipy.ndimage import maximum_filter1d
 from scipy.signal import savgol_filter
 
 #: A slab counts for the centreline when it holds this fraction of a full slab's vertices: the end
@@ -176,7 +177,7 @@ def _straight(vertices: np.ndarray, axis: np.ndarray) -> Centreline:
 
 def fit_centreline(vertices: np.ndarray, wall: np.ndarray, axis0: np.ndarray, slab_mm: float,
                    smooth_mm: float, passes: int = 2, noise_mm: float = 0.0, faces=None,
-                   smooth_max_mm: float | None = None, candidates=None):
+                   candidates=None):
     """Centreline through circle centres of slabs of the side wall.
 
     Parameters
@@ -189,8 +190,7 @@ def fit_centreline(vertices: np.ndarray, wall: np.ndarray, axis0: np.ndarray, sl
     slab_mm : float
         Slab thickness along the axis.
     smooth_mm : float
-        Gaussian smoothing of the centres along the axis (mm, sigma); with ``smooth_max_mm``, the
-        least smoothing, raised by :func:`auto_smooth` as far as the slab centres' scatter needs.
+        Gaussian smoothing of the centres along the axis (mm, sigma).
     passes : int
         Each pass cuts the slabs across the previous pass's curve.
     noise_mm : float
@@ -226,7 +226,6 @@ def fit_centreline(vertices: np.ndarray, wall: np.ndarray, axis0: np.ndarray, sl
         counts = np.bincount(u, minlength=nb)
         # against the fullest slab within two radii (a tapering column holds fewer vertices per slab
         # at its thin end; a slanted end cut leaves a ramp of partial slabs a radius or more long)
-        from scipy.ndimage import maximum_filter1d
         ref = maximum_filter1d(counts.astype(float), size=max(5, int(4 * radius_mm / slab_mm) | 1), mode="nearest")
         full = counts >= FULL_SLAB * np.maximum(ref, 1.0)
         # ... and whose vertices go all round: an end cut at a slant leaves one side of the slab thin
@@ -249,7 +248,7 @@ def fit_centreline(vertices: np.ndarray, wall: np.ndarray, axis0: np.ndarray, sl
         if candidates is not None:
             sigmas = list(candidates) if last else [float(np.median(candidates))]
         else:
-            sigmas = [smooth_mm if smooth_max_mm is None else auto_smooth(pts, slab_mm, smooth_mm, smooth_max_mm)]
+            sigmas = [smooth_mm]
         lines = [_curve(pts, sg / slab_mm, axis0) for sg in sigmas]
         line = lines[len(lines) // 2]
     # arc length 0 at the lowest point of the whole mesh along the curve
@@ -272,28 +271,6 @@ def _curve(pts: np.ndarray, sigma_samples: float, axis0: np.ndarray) -> Centreli
     if tan[:, 2].mean() < 0 and np.dot(tan.mean(axis=0), axis0) < 0:
         pts, tan, arc = pts[::-1], -tan[::-1], arc[-1] - arc[::-1]
     return Centreline(arc, pts, tan)
-
-
-#: Tangent error (rad) the centreline's smoothing aims for against the scatter of the slab centres.
-TANGENT_ERROR_RAD = np.radians(0.3)
-
-
-def auto_smooth(pts: np.ndarray, slab_mm: float, lo_mm: float, hi_mm: float) -> float:
-    """Smoothing (sigma, mm) that holds the tangent error from slab-centre scatter near 0.3 degrees.
-
-    The scatter ``d`` of independent centre errors is read from second differences of the centres
-    (var = 6 d^2; a real bend adds little over three slabs). A local fit over about four sigma gives a
-    slope error of about ``d / sigma * sqrt(slab / sigma)``, so sigma = (d sqrt(slab) / e)^(2/3). A
-    round, well-sampled column keeps the least smoothing and so follows its meander; an elliptical or
-    noisy section gets more (bounded by ``hi_mm``), and the tilt field takes up what is left.
-    """
-    if len(pts) < 7:
-        return float(lo_mm)
-    d2 = pts[2:] - 2 * pts[1:-1] + pts[:-2]
-    d2 = d2 - np.median(d2, axis=0)
-    scatter = float(1.4826 * np.median(np.linalg.norm(d2, axis=1)) / np.sqrt(6.0 * 2.0))  # 2 components
-    sigma = (scatter * np.sqrt(slab_mm) / TANGENT_ERROR_RAD) ** (2.0 / 3.0)
-    return float(np.clip(sigma, lo_mm, max(lo_mm, hi_mm)))
 
 
 def _smooth(pts: np.ndarray, sigma_samples: float) -> np.ndarray:

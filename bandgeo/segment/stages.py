@@ -36,9 +36,9 @@ def frame(v, faces, features, rng, max_wall, run):
                          f"expected a column-shaped specimen")
     samp0 = float(features.sampling_along_mm) if np.isfinite(features.sampling_along_mm) else 0.05
     noise = float(features.noise_mm)
-    axis_c = coarse_centreline(v, wall, axis0, samp0, noise, faces, rng)
-    if "smoothing" in axis_c.__dict__:
-        run.info["centreline_smoothing"] = axis_c.__dict__["smoothing"]
+    axis_c, smoothing = coarse_centreline(v, wall, axis0, samp0, noise, faces, rng)
+    if smoothing is not None:
+        run.info["centreline_smoothing"] = smoothing
     wall_idx = np.flatnonzero(wall)
     if len(wall_idx) > max_wall:
         keep = np.sort(rng.choice(len(wall_idx), size=max_wall, replace=False))

@@ -104,8 +104,6 @@ def _strongest(prof, b, max_period_mm=np.inf):
     +-20 % of the peak frequency; frequencies from 4 cycles per record (and no longer than
     ``max_period_mm``) to 0.45 / b.
     """
-    from scipy.ndimage import median_filter
-
     occ = np.isfinite(prof)
     keep = occ.sum(axis=1) >= 16
     prof, occ = prof[keep], occ[keep]

@@ -66,14 +66,15 @@ def wall_mask(normals: np.ndarray, axis0: np.ndarray) -> np.ndarray:
 
 
 def coarse_centreline(v: np.ndarray, wall: np.ndarray, axis0: np.ndarray, sampling_mm: float, noise_mm: float,
-                      faces, rng: np.random.Generator) -> Centreline:
-    """Centreline through slab circle centres, slabs about a tenth of the radius thick.
+                      faces, rng: np.random.Generator) -> tuple[Centreline, dict | None]:
+    """Centreline through slab circle centres, slabs about a tenth of the radius thick, and how its
+    smoothing was chosen (None when there was only one candidate).
 
-    The centres are smoothed over a slab and a half, or more where their scatter needs it
-    (:func:`bandgeo.segment.axis.auto_smooth`), up to three quarters of a radius: slab centres of an
-    elliptical or noisy section scatter by tenths of a millimetre (smoothing over a slab or two let the
-    tangent swing by tens of degrees near a cut end), while a round, finely sampled column keeps
-    following its meander. Sway faster than the smoothing is left to the tilt field
+    Three smoothings are tried, from a slab and a half up to three quarters of a radius: slab centres
+    of an elliptical or noisy section scatter by tenths of a millimetre (smoothing over a slab or two
+    let the tangent swing by tens of degrees near a cut end), while a round, finely sampled column keeps
+    following its meander only with little smoothing. The one whose ring-averaged relief keeps the most
+    groove contrast wins. Sway faster than the smoothing is left to the tilt field
     (:mod:`bandgeo.segment.tilt`)."""
     wall_axis = wall.copy()
     idx = np.flatnonzero(wall)
@@ -91,7 +92,7 @@ def coarse_centreline(v: np.ndarray, wall: np.ndarray, axis0: np.ndarray, sampli
     lines = fit_centreline(v, wall_axis, axis0, slab_mm=slab, smooth_mm=1.5 * slab, noise_mm=noise_mm,
                            faces=faces, candidates=cands)
     if len(lines) == 1:
-        return lines[0]
+        return lines[0], None
     # the smoothing whose centreline leaves the laminae most nearly square to it: the ring-averaged
     # relief keeps the most groove contrast (a tilted or wandering centreline smears the grooves of
     # a ring over one another; the noise is the same for every candidate)
@@ -99,10 +100,8 @@ def coarse_centreline(v: np.ndarray, wall: np.ndarray, axis0: np.ndarray, sampli
     sub = idx[:: max(1, len(idx) // 200_000)]
     scores = [ring_contrast(v[sub], ln, sampling_mm) for ln in lines]
     best = int(np.argmax(scores))
-    lines[best].__dict__["smoothing"] = {"sigma_mm": float(cands[best] if len(cands) == len(lines) else float("nan")),
-                                         "candidates_mm": [float(c) for c in cands],
-                                         "ring_contrast": [float(x) for x in scores]}
-    return lines[best]
+    return lines[best], {"sigma_mm": float(cands[best] if len(cands) == len(lines) else float("nan")),
+                         "candidates_mm": [float(c) for c in cands], "ring_contrast": [float(x) for x in scores]}
 
 
 def ring_contrast(vw: np.ndarray, line: Centreline, sampling_mm: float) -> float:
