@@ -138,22 +138,76 @@ def orientation_warnings(specimen) -> list[str]:
             "vector and the bedding"]
 
 
+def _import_later_stages() -> None:
+    """Import the modules of the stages after the features (segmentation: scipy.signal, scikit-learn;
+    periodicity: astropy; report: matplotlib, jinja2), about 2.5 s of a fresh process's CPU."""
+    from . import segment, spectral  # noqa: F401
+
+    import astropy.timeseries  # noqa: F401  (spectral's Lomb-Scargle, imported where it is used)
+
+    from .report import build, comparison, exports, figures, html, specimen_view, tilt  # noqa: F401
+
+
+class _Prefetch:
+    """Imports the later stages' modules in a background thread while this one loads, orients and
+    computes the features (mostly numpy work that leaves the other core idle), so that a fresh process
+    (``bandgeo analyze``, a batch worker) does not wait for them at the segmentation, periodicity and
+    report stages. The same modules, only earlier: nothing else changes. ``BANDGEO_PREFETCH=0`` turns it
+    off; it is not used on one core. :meth:`join` waits for it (before anything forks or imports)."""
+
+    def __init__(self):
+        import os
+        import sys
+        import threading
+
+        self.thread = None
+        if os.environ.get("BANDGEO_PREFETCH", "1").strip().lower() in ("0", "no", "false", "off"):
+            return
+        if all(m in sys.modules for m in ("bandgeo.segment", "astropy.timeseries", "bandgeo.report.build")):
+            return
+        try:
+            cores = len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1)
+        except OSError:
+            cores = 1
+        if cores < 2:
+            return
+        self.thread = threading.Thread(target=self._run, name="bandgeo-imports", daemon=True)
+        self.thread.start()
+
+    @staticmethod
+    def _run() -> None:
+        try:
+            _import_later_stages()
+        except Exception:  # noqa: BLE001 - the stages import what they need again, and report any failure
+            pass
+
+    def join(self) -> None:
+        if self.thread is not None:
+            self.thread.join()
+            self.thread = None
+
+
 def upstream(scan_path, params: RunParams, *, sheet=None, timer: Optional[_Timer] = None):
     """Load, orient, compute features and segment. Returns ``(specimen, segmentation, params)`` with the
     automatic stages' own choices recorded in ``params.features`` / ``params.segmenter``."""
     from . import features as _features
     from . import scan as _scan
+
+    prefetch = _Prefetch()
+    try:
+        timer = timer or _Timer(None)
+        if sheet is None and params.sheet is not None:
+            sheet = _scan.read_sheet(params.sheet)
+        scan = timer.run("load", _scan.load_scan, Path(scan_path))
+        specimen = timer.run("orient", _scan.prepare, scan, units=params.units, up=params.up, north=params.north,
+                             strike_dip=params.strike_dip, sheet=sheet, scale=params.scale)
+        del scan  # the raw arrays (1.5 GB at 40 M faces) are not needed past this point
+        specimen.warnings.extend(orientation_warnings(specimen))
+        feats = timer.run("features", _features.compute_features, specimen)
+    finally:
+        prefetch.join()
     from . import segment as _segment
 
-    timer = timer or _Timer(None)
-    if sheet is None and params.sheet is not None:
-        sheet = _scan.read_sheet(params.sheet)
-    scan = timer.run("load", _scan.load_scan, Path(scan_path))
-    specimen = timer.run("orient", _scan.prepare, scan, units=params.units, up=params.up, north=params.north,
-                         strike_dip=params.strike_dip, sheet=sheet, scale=params.scale)
-    del scan  # the raw arrays (1.5 GB at 40 M faces) are not needed past this point
-    specimen.warnings.extend(orientation_warnings(specimen))
-    feats = timer.run("features", _features.compute_features, specimen)
     segmenter = _segment.BandSegmenter(random_state=params.seed)
     auto = timer.run("segment", lambda progress=None: segmenter.fit(specimen, feats, progress=progress).segmentation_)
     params = params.with_stages(
@@ -259,6 +313,31 @@ def _write_outputs(analysis: Analysis, staged: Path, formats, progress, result: 
         write_json(staged / "result.json", analysis.result)
 
 
+class _Background:
+    """``fn(*args)`` in a thread; :meth:`join` waits and raises what it raised. The inputs of later re-runs
+    (mostly ``specimen.npz``: 86 MB at 2 M faces, written and synced with the GIL released) are written so
+    while the report is drawn."""
+
+    def __init__(self, fn, *args):
+        import threading
+
+        self.error: Optional[BaseException] = None
+
+        def run():
+            try:
+                fn(*args)
+            except BaseException as exc:  # noqa: BLE001 - handed to the caller by join()
+                self.error = exc
+
+        self.thread = threading.Thread(target=run, name="bandgeo-save-inputs", daemon=True)
+        self.thread.start()
+
+    def join(self) -> None:
+        self.thread.join()
+        if self.error is not None:
+            raise self.error
+
+
 def save(analysis: Analysis, folder, *, formats=ALL_FORMATS, inputs: bool = False, set_aside_review: bool = False,
          progress: Optional[Callable] = None) -> Path:
     """Write an analysis into ``folder``: result.json (once), the report in ``formats`` (none: bands.csv
@@ -269,12 +348,20 @@ def save(analysis: Analysis, folder, *, formats=ALL_FORMATS, inputs: bool = Fals
     folder = ResultFolder(folder)
     formats = tuple(formats or ())
 
+    def write_inputs(staged: Path) -> None:
+        write_json(staged / RUN_FILE, analysis.params.document())
+        analysis.auto_segmentation.save(staged)
+        save_specimen(staged, analysis.specimen, analysis.auto_segmentation)
+
     def write(staged: Path) -> None:
-        if inputs:
-            write_json(staged / RUN_FILE, analysis.params.document())
-            analysis.auto_segmentation.save(staged)
-            save_specimen(staged, analysis.specimen, analysis.auto_segmentation)
-        _write_outputs(analysis, staged, formats, progress)
+        saver = _Background(write_inputs, staged) if inputs and formats else None
+        try:
+            if inputs and saver is None:
+                write_inputs(staged)
+            _write_outputs(analysis, staged, formats, progress)
+        finally:
+            if saver is not None:
+                saver.join()  # raises what the inputs' writing raised
 
     with folder.staging() as staged:
         write(staged)
@@ -324,10 +411,19 @@ def analyze(scan_path, out_dir, *, units=None, up=None, north=None, strike_dip=N
     timer = _Timer(progress)
     specimen, auto, params = upstream(scan_path, params, sheet=sheet_obj, timer=timer)
     review = folder.load_review() if keep_review and folder.path.is_dir() else None
-    analysis = downstream(specimen, auto, review, params, timer=timer)
-    analysis.recovered = folder.recover()  # only now: a run that fails on its input writes nothing
-    save(analysis, folder.path, formats=ALL_FORMATS if report else (), inputs=True,
-         set_aside_review=not keep_review, progress=progress)
+    typeset = None
+    if report and "pdf" in ALL_FORMATS:
+        from .report import typeset
+
+        typeset.prestart()  # WeasyPrint loads in its helper process while the next stages run
+    try:
+        analysis = downstream(specimen, auto, review, params, timer=timer)
+        analysis.recovered = folder.recover()  # only now: a run that fails on its input writes nothing
+        save(analysis, folder.path, formats=ALL_FORMATS if report else (), inputs=True,
+             set_aside_review=not keep_review, progress=progress)
+    finally:
+        if typeset is not None:
+            typeset.discard_started()
     from .segment.model import clear_projections
 
     clear_projections()  # made by the segmentation, re-used by the measurement; a batch moves on

@@ -118,3 +118,22 @@ def test_way_up_far_from_the_column_axis_is_warned(tmp_path):
     # a way-up pointing at the end that looks like the base is reported as a reversal
     (reversed_,) = orientation_warnings(spec(-axis))
     assert "reversed" in reversed_
+
+
+def test_inputs_written_beside_the_report_or_nothing(clear_case, tmp_path, monkeypatch):
+    """save() writes the re-run inputs (specimen.npz, run.json, segmentation) in a thread while the report
+    is written; a failure there still fails the save and leaves the folder as it was (no result.json)."""
+    state, _, _ = clear_case
+    out = pipeline.save(state, tmp_path / "ok", formats=("csv",), inputs=True)
+    names = {p.name for p in out.iterdir()}
+    assert {"specimen.npz", "run.json", "segmentation.json", "result.json", "bands.csv"} <= names
+    again = pipeline.load_state(out)
+    assert again.result["days_per_year"] == state.result["days_per_year"]
+
+    def broken(*_a, **_k):
+        raise OSError("disk full on purpose")
+
+    monkeypatch.setattr(pipeline, "save_specimen", broken)
+    with pytest.raises(OSError, match="on purpose"):
+        pipeline.save(state, tmp_path / "bad", formats=("csv",), inputs=True)
+    assert not (tmp_path / "bad" / "result.json").exists()

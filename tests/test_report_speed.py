@@ -238,3 +238,23 @@ def test_one_label_style_per_log_axis():
     n = [t.get_text() for t in narrow.get_yticklabels() if t.get_text()]
     assert w and all(t.startswith("10") and not t.startswith("10.") for t in w) and "10\u207b\u2074" in w
     assert n and "0.01" in n and "100" in n and not [t for t in n if "\u207b" in t]
+
+
+@needs_fork
+def test_prestarted_helper_is_taken_by_the_report_and_reaped(state, tmp_path):
+    """The pipeline starts the PDF helper before the measurement (typeset.prestart); the report takes that
+    helper and typesets in it, and a helper never taken is closed and reaped."""
+    assert typeset.prestart()
+    pid = typeset._STARTED["helper"][1].pid
+    assert typeset.prestart() and typeset._STARTED["helper"][1].pid == pid   # one helper, not two
+    paths, seconds = build_report(state, tmp_path, formats=("html", "pdf"))
+    assert seconds["pdf_parallel"] == 1.0 and "helper" not in typeset._STARTED
+    assert paths["report.pdf"].read_bytes()[:5] == b"%PDF-"
+    with pytest.raises(ChildProcessError):
+        os.waitpid(pid, os.WNOHANG)
+    assert typeset.prestart()
+    pid = typeset._STARTED["helper"][1].pid
+    typeset.discard_started()
+    assert typeset.take_started() is None
+    with pytest.raises(ChildProcessError):
+        os.waitpid(pid, os.WNOHANG)

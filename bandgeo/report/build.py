@@ -283,9 +283,9 @@ def build_report(state: Any, folder=None, formats: Iterable[str] = FORMATS, prog
     t_start, c_start = time.perf_counter(), time.process_time()
     typesetter = None
     if "pdf" in formats:
-        from .typeset import Typesetter
+        from .typeset import Typesetter, take_started
 
-        typesetter = Typesetter.start()
+        typesetter = take_started() or Typesetter.start()
     try:
         pending = None
         if docs:

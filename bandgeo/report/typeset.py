@@ -257,6 +257,40 @@ class Typesetter:
         return False
 
 
+#: A PDF helper started ahead of the report (:func:`prestart`), with the process that started it.
+_STARTED: dict = {}
+
+
+def prestart() -> bool:
+    """Start the PDF helper now, ahead of the report, so that WeasyPrint's import and warm-up (about 2 s
+    of one core) run while this process is busy with the stages before the report (the pipeline calls
+    this as the measurement starts). The report takes it with :func:`take_started`; a helper never taken
+    is closed by :func:`discard_started`. True when a helper is waiting."""
+    entry = _STARTED.get("helper")
+    if entry is not None and entry[0] == os.getpid():
+        return True
+    helper = Typesetter.start()
+    if helper is None:
+        return False
+    _STARTED["helper"] = (os.getpid(), helper)
+    return True
+
+
+def take_started() -> "Typesetter | None":
+    """The helper :func:`prestart` started in this process (and forget it), or None."""
+    entry = _STARTED.pop("helper", None)
+    if entry is None or entry[0] != os.getpid():   # none, or inherited through a fork: not ours
+        return None
+    return entry[1]
+
+
+def discard_started() -> None:
+    """Close a helper started by :func:`prestart` and never taken (a run that failed or wrote no PDF)."""
+    helper = take_started()
+    if helper is not None:
+        helper.close()
+
+
 class Forked:
     """Run ``fn() -> bytes`` in a forked child while this process does something else.
 
