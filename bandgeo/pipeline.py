@@ -243,17 +243,19 @@ def review_stage(specimen, auto, review: Optional[dict], warnings: list):
                            notes=str(review.get("notes") or ""), marked_stretches=list(review.get("stretches") or []))
 
 
-def _periodicity(series, params: RunParams, segmentation, table):
+def _periodicity(series, params: RunParams, segmentation, table, progress: Optional[Callable] = None):
     """The periodicity figures (``bandgeo.spectral.periodicity_figures``, the same function the
     ``periodicity`` command calls): tests, days per year widened by the band-count uncertainty, and the
-    astronomy block (length of day, tidal months, Earth-Moon distance)."""
+    astronomy block (length of day, tidal months, Earth-Moon distance). ``progress`` hears the tests'
+    own reports (daily test, the Monte Carlo searches, the intervals, the tidal test) as one fraction."""
     from . import spectral as _spectral
     from . import uncertainty as _uncertainty
+    from .progress import in_phases
 
     figures = _spectral.periodicity_figures(
         series, count_uncertainty=_uncertainty.count_uncertainty(segmentation),
         min_period_bands=params.min_period_bands, max_period_bands=params.max_period_bands, n_sim=params.n_sim,
-        seed=params.seed, band_flags=list(table.flags))
+        seed=params.seed, band_flags=list(table.flags), progress=in_phases(progress, 5, final="periodicity"))
     return figures["periodicity"], figures["blocks"], figures["astronomy"]
 
 
@@ -468,22 +470,28 @@ class Rerunner:
             self.stage_seconds = {}
         self.specimen, self.segmentation, self.params = specimen, segmentation, params
 
-    def warm(self, review: Optional[dict] = None) -> None:
+    def warm(self, review: Optional[dict] = None, progress: Optional[Callable] = None) -> None:
         """Prepare what every save re-uses, ahead of the first (the review page calls this from a
         background thread): the vertices' projection on the centreline and their bands for the automatic
         boundaries and for ``review`` (default: the folder's review.json), the unrolled coordinates
-        of the relief profile, and the stages' first imports. Nothing is written."""
+        of the relief profile, and the stages' first imports. Nothing is written. ``progress`` hears
+        each of the four steps."""
         from .segment.model import assign_bands, vertex_projection
         from .unroll import height_order, unroll
 
         vertices, axis = self.specimen.vertices_mm, self.segmentation.axis
+        _report(progress, "bands of the vertices", 0, 4)
         assign_bands(vertices, self.segmentation.boundaries, axis)
+        _report(progress, "projection on the centreline", 1, 4)
         vertex_projection(vertices, axis).keep_sorted()
+        _report(progress, "unrolled mesh", 2, 4)
         if len(vertices) <= 2_000_000:  # the relief profile's own (not subsampled) vertices
             height_order(unroll(vertices, axis))
         if review is None:
             review = self.folder.load_review()
+        _report(progress, "one analysis", 3, 4)
         downstream(self.specimen, self.segmentation, review, self.params)
+        _report(progress, "ready", 4, 4)
 
     def __call__(self, folder=None, review: Optional[dict] = None, report: bool = True,
                  progress: Optional[Callable] = None, formats=ALL_FORMATS) -> Analysis:

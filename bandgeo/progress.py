@@ -126,6 +126,31 @@ def inner_callback(progress, name: str, index: int, total: int) -> ProgressCallb
     return callback
 
 
+def in_phases(progress: Optional[ProgressCallback], phases: int,
+              final: Optional[str] = None) -> Optional[ProgressCallback]:
+    """A callback for a step made of about ``phases`` sub-steps that each report from 0 to their own
+    total (the periodicity tests: the daily test, a Monte Carlo search per series, the intervals, the
+    tidal test). A new description starts the next phase; the report ``final`` (if given) is the end.
+    The fraction passed on runs once from 0 to 1 and never goes back. None stays None."""
+    if progress is None:
+        return None
+    state = {"label": None, "phase": -1, "last": 0.0}
+
+    def callback(description: str, done: float, total: float) -> None:
+        label = str(description)
+        if label != state["label"]:
+            state["label"] = label
+            state["phase"] += 1
+        if final is not None and label == final:
+            whole = 1.0
+        else:
+            whole = min(1.0, (min(state["phase"], phases - 1) + _fraction(done, total)) / phases)
+        state["last"] = max(state["last"], whole)
+        progress(description, state["last"], 1.0)
+
+    return callback
+
+
 def _fraction(done, total) -> float:
     try:
         done, total = float(done), float(total)

@@ -247,3 +247,84 @@ def test_a_plain_bar_switches_to_the_cost_model_when_the_pipeline_reports_stages
     assert cb.remaining() > 0
     cb.stage("start", "report")  # not planned: added when it comes
     assert cb.estimate.plan[-1] == "report"
+
+
+def test_periodicity_stage_reports_its_tests_to_the_stage_timer():
+    """The periodicity stage passes the tests' own reports (daily test, Monte Carlo searches, intervals,
+    tidal test) to the pipeline's progress callback, as one fraction that never goes back, and the
+    numbers are those of a run without a callback."""
+    from types import SimpleNamespace
+
+    from bandgeo import pipeline
+    from bandgeo.series import series_from_thickness
+
+    rng = np.random.default_rng(4)
+    n = 600
+    h = 0.05 * (1 + 0.3 * np.sin(2 * np.pi * np.arange(n) / 40.0) + 0.1 * rng.standard_normal(n))
+    series = series_from_thickness(h, source="test")
+    seg = SimpleNamespace(boundaries=[SimpleNamespace(confidence=0.9, origin="auto") for _ in range(n + 1)],
+                          resolution={}, warnings=[])
+    table = SimpleNamespace(flags=[""] * n)
+    params = SimpleNamespace(min_period_bands=None, max_period_bands=None, n_sim=99, seed=3)
+    heard = []
+    timer = _Timer(lambda d, done, total: heard.append((str(d), float(done), float(total))), stages=STAGES)
+    per, blocks, _ = timer.run("periodicity", pipeline._periodicity, series, params, seg, table)
+    index = STAGES.index("periodicity")
+    inner = [(d, done) for d, done, _ in heard if d.startswith("periodicity: ")]
+    assert len(inner) >= 3
+    fractions = [done - index for _, done in inner]
+    assert all(0.0 <= f <= 1.0 for f in fractions) and fractions == sorted(fractions)
+    assert fractions[-1] == pytest.approx(1.0)
+    _, quiet, _ = pipeline._periodicity(series, params, seg, table)
+    assert quiet["days_per_year"] == blocks["days_per_year"]
+
+
+def test_in_phases_runs_once_from_zero_to_one():
+    heard = []
+    cb = progress.in_phases(lambda d, done, total: heard.append(done / total), 3)
+    for label in ("a", "b", "c"):
+        for k in range(5):
+            cb(f"{label}: step", k, 4)
+    cb("d", 1, 1)                      # more phases than planned: stays at 1
+    assert heard == sorted(heard) and heard[0] == 0.0 and heard[-1] == 1.0
+    heard.clear()
+    cb = progress.in_phases(lambda d, done, total: heard.append(done / total), 5, final="end")
+    cb("a", 0, 1), cb("a", 1, 1), cb("end", 1, 1)
+    assert heard == [0.0, 0.2, 1.0]
+    assert progress.in_phases(None, 3) is None
+
+
+def test_review_worker_reports_its_warm_up_and_the_page_can_show_it(monkeypatch):
+    """The review page's re-run worker sends its warm-up steps (loading, bands, projection, unrolling,
+    one analysis) before it says it is ready; ``ProcessRerun.wait_ready(progress=...)`` hands them to a
+    progress display (a terminal bar in the page's process)."""
+    import threading
+    from multiprocessing import Pipe
+
+    from bandgeo import pipeline
+    from bandgeo.review import app as app_mod
+    from bandgeo.review import worker
+
+    class FakeRerunner:
+        def __init__(self, folder):
+            self.folder = folder
+
+        def warm(self, progress=None):
+            for k, what in enumerate(("bands", "projection", "unrolled", "analysis")):
+                progress(what, k, 4)
+            progress("ready", 4, 4)
+
+    monkeypatch.setattr(pipeline, "Rerunner", FakeRerunner)
+    page_end, worker_end = Pipe()
+    t = threading.Thread(target=worker.serve_requests, args=(worker_end, "folder", False), daemon=True)
+    t.start()
+    rerun = app_mod.ProcessRerun(report=False)
+    rerun._conn = page_end
+    heard = []
+    assert rerun.wait_ready(timeout=30, progress=lambda d, done, total: heard.append((d, done / total)))
+    page_end.send(("stop", None))
+    t.join(10)
+    assert heard[0][0] == "warm-up: loading the specimen" and heard[0][1] == 0.0
+    assert heard[-1][1] == 1.0 and [f for _, f in heard] == sorted(f for _, f in heard)
+    assert all(d.startswith("warm-up: ") for d, _ in heard) and len(heard) == 6
+    rerun._conn = None

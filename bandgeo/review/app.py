@@ -132,8 +132,9 @@ class ProcessRerun:
         with self._lock:
             self._start(folder)
 
-    def wait_ready(self, timeout: float = 120.0) -> bool:
-        """Wait until the worker has loaded and warmed the inputs; True when it has."""
+    def wait_ready(self, timeout: float = 120.0, progress=None) -> bool:
+        """Wait until the worker has loaded and warmed the inputs; True when it has. ``progress``
+        (``(description, done, total)``, e.g. a ``bandgeo.progress.bar()``) hears the warm-up's steps."""
         deadline = time.monotonic() + timeout
         with self._lock:
             while self._conn is not None and not self._ready:
@@ -141,9 +142,11 @@ class ProcessRerun:
                 if left <= 0 or not self._conn.poll(left):
                     break
                 try:
-                    kind, _ = self._conn.recv()
+                    kind, payload = self._conn.recv()
                 except (EOFError, OSError):
                     break
+                if kind == "progress" and progress is not None:
+                    progress(*payload)
                 self._ready = self._ready or kind == "ready"
             return bool(self._ready)
 

@@ -32,10 +32,16 @@ def serve_requests(conn, folder, report: bool) -> None:
     def progress(description, done, total):
         send("progress", (str(description), float(done or 0), float(total or 0)))
 
+    def warming(description, done, total):  # before "ready": the page's process may show a bar
+        progress(f"warm-up: {description}", done, total)
+
     runner = None
     try:
+        warming("loading the specimen", 0, 5)
         runner = pipeline.Rerunner(folder)
-        runner.warm()
+        runner.warm(progress=lambda what, done, total: warming(what, done + 1, total + 1))
+    except _Gone:
+        return
     except Exception:  # the first save makes it again and reports the problem in one line
         pass
     try:
