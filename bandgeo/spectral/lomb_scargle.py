@@ -16,6 +16,8 @@ from scipy import fft as _fft
 
 #: Largest number of complex samples handled in one block by the refinement (memory bound).
 _BLOCK = 4_000_000
+#: Threads of the batched FFTs (one whole transform per thread: the same numbers as one thread).
+FFT_WORKERS = 2
 
 
 def oversample_for(n: int) -> int:
@@ -50,7 +52,7 @@ def detrend(x: np.ndarray) -> np.ndarray:
 
 def fft_transform(x: np.ndarray, n_fft: int) -> np.ndarray:
     """Zero-padded real FFT along the last axis, (..., n_fft//2 + 1) complex."""
-    return _fft.rfft(x, n=n_fft, axis=-1)
+    return _fft.rfft(x, n=n_fft, axis=-1, workers=FFT_WORKERS if np.ndim(x) > 1 else None)
 
 
 def fft_power(x: np.ndarray, n_fft: int, spectrum: np.ndarray | None = None) -> np.ndarray:

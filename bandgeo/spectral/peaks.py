@@ -127,10 +127,12 @@ def residual_surrogates(rng: np.random.Generator, size: int, n: int, spectrum: n
     ``n`` samples for correlations shorter than the record), first ``n`` samples kept."""
     from scipy import fft as _fft
 
+    from .lomb_scargle import FFT_WORKERS
+
     w = rng.standard_normal((size, n_fft), dtype=np.float32 if dtype == np.float32 else np.float64)
-    W = _fft.rfft(w, axis=1)
+    W = _fft.rfft(w, axis=1, workers=FFT_WORKERS)
     W *= np.sqrt(np.maximum(spectrum, 0.0)).astype(W.real.dtype)[None, :]
-    return _fft.irfft(W, n=n_fft, axis=1)[:, :n]
+    return _fft.irfft(W, n=n_fft, axis=1, workers=FFT_WORKERS)[:, :n]
 
 
 def cycle_phase_matrices(n: int, f: float):
