@@ -299,3 +299,29 @@ def test_many_diffusion_steps_stay_finite():
     assert feat.info["diffusion_steps"][-1] == MAX_STEPS
     assert np.all(np.isfinite(feat.mean)) and np.all(np.isfinite(feat.gaussian))
     assert np.median(feat.mean[:, 1]) == pytest.approx(1 / (2 * r), rel=0.02)
+
+
+def test_blocks_summed_over_their_own_vertices_give_the_same_numbers():
+    """With many face blocks the one-ring sums run over each block's own vertices (bandgeo.features.
+    curvature.COMPACT_BLOCKS); they are the very numbers of whole-length sums, bit for bit, and the
+    sphere's curvature is still 1/r and 1/r^2 (do Carmo 1976, Differential Geometry of Curves and
+    Surfaces, sec. 3-3)."""
+    import bandgeo.features.curvature as curv
+
+    v, f = icosphere(3.0, subdivisions=5)
+    rng = np.random.default_rng(2)
+    f = f[rng.permutation(len(f))]            # faces in no order: every block touches most of the sphere
+    dense = curv.one_ring_curvature(v, f, block=1000)
+    saved = curv.COMPACT_BLOCKS
+    try:
+        curv.COMPACT_BLOCKS = 10 ** 9         # never: the whole-length sums
+        whole = curv.one_ring_curvature(v, f, block=1000)
+    finally:
+        curv.COMPACT_BLOCKS = saved
+    assert len(f) > 4 * 1000
+    for a, b in zip(dense, whole):
+        assert np.array_equal(a, b)
+    lap, gauss, area, normals, _ = dense
+    H = 0.5 * np.linalg.norm(lap, axis=1)
+    assert np.median(H) == pytest.approx(1 / 3.0, rel=1e-2)
+    assert np.median(gauss) == pytest.approx(1 / 9.0, rel=1e-2)
