@@ -48,6 +48,13 @@ MAX_PERIOD_FLOOR_MM = 2.0
 #: Least share of neighbouring column pairs with data, for the tilt at a height to count.
 MIN_PAIRS = 0.3
 
+#: Near an end of the stretch (heights where the columns hold less than this share of their usual data
+#: on average), a pair of columns that end alike also counts: their occupancies within ``END_ALIKE`` of
+#: each other (as shares of their usual occupancy) and both at least ``END_LEAST``.
+END_ZONE = 0.9
+END_ALIKE = 0.1
+END_LEAST = 0.3
+
 #: Laminae a record must hold before the band spacing is re-centred on the whole peak (see _strongest).
 MIN_LAMINAE_RECENTRE = 400
 
@@ -244,7 +251,18 @@ def tilt_pass(s, theta, relief, spacing_mm, bin_mm, n_az, smooth_mm):
     occ = gaussian_filter1d((cnt > 0).astype(np.float32), 1.5 * spacing_mm / bin_mm, axis=1)
     typical = np.array([np.median(o[o > 0.05]) if np.any(o > 0.05) else 1.0 for o in occ])
     full = occ > 0.85 * typical[:, None]
-    w = (np.abs(c) + 1e-12) * (full & np.roll(full, -1, axis=0))
+    pair_ok = full & np.roll(full, -1, axis=0)
+    # ... except near an end, where two neighbouring columns that end alike ring alike: their phase
+    # difference still reads the tilt. (An end cut square to the laminae leaves every column partial
+    # for a lamina and a half; with full pairs only, the tilt there was carried over from two laminae
+    # in, and on a sharply bending column the boundary next to the cut smeared out of the profile:
+    # synthetic atlas cells, stubby 2.4 mm stretches, lost it in 11 of 16 cells, 2 of 16 with this rule.)
+    rel = occ / typical[:, None]
+    rel_next = np.roll(rel, -1, axis=0)
+    alike = (np.abs(rel - rel_next) <= END_ALIKE) & (np.minimum(rel, rel_next) >= END_LEAST)
+    end_zone = np.minimum(rel, 1.0).mean(axis=0) < END_ZONE
+    pair_ok |= alike & end_zone[None, :]
+    w = (np.abs(c) + 1e-12) * pair_ok
     M = np.einsum("jn,ja,jb->nab", w, D, D)
     rhs = np.einsum("jn,ja,jn->na", w, D, delta)
     coef = np.linalg.solve(M + 1e-9 * np.eye(2)[None], rhs[..., None])[..., 0]  # (nb, 2)
@@ -260,7 +278,7 @@ def tilt_pass(s, theta, relief, spacing_mm, bin_mm, n_az, smooth_mm):
     amplitude = amp.mean(axis=0)
     # heights where fewer than MIN_PAIRS of the neighbour pairs are usable (the ends, a big hole) have no
     # reliable tilt: a fit to a few pairs on one side of the column is ill-conditioned
-    pairs = (full & np.roll(full, -1, axis=0)).mean(axis=0)
+    pairs = pair_ok.mean(axis=0)
     amplitude = np.where(pairs >= MIN_PAIRS, amplitude, 0.0)
     return grid, lag_a, lag_b, amplitude
 
