@@ -6,7 +6,8 @@ each repeat, in fresh processes so that memory figures belong to one size and on
 
 1. ``bandgeo.pipeline.analyze`` (load, orient, features, segment, review, measure, series,
    periodicity, report; the stage seconds are the pipeline's own ``stage_seconds``), with wall and
-   CPU seconds, peak RSS (``ru_maxrss``) and the peak RSS sampled within each stage;
+   CPU seconds, peak RSS (``ru_maxrss``) and the peak RSS sampled within each stage; the wall time
+   outside every stage (imports of the first modules, set-up, result.json, the swap) is its own row;
 2. a review save as the review page makes it (``bandgeo.review.app.ReviewApp``: inputs read and warmed
    first, as the page does while the browser opens; then one boundary rejected, ``save()``, timed to
    the new figures and to the rewritten report);
@@ -357,7 +358,7 @@ def table(results: list[dict], markdown: bool = False) -> str:
     for stage in STAGES:
         add(f"{stage} (s)", lambda r, s=stage: (r.get("stages") or {}).get(s), "{:.2f}",
             "segment" if stage == "segment" else "stage")
-    add("saving inputs, swap, other (s)", lambda r: r.get("other"))
+    add("not in a stage: imports, saving, swap (s)", lambda r: r.get("other"))
     add("TOTAL analyze wall (s)", lambda r: r.get("total"), "{:.1f}", "total")
     add("CPU user+sys (s)", lambda r: r.get("cpu"), "{:.1f}")
     for stage in STAGES:
@@ -484,6 +485,11 @@ def main(argv=None) -> int:
         print(extra)
         for failure in r.get("failures", []):
             print(f"{r['size_m']:g} M FAILED {failure}")
+    print("notes: 'not in a stage' is the analyze wall time outside the stage timers: the first import of the "
+          "scan and feature modules, the run's set-up, result.json and the swap (the later stages' modules - "
+          "scipy.signal, scikit-learn, astropy, matplotlib - are imported in a background thread during load, "
+          "orient and features, so their CPU counts there; the re-run inputs are written in a thread during "
+          "the report; the PDF helper loads WeasyPrint from the measurement on)")
     print(f"load average at the end: {', '.join(f'{x:.2f}' for x in os.getloadavg())}")
     if args.markdown:
         print()
