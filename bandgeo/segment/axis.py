@@ -49,29 +49,46 @@ class Centreline:
         Beyond the ends the curve continues straight along the end tangents.
         """
         s_arr = np.atleast_1d(np.asarray(s, dtype=float))
-        h, p, t = self.heights_mm, self.points_mm, self.tangents
-        # one search, shared weights for the six coordinates (linear interpolation, clamped); the
-        # segment differences are computed once per curve (this runs on every vertex several times)
-        dp, dt = self._diffs()
-        i = np.clip(np.searchsorted(h, s_arr), 1, len(h) - 1) - 1
-        w = np.clip((s_arr - h[i]) / (h[i + 1] - h[i]), 0.0, 1.0)[:, None]
-        pts = p[i] + w * dp[i]
-        tan = t[i] + w * dt[i]
+        h = self.heights_mm
+        # one search and one gather of a packed row (point, tangent and their steps to the next
+        # sample) per query; linear interpolation, clamped (this runs on every vertex several times)
+        table, inv_step = self._table()
+        i = np.searchsorted(h, s_arr)
+        np.clip(i, 1, len(h) - 1, out=i)
+        i -= 1
+        w = s_arr - h[i]
+        w *= inv_step[i]
+        np.clip(w, 0.0, 1.0, out=w)
+        g = table[i]
+        w = w[:, None]
+        pts = g[:, 6:9]
+        pts *= w
+        pts += g[:, 0:3]
+        tan = g[:, 9:12]
+        tan *= w
+        tan += g[:, 3:6]
         lo, hi = s_arr < h[0], s_arr > h[-1]
         if lo.any():
-            pts[lo] = p[0] + (s_arr[lo] - h[0])[:, None] * t[0]
+            pts[lo] = self.points_mm[0] + (s_arr[lo] - h[0])[:, None] * self.tangents[0]
         if hi.any():
-            pts[hi] = p[-1] + (s_arr[hi] - h[-1])[:, None] * t[-1]
+            pts[hi] = self.points_mm[-1] + (s_arr[hi] - h[-1])[:, None] * self.tangents[-1]
         tan /= np.sqrt(np.einsum("ij,ij->i", tan, tan))[:, None]
         if np.ndim(s) == 0:
             return pts[0], tan[0]
         return pts, tan
 
-    def _diffs(self):
-        cache = self.__dict__.get("_diff_cache")
+    def _table(self):
+        """Rows (point, tangent, step to the next point, step to the next tangent) and 1 / step in arc
+        length, per sample; cached per curve."""
+        cache = self.__dict__.get("_table_cache")
         if cache is None or cache[0] is not self.points_mm or cache[1] is not self.tangents:
-            cache = (self.points_mm, self.tangents, np.diff(self.points_mm, axis=0), np.diff(self.tangents, axis=0))
-            self.__dict__["_diff_cache"] = cache
+            p, t = self.points_mm, self.tangents
+            dp = np.vstack([np.diff(p, axis=0), np.zeros((1, 3))])
+            dt = np.vstack([np.diff(t, axis=0), np.zeros((1, 3))])
+            dh = np.diff(self.heights_mm)
+            inv = np.r_[1.0 / dh, 0.0]
+            cache = (p, t, np.ascontiguousarray(np.hstack([p, t, dp, dt])), inv)
+            self.__dict__["_table_cache"] = cache
         return cache[2], cache[3]
 
     def approx_s(self, vertices: np.ndarray) -> np.ndarray:
