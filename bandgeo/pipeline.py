@@ -148,6 +148,10 @@ def _import_later_stages() -> None:
     from .report import build, comparison, exports, figures, html, specimen_view, tilt  # noqa: F401
 
 
+#: The import thread of :class:`_Prefetch` while it runs (one per process).
+_PREFETCH: dict = {}
+
+
 class _Prefetch:
     """Imports the later stages' modules in a background thread while this one loads, orients and
     computes the features (mostly numpy work that leaves the other core idle), so that a fresh process
@@ -161,6 +165,10 @@ class _Prefetch:
         import threading
 
         self.thread = None
+        running = _PREFETCH.get("thread")
+        if running is not None and running.is_alive():  # an earlier run's, cut short by a failure
+            self.thread = running
+            return
         if os.environ.get("BANDGEO_PREFETCH", "1").strip().lower() in ("0", "no", "false", "off"):
             return
         if all(m in sys.modules for m in ("bandgeo.segment", "astropy.timeseries", "bandgeo.report.build")):
@@ -173,6 +181,7 @@ class _Prefetch:
             return
         self.thread = threading.Thread(target=self._run, name="bandgeo-imports", daemon=True)
         self.thread.start()
+        _PREFETCH["thread"] = self.thread
 
     @staticmethod
     def _run() -> None:
@@ -193,19 +202,17 @@ def upstream(scan_path, params: RunParams, *, sheet=None, timer: Optional[_Timer
     from . import features as _features
     from . import scan as _scan
 
-    prefetch = _Prefetch()
-    try:
-        timer = timer or _Timer(None)
-        if sheet is None and params.sheet is not None:
-            sheet = _scan.read_sheet(params.sheet)
-        scan = timer.run("load", _scan.load_scan, Path(scan_path))
-        specimen = timer.run("orient", _scan.prepare, scan, units=params.units, up=params.up, north=params.north,
-                             strike_dip=params.strike_dip, sheet=sheet, scale=params.scale)
-        del scan  # the raw arrays (1.5 GB at 40 M faces) are not needed past this point
-        specimen.warnings.extend(orientation_warnings(specimen))
-        feats = timer.run("features", _features.compute_features, specimen)
-    finally:
-        prefetch.join()
+    timer = timer or _Timer(None)
+    if sheet is None and params.sheet is not None:
+        sheet = _scan.read_sheet(params.sheet)
+    scan = timer.run("load", _scan.load_scan, Path(scan_path))
+    prefetch = _Prefetch()  # once the scan has been read: a file refused costs no imports
+    specimen = timer.run("orient", _scan.prepare, scan, units=params.units, up=params.up, north=params.north,
+                         strike_dip=params.strike_dip, sheet=sheet, scale=params.scale)
+    del scan  # the raw arrays (1.5 GB at 40 M faces) are not needed past this point
+    specimen.warnings.extend(orientation_warnings(specimen))
+    feats = timer.run("features", _features.compute_features, specimen)
+    prefetch.join()  # (a failure above leaves the daemon thread to finish on its own)
     from . import segment as _segment
 
     segmenter = _segment.BandSegmenter(random_state=params.seed)

@@ -137,3 +137,39 @@ def test_inputs_written_beside_the_report_or_nothing(clear_case, tmp_path, monke
     with pytest.raises(OSError, match="on purpose"):
         pipeline.save(state, tmp_path / "bad", formats=("csv",), inputs=True)
     assert not (tmp_path / "bad" / "result.json").exists()
+
+
+def test_prefetch_imports_once_and_a_refused_scan_starts_none(tmp_path, monkeypatch):
+    """The later stages' modules are imported in one background thread per process, started only once
+    the scan has been read (a refused file costs no imports); joining it twice is harmless."""
+    import threading
+
+    from bandgeo.errors import InputError
+
+    started = []
+    real = threading.Thread.start
+
+    def spy(self):
+        if self.name == "bandgeo-imports":
+            started.append(self)
+        return real(self)
+
+    monkeypatch.setattr(threading.Thread, "start", spy)
+    bad = tmp_path / "empty.ply"
+    bad.write_bytes(b"")
+    with pytest.raises(InputError):
+        pipeline.analyze(bad, tmp_path / "out", report=False)
+    assert not started and not (tmp_path / "out" / "result.json").exists()
+    release = threading.Event()
+    monkeypatch.setattr(pipeline, "_import_later_stages", lambda: release.wait(30))
+    monkeypatch.delitem(sys.modules, "bandgeo.report.build", raising=False)   # as if not imported yet
+    monkeypatch.setenv("BANDGEO_PREFETCH", "1")
+    monkeypatch.setattr(pipeline, "_PREFETCH", {})
+    a = pipeline._Prefetch()
+    b = pipeline._Prefetch()                      # while the first still runs: the same thread
+    if a.thread is not None:                      # (none on a one-core machine)
+        assert b.thread is a.thread and len(started) == 1
+    release.set()
+    a.join()
+    a.join()
+    b.join()
