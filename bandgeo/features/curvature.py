@@ -183,7 +183,7 @@ def rough_axis(vertices: np.ndarray) -> np.ndarray:
     return a if a[2] >= 0 else -a
 
 
-def sampling_along(vertices: np.ndarray, faces: np.ndarray, axis: np.ndarray) -> float:
+def sampling_along(vertices: np.ndarray, faces: np.ndarray, axis: np.ndarray, only=None) -> float:
     """Sampling interval of the mesh along ``axis``, mm.
 
     For each vertex the longest projection on the axis of its incident edges is the distance to the
@@ -196,6 +196,9 @@ def sampling_along(vertices: np.ndarray, faces: np.ndarray, axis: np.ndarray) ->
     faces : (m, 3) int
     axis : (3,) unit vector, or (n, 3) unit tangents of the growth axis at each vertex (a leaning,
         swaying column: long edges around a ring must not pick up the local tilt)
+    only : (n,) bool, optional
+        The median runs over these vertices only (a sample of a large mesh: then ``faces`` need hold
+        only the faces that touch them, and ``axis`` need be right only at those faces' vertices).
     """
     n = len(vertices)
     axis = np.asarray(axis, dtype=float)
@@ -222,6 +225,8 @@ def sampling_along(vertices: np.ndarray, faces: np.ndarray, axis: np.ndarray) ->
             np.maximum.at(proj, fa, d)
             np.maximum.at(proj, fb, d)
     used = proj > 0
+    if only is not None:
+        used &= np.asarray(only, dtype=bool)
     return float(np.median(proj[used])) if used.any() else float("nan")
 
 

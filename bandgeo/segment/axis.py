@@ -23,6 +23,8 @@ from scipy.signal import savgol_filter
 FULL_SLAB = 0.75
 #: ... and its thinnest sixteenth of the circumference holds this fraction of the median sixteenth.
 BALANCED_SLAB = 0.5
+#: Vertices per block of :meth:`Centreline.project`.
+PROJECT_BLOCK = 65_536
 
 
 @dataclass
@@ -121,22 +123,38 @@ class Centreline:
         radial : (n, 3) float, mm
             ``v - c(s)``, perpendicular to the tangent at ``s``.
         """
-        s = self.approx_s(vertices)
-        for _ in range(iterations):
+        vertices = np.asarray(vertices, dtype=float)
+        n = len(vertices)
+        s_out = np.empty(n)
+        radial_out = np.empty((n, 3))
+        # in blocks: every step of a block reuses a few MB that stay mapped (whole-length temporaries
+        # of a 5 M-vertex wall are hundreds of MB each, and mapping them in costs more than the work)
+        for a in range(0, n, PROJECT_BLOCK):
+            v = vertices[a:a + PROJECT_BLOCK]
+            s = self.approx_s(v)
+            for _ in range(iterations):
+                c, t = self.at(s)
+                c -= v
+                s -= np.einsum("ij,ij->i", c, t)
             c, t = self.at(s)
-            s = s + np.einsum("ij,ij->i", vertices - c, t)
-        c, t = self.at(s)
-        radial = vertices - c
-        radial -= np.einsum("ij,ij->i", radial, t)[:, None] * t
-        return s, radial
+            np.subtract(v, c, out=c)
+            c -= np.einsum("ij,ij->i", c, t)[:, None] * t
+            s_out[a:a + PROJECT_BLOCK] = s
+            radial_out[a:a + PROJECT_BLOCK] = c
+        return s_out, radial_out
 
     def frame(self, s):
         """Orthonormal (e1, e2) perpendicular to the tangents at ``s`` (twist-free from +x)."""
-        _, t = self.at(np.atleast_1d(s))
-        ref = np.where(np.abs(t[:, [0]]) < 0.9, np.array([[1.0, 0.0, 0.0]]), np.array([[0.0, 1.0, 0.0]]))
-        e1 = ref - np.einsum("ij,ij->i", ref, t)[:, None] * t
-        e1 /= np.linalg.norm(e1, axis=1, keepdims=True)
-        return e1, np.cross(t, e1)
+        s = np.atleast_1d(np.asarray(s, dtype=float))
+        e1_out, e2_out = np.empty((len(s), 3)), np.empty((len(s), 3))
+        for a in range(0, len(s), PROJECT_BLOCK):  # in blocks, as project
+            _, t = self.at(s[a:a + PROJECT_BLOCK])
+            ref = np.where(np.abs(t[:, [0]]) < 0.9, np.array([[1.0, 0.0, 0.0]]), np.array([[0.0, 1.0, 0.0]]))
+            e1 = ref - np.einsum("ij,ij->i", ref, t)[:, None] * t
+            e1 /= np.linalg.norm(e1, axis=1, keepdims=True)
+            e1_out[a:a + PROJECT_BLOCK] = e1
+            e2_out[a:a + PROJECT_BLOCK] = np.cross(t, e1)
+        return e1_out, e2_out
 
     def to_dict(self) -> dict:
         return {"heights_mm": self.heights_mm, "points_mm": self.points_mm, "tangents": self.tangents}

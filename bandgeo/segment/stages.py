@@ -19,6 +19,9 @@ from .rings import periodic_contrast
 from .unroll import coarse_centreline, unroll, wall_mask
 
 
+#: Vertices over which the sampling interval along the centreline is taken (a median: more add nothing).
+SAMPLING_VERTICES = 400_000
+
 #: Repair rule R6: least groove-class probability of a boundary's groove, relative to the wall mean.
 MIN_CLASS_SUPPORT = 0.2
 
@@ -54,8 +57,22 @@ def frame(v, faces, features, rng, max_wall, run):
     if faces is not None:
         # sampling interval along the coarse centreline's local tangent (not the rough straight axis)
         # (the tangent turns slowly: the chord position is close enough, no projection of every vertex)
-        tang = axis_c.at(axis_c.approx_s(v))[1]
-        samp = sampling_along(v, faces, tang)
+        # (on a large mesh, the median over every k-th vertex: the faces touching them and the tangents
+        # at those faces' vertices only; 10 M faces: 13 s -> about 2 s, the median within 0.5 %)
+        step = max(1, -(-len(v) // SAMPLING_VERTICES))
+        if step > 1:
+            only = np.zeros(len(v), dtype=bool)
+            only[::step] = True
+            sub = faces[only[faces[:, 0]] | only[faces[:, 1]] | only[faces[:, 2]]]
+            near = np.zeros(len(v), dtype=bool)
+            near[sub.ravel()] = True
+            near = np.flatnonzero(near)
+            tang = np.zeros_like(v)
+            tang[near] = axis_c.at(axis_c.approx_s(v[near]))[1]
+            samp = sampling_along(v, sub, tang, only=only)
+        else:
+            tang = axis_c.at(axis_c.approx_s(v))[1]
+            samp = sampling_along(v, faces, tang)
         del tang
     run.info["radius_mm"] = W.radius_mm
     return SimpleNamespace(wall=wall, wall_idx=wall_idx, W=W, axis_c=axis_c, samp=float(samp), noise=noise,
