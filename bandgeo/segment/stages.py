@@ -19,8 +19,9 @@ from .rings import periodic_contrast
 from .unroll import coarse_centreline, unroll, wall_mask
 
 
-#: Vertices over which the sampling interval along the centreline is taken (a median: more add nothing).
-SAMPLING_VERTICES = 400_000
+#: Vertices over which the sampling interval along the centreline is taken, at most (a median; on 10 M
+#: faces and up only).
+SAMPLING_VERTICES = 2_000_000
 
 #: Repair rule R6: least groove-class probability of a boundary's groove, relative to the wall mean.
 MIN_CLASS_SUPPORT = 0.2
@@ -57,8 +58,8 @@ def frame(v, faces, features, rng, max_wall, run):
     if faces is not None:
         # sampling interval along the coarse centreline's local tangent (not the rough straight axis)
         # (the tangent turns slowly: the chord position is close enough, no projection of every vertex)
-        # (on a large mesh, the median over every k-th vertex: the faces touching them and the tangents
-        # at those faces' vertices only; 10 M faces: 13 s -> about 2 s, the median within 0.5 %)
+        # (on a very large mesh, the median over every k-th vertex: the faces touching them and the tangents
+        # at those faces' vertices only)
         step = max(1, -(-len(v) // SAMPLING_VERTICES))
         if step > 1:
             only = np.zeros(len(v), dtype=bool)
