@@ -34,9 +34,11 @@ def one_blas_thread():
 PREDICT_BLOCK = 1 << 20
 
 
-def robust_scale(X: np.ndarray, rows: np.ndarray):
-    """Centre by the median and scale by IQR / 1.349 (the normal sigma; common practice), clip +-8."""
-    ref = X[rows]
+def robust_scale(X: np.ndarray, rows=None):
+    """Centre by the median and scale by IQR / 1.349 (the normal sigma; common practice), clip +-8.
+
+    The median and IQR are taken over ``rows`` (default: all rows); every row of ``X`` is scaled."""
+    ref = X if rows is None else X[rows]
     med = np.median(ref, axis=0)
     q75, q25 = np.percentile(ref, [75, 25], axis=0)
     scale = (q75 - q25) / 1.349

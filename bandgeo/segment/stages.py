@@ -124,9 +124,8 @@ def classify(est, features, fr, s_flat, sp, rng):
     n = features.mean.shape[0]
     X = features.matrix(luminance=est.use_luminance)
     wall_idx = fr.wall_idx
-    Z, _, _ = cluster.robust_scale(X, wall_idx)
-    Zw = Z[wall_idx]
-    del Z
+    Zw, _, _ = cluster.robust_scale(X[wall_idx])  # the wall rows only: the same numbers
+    del X
     with cluster.one_blas_thread():
         if est.n_classes == "bic":
             k, bic, init = cluster.choose_classes(Zw, range(1, est.max_classes + 1), rng, est.bic_subsample,
