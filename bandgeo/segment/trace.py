@@ -22,6 +22,9 @@ from .axis import circle_centres
 
 #: Azimuth columns of the groove points of each boundary (coverage is counted in them).
 FIT_COLUMNS = 48
+#: Reach (in laminae, either side of the fitted planes) of the specimen's mean groove profile, whose
+#: deepest point the planes are moved to.
+DEEPEST_REACH = 0.3
 
 
 def groove_profile(s_flat, relief, spacing_mm):
@@ -193,6 +196,12 @@ def fit_boundaries(wall, s_flat, heights, spacing_local, axis, rounds=3, score=N
     ok = np.isfinite(cx) & (cnt >= 0.5 * n_col)
     centre = centre + np.where(ok[:, None], cx[:, None] * e1 + cy[:, None] * e2, 0.0)
     dist = np.einsum("ij,ij->i", v - centre[kk], normal[kk])
+    # the planes go through the deepest point of the grooves, not their depth-weighted centroid: on an
+    # asymmetric groove (a steep side and a slow one) the centroid sits on the slow side (independent
+    # generator, laminae of 0.22 mm: a median 0.02 mm off the true plane)
+    shift = _deepest_offset(kk, dist, rel, spacing_local, c)
+    centre = centre + shift[:, None] * normal
+    dist = dist - shift[kk]
     w = np.maximum(-rel, 0.0) * np.exp(-0.5 * (dist / sigma[kk]) ** 2) * (np.abs(dist) < half)
     if score is not None:
         sc = score[sel]
@@ -200,6 +209,31 @@ def fit_boundaries(wall, s_flat, heights, spacing_local, axis, rounds=3, score=N
     out.update(center=centre, normal=normal, rms_mm=rms, coverage=cnt / n_col, n_points=cnt, weight=ws,
                samples=(kk, dist, rel))
     return out
+
+
+def _deepest_offset(kk, dist, rel, spacing_local, c, reach=DEEPEST_REACH, n_bins=48):
+    """Offset along each boundary's normal of the deepest point of the specimen's mean groove (mm).
+
+    The relief of the vertices within ``reach`` laminae of their boundary's plane, against their
+    distance to it in laminae, pooled over every boundary (a specimen's grooves share one shape; one
+    boundary's own profile is too noisy to place its minimum better than its centroid), in ``n_bins``
+    bins, lightly smoothed; the minimum is refined by a parabola through its bin and the two beside it.
+    Returns that offset times each boundary's local lamina (0 with fewer than 20 vertices per bin)."""
+    u = dist / spacing_local[kk]
+    inside = np.abs(u) < reach
+    u, r = u[inside], rel[inside]
+    if len(u) < 20 * n_bins:
+        return np.zeros(c)
+    b = np.minimum(((u + reach) / (2 * reach) * n_bins).astype(np.int64), n_bins - 1)
+    sums = np.bincount(b, r, minlength=n_bins)
+    cnt = np.bincount(b, minlength=n_bins).astype(float)
+    prof = gaussian_filter1d(sums, 1.0, mode="nearest") / np.maximum(gaussian_filter1d(cnt, 1.0, mode="nearest"), 1e-9)
+    m = int(np.clip(np.argmin(prof), 1, n_bins - 2))
+    y0, y1, y2 = prof[m - 1], prof[m], prof[m + 1]
+    den = y0 - 2 * y1 + y2
+    delta = float(np.clip(0.5 * (y0 - y2) / den, -1.0, 1.0)) if den > 1e-15 else 0.0
+    frac = (m + 0.5 + delta) * (2 * reach / n_bins) - reach
+    return frac * np.asarray(spacing_local, float)
 
 
 def local_spacing_at(heights, spacing_mm, window=5):
