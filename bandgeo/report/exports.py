@@ -101,6 +101,12 @@ def ply_bytes(vertices_mm: np.ndarray, faces: np.ndarray, vertex_band: np.ndarra
     vertex_band : (n,) int
         Band index per vertex, -1 outside the banded stretch.
     """
+    header, vert, face = _ply_parts(vertices_mm, faces, vertex_band, specimen_id)
+    return header + vert.tobytes() + face.tobytes()
+
+
+def _ply_parts(vertices_mm, faces, vertex_band, specimen_id=""):
+    """The header bytes and the vertex and face record arrays of :func:`ply_bytes`."""
     v = np.asarray(vertices_mm, dtype=np.float64)
     f = np.asarray(faces)
     band = np.asarray(vertex_band, dtype=np.int32)
@@ -125,14 +131,18 @@ def ply_bytes(vertices_mm: np.ndarray, faces: np.ndarray, vertex_band: np.ndarra
         f"element vertex {len(v)}", "property float x", "property float y", "property float z",
         "property uchar red", "property uchar green", "property uchar blue", "property int band",
         f"element face {len(f)}", "property list uchar int vertex_indices", "end_header", ""])
-    return header.encode("ascii") + vert.tobytes() + face.tobytes()
+    return header.encode("ascii"), vert, face
 
 
 def write_labelled_ply(specimen: Any, segmentation: Any, path: Path) -> Path:
-    """Write the specimen mesh with its band labels as ``labelled_mesh.ply`` (atomically)."""
-    data = ply_bytes(specimen.vertices_mm, specimen.faces, segmentation.vertex_band,
-                     getattr(specimen, "specimen_id", ""))
+    """Write the specimen mesh with its band labels as ``labelled_mesh.ply`` (atomically): the bytes of
+    :func:`ply_bytes`, written record array by record array (no whole-file copy in memory: 230 MB at
+    10 M faces)."""
+    header, vert, face = _ply_parts(specimen.vertices_mm, specimen.faces, segmentation.vertex_band,
+                                    getattr(specimen, "specimen_id", ""))
     with atomic_path(path) as tmp:
         with open(tmp, "wb") as fh:
-            fh.write(data)
+            fh.write(header)
+            fh.write(memoryview(vert).cast("B"))
+            fh.write(memoryview(face).cast("B"))
     return Path(path)
