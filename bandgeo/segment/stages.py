@@ -61,6 +61,7 @@ def frame(v, faces, features, rng, max_wall, run):
         # (on a very large mesh, the median over every k-th vertex: the faces touching them and the tangents
         # at those faces' vertices only)
         step = max(1, -(-len(v) // SAMPLING_VERTICES))
+        only, sub, near = None, faces, slice(None)
         if step > 1:
             only = np.zeros(len(v), dtype=bool)
             only[::step] = True
@@ -68,12 +69,9 @@ def frame(v, faces, features, rng, max_wall, run):
             near = np.zeros(len(v), dtype=bool)
             near[sub.ravel()] = True
             near = np.flatnonzero(near)
-            tang = np.zeros_like(v)
-            tang[near] = axis_c.at(axis_c.approx_s(v[near]))[1]
-            samp = sampling_along(v, sub, tang, only=only)
-        else:
-            tang = axis_c.at(axis_c.approx_s(v))[1]
-            samp = sampling_along(v, faces, tang)
+        tang = np.zeros_like(v)
+        tang[near] = axis_c.at(axis_c.approx_s(v[near]))[1]
+        samp = sampling_along(v, sub, tang, only=only)
         del tang
     run.info["radius_mm"] = W.radius_mm
     return SimpleNamespace(wall=wall, wall_idx=wall_idx, W=W, axis_c=axis_c, samp=float(samp), noise=noise,
