@@ -90,8 +90,9 @@ class ProcessRerun:
     that does not re-run the caller's script) holds the folder's inputs in memory
     (``bandgeo.pipeline.Rerunner``, warmed once), reads the saved ``review.json`` on each request, sends
     progress as it goes, the new figures as soon as result.json and bands.csv are swapped in, and then
-    writes the report. A worker that dies (e.g. out of memory) makes that save fail with one line; the
-    next save starts a new one. The worker exits when its pipe closes (the page's process ended).
+    writes the report. A worker that dies during a save (e.g. out of memory) makes that save fail with one
+    line, and the next save starts a new one; a worker found dead when a save begins is replaced at once.
+    The worker exits when its pipe closes (the page's process ended).
     """
 
     def __init__(self, report: bool = True):
@@ -151,33 +152,43 @@ class ProcessRerun:
             return bool(self._ready)
 
     def __call__(self, folder, progress=None, partial=None):
+        with self._lock:
+            for attempt in (0, 1):
+                heard = []
+                try:
+                    return self._request(folder, progress, partial, heard)
+                except (EOFError, OSError):
+                    self._stop(wait=1.0)
+                    # A worker that had died before it heard this request (e.g. killed while idle) is
+                    # replaced once, quietly; one that dies during the save fails that save.
+                    if heard or attempt:
+                        raise BandgeoError("the re-run worker process stopped unexpectedly (out of memory?); the "
+                                           "last good result is shown; save again to start a new one") from None
+
+    def _request(self, folder, progress, partial, heard):
         from types import SimpleNamespace
 
-        with self._lock:
-            try:
-                self._start(folder)
-                if not self._ready and progress is not None:
-                    progress("loading the specimen for re-runs", 0, 1)
-                self._conn.send(("run", partial is not None))
-                while True:
-                    kind, payload = self._conn.recv()
-                    if kind == "progress":
-                        if progress is not None:
-                            progress(*payload)
-                    elif kind == "partial":
-                        if partial is not None:
-                            partial(SimpleNamespace(**payload))
-                    elif kind == "ready":
-                        self._ready = True
-                    elif kind == "done":
-                        return SimpleNamespace(**payload)
-                    elif kind == "error":
-                        message, known = payload
-                        raise (BandgeoError if known else RuntimeError)(message)
-            except (EOFError, OSError):
-                self._stop(wait=1.0)
-                raise BandgeoError("the re-run worker process stopped unexpectedly (out of memory?); the last "
-                                   "good result is shown; save again to start a new one") from None
+        self._start(folder)
+        if not self._ready and progress is not None:
+            progress("loading the specimen for re-runs", 0, 1)
+        self._conn.send(("run", partial is not None))
+        while True:
+            kind, payload = self._conn.recv()
+            if kind != "ready" or self._ready:
+                heard.append(kind)
+            if kind == "progress":
+                if progress is not None:
+                    progress(*payload)
+            elif kind == "partial":
+                if partial is not None:
+                    partial(SimpleNamespace(**payload))
+            elif kind == "ready":
+                self._ready = True
+            elif kind == "done":
+                return SimpleNamespace(**payload)
+            elif kind == "error":
+                message, known = payload
+                raise (BandgeoError if known else RuntimeError)(message)
 
     def _stop(self, wait: float = 5.0) -> None:
         proc, conn = self._proc, self._conn
