@@ -50,12 +50,13 @@ def test_default_rerun_in_a_worker_process_gives_the_fresh_result_and_the_report
         request(server, "POST", "/api/edit", {"edit": {"op": "add",
                                                        "height_mm": 0.5 * (b["height_mm"] + nxt["height_mm"])}})
         request(server, "POST", "/api/edit", {"edit": {"op": "reject", "id": rows[80]["id"]}})
-        seen = set()
+        seen = set()  # every stage the page heard (polling /api/status could miss a short one)
+        shown = server.app._progress
+        server.app._progress = lambda d, done, total: (seen.add(str(d)[:80]), shown(d, done, total))
         request(server, "POST", "/api/save", {})
         end = time.monotonic() + 300
         while time.monotonic() < end:
             st = request(server, "GET", "/api/status")[1]
-            seen.add(st["stage"])
             if st["state"] != "running":
                 break
             time.sleep(0.02)
@@ -85,8 +86,12 @@ def test_default_rerun_in_a_worker_process_gives_the_fresh_result_and_the_report
 
 
 class _KilledMidSave(ProcessRerun):
-    """Kills its worker when the first progress line of a save arrives (once): a worker that dies
-    during a save, deterministically (the worker cannot finish a 120-band re-run before it hears back)."""
+    """Its first worker never finishes a save (tests/stalling_review_worker.py: one progress line, then
+    it waits); the worker is killed when that progress line arrives, so it dies during the save, always
+    (a real worker could finish a 120-band re-run before a loaded machine delivers its first line). The
+    workers after it are real ones."""
+
+    worker_module = "stalling_review_worker"
 
     def __init__(self, **kwargs):
         super().__init__(**kwargs)
@@ -96,6 +101,7 @@ class _KilledMidSave(ProcessRerun):
         def killing(*args):
             if self.kills == 0 and not str(args[0]).startswith("warm-up"):
                 self.kills += 1
+                self.worker_module = ProcessRerun.worker_module  # the next worker is a real one
                 os.kill(self.pid, signal.SIGKILL)
             if progress is not None:
                 progress(*args)
@@ -103,7 +109,10 @@ class _KilledMidSave(ProcessRerun):
         return super().__call__(folder, progress=killing, partial=partial)
 
 
-def test_a_worker_that_dies_during_a_save_fails_that_save_and_the_next_save_starts_a_new_one(long_folder):
+def test_a_worker_that_dies_during_a_save_fails_that_save_and_the_next_save_starts_a_new_one(long_folder,
+                                                                                               monkeypatch):
+    here = os.path.dirname(os.path.abspath(__file__))  # the stalling worker's module is beside this file
+    monkeypatch.setenv("PYTHONPATH", os.pathsep.join(filter(None, [here, os.environ.get("PYTHONPATH")])))
     rerun = _KilledMidSave(report=False)
     app = ReviewApp(long_folder, "token", rerun=rerun)
     try:

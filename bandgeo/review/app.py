@@ -95,6 +95,9 @@ class ProcessRerun:
     The worker exits when its pipe closes (the page's process ended).
     """
 
+    #: The module run as the worker (``python -m worker_module FD FOLDER report|figures``).
+    worker_module = "bandgeo.review.worker"
+
     def __init__(self, report: bool = True):
         self.report = report
         self._proc = None
@@ -121,7 +124,7 @@ class ProcessRerun:
         env["PYTHONPATH"] = os.pathsep.join([package_root, *filter(None, [env.get("PYTHONPATH")])])
         try:
             proc = subprocess.Popen(
-                [sys.executable, "-m", "bandgeo.review.worker", str(theirs.fileno()), str(folder),
+                [sys.executable, "-m", self.worker_module, str(theirs.fileno()), str(folder),
                  "report" if self.report else "figures"],
                 pass_fds=(theirs.fileno(),), stdin=subprocess.DEVNULL, env=env)
         finally:
