@@ -328,3 +328,140 @@ def test_review_worker_reports_its_warm_up_and_the_page_can_show_it(monkeypatch)
     assert heard[-1][1] == 1.0 and [f for _, f in heard] == sorted(f for _, f in heard)
     assert all(d.startswith("warm-up: ") for d, _ in heard) and len(heard) == 6
     rerun._conn = None
+
+
+# ---------------------------------------------------------------------------------------------------
+# `bandgeo review` in a terminal: the re-run worker's warm-up is drawn (bandgeo.review.server.run)
+
+
+def _no_idle_loop(monkeypatch, server_mod):
+    """run()'s serving loop fails the test at once instead of waiting for a Ctrl-C that never comes
+    (the Ctrl-C in these tests arrives during the warm-up)."""
+    import threading
+
+    class NoIdle(threading.Event):
+        def wait(self, timeout=None):
+            raise AssertionError("run() went on serving: the warm-up did not hear the Ctrl-C")
+
+    monkeypatch.setattr(server_mod, "threading", types.SimpleNamespace(**{**vars(threading), "Event": NoIdle}))
+
+
+def _review_folder(tmp_path):
+    sys.path.insert(0, str(__import__("pathlib").Path(__file__).parent))
+    from test_review_support import make_folder
+
+    return make_folder(tmp_path / "KRB-07 warm")
+
+
+def test_review_run_off_a_terminal_waits_for_the_warm_up_without_a_bar_and_stops_on_ctrl_c(
+        tmp_path, monkeypatch):
+    """No tty: no bar is drawn (nothing on stderr), the worker is still started and waited for with
+    ``progress=None``, and a Ctrl-C during the warm-up stops the server cleanly (run returns 0 and
+    says so)."""
+    from bandgeo.review import server as server_mod
+
+    folder, seg, _ = _review_folder(tmp_path)
+    monkeypatch.setattr(sys, "stderr", FakeStderr(tty=False))
+    _no_idle_loop(monkeypatch, server_mod)
+    seen = {"warm": 0, "progress": "unset"}
+
+    class WaitableRerun:
+        def __call__(self, folder):  # never called: no save in this test
+            raise AssertionError("no save was asked for")
+
+        def warm(self, folder):
+            seen["warm"] += 1
+
+        def wait_ready(self, timeout=120.0, progress=None):
+            seen["progress"] = progress
+            raise KeyboardInterrupt  # Ctrl-C while the worker warms up
+
+    lines = []
+    code = server_mod.run(folder, open_browser=False, segmentation=seg, rerun=WaitableRerun(),
+                          echo=lines.append)
+    assert code == 0
+    assert seen["warm"] >= 1 and seen["progress"] is None
+    assert any("Press Ctrl-C" in line for line in lines)
+    assert lines[-1].startswith("Review server stopped")
+    assert sys.stderr.getvalue() == ""
+
+
+def test_review_run_on_a_terminal_draws_the_worker_s_warm_up_steps(tmp_path, monkeypatch):
+    """On a tty the bar's callback hears every warm-up step the worker sends (through
+    ``ProcessRerun.wait_ready(progress=...)``), in order, up to the whole; a Ctrl-C once it is ready
+    still stops the server cleanly. The worker's loop runs in a thread on a pipe, its Rerunner faked."""
+    import threading
+    from multiprocessing import Pipe
+
+    from bandgeo import pipeline
+    from bandgeo.review import app as app_mod
+    from bandgeo.review import server as server_mod
+    from bandgeo.review import worker
+
+    folder, seg, _ = _review_folder(tmp_path)
+
+    class FakeRerunner:
+        def __init__(self, folder):
+            self.folder = folder
+
+        def warm(self, progress=None):
+            for k, what in enumerate(("bands", "projection", "unrolled", "analysis")):
+                progress(what, k, 4)
+            progress("ready", 4, 4)
+
+    monkeypatch.setattr(pipeline, "Rerunner", FakeRerunner)
+    page_end, worker_end = Pipe()
+    t = threading.Thread(target=worker.serve_requests, args=(worker_end, str(folder), False), daemon=True)
+    t.start()
+
+    class PipedRerun(app_mod.ProcessRerun):
+        def warm(self, folder):  # the worker is the thread above, not a process
+            pass
+
+    rerun = PipedRerun(report=False)
+    rerun._conn = page_end
+    heard = []
+    real_call = progress.BarCallback.__call__
+
+    def hear(self, description, done, total):
+        heard.append((description, done / total, self.title))
+        real_call(self, description, done, total)
+        if done == total:
+            raise KeyboardInterrupt  # Ctrl-C once the warm-up is complete
+
+    monkeypatch.setattr(progress.BarCallback, "__call__", hear)
+    monkeypatch.setattr(sys, "stderr", FakeStderr(tty=True))
+    _no_idle_loop(monkeypatch, server_mod)
+    lines = []
+    try:
+        code = server_mod.run(folder, open_browser=False, segmentation=seg, rerun=rerun, echo=lines.append)
+    finally:
+        t.join(10)
+    assert code == 0 and lines[-1].startswith("Review server stopped")
+    assert not t.is_alive()  # the server's stop closed the worker's pipe
+    assert [d for d, _, _ in heard] == ["warm-up: loading the specimen", "warm-up: bands", "warm-up: projection",
+                                        "warm-up: unrolled", "warm-up: analysis", "warm-up: ready"]
+    fractions = [f for _, f, _ in heard]
+    assert fractions == sorted(fractions) and fractions[0] == 0.0 and fractions[-1] == 1.0
+    assert {title for _, _, title in heard} == {"warm-up"}
+
+
+def test_warm_up_bar_returns_when_ready_and_skips_a_rerun_it_cannot_wait_for():
+    import threading
+
+    from bandgeo.review.server import _warm_up_bar
+
+    class Ready:
+        calls = 0
+
+        def wait_ready(self, timeout=120.0, progress=None):
+            Ready.calls += 1
+            return True
+
+    app = types.SimpleNamespace(rerun=Ready(), folder="unused")
+    assert _warm_up_bar(app, threading.Event()) is True and Ready.calls == 1
+    stopped = threading.Event()
+    stopped.set()  # SIGTERM before the wait: nothing is waited for
+    assert _warm_up_bar(app, stopped) is False and Ready.calls == 1
+    assert _warm_up_bar(types.SimpleNamespace(rerun=lambda folder: None, folder="unused"),
+                        threading.Event()) is False

@@ -484,6 +484,39 @@ def _warm(data, rerun=None, folder=None) -> None:
         pass
 
 
+#: The longest the terminal's warm-up bar waits for the re-run worker (the page is served meanwhile).
+WARM_UP_WAIT_S = 300.0
+#: Each wait for the worker is this long at most, so that SIGTERM is heard between two.
+_WARM_UP_SLICE_S = 0.5
+
+
+def _warm_up_bar(app, stop: threading.Event) -> bool:
+    """Draw the re-run's warm-up on the terminal (``bandgeo.progress.bar``: on a tty only, with the time
+    left) until the worker is ready, ``stop`` is set or :data:`WARM_UP_WAIT_S` has passed; True when it
+    is ready. Only for a re-run that can be waited for (``wait_ready``). The page is served by other
+    threads meanwhile; Ctrl-C reaches the caller. A failure here only leaves the bar out."""
+    rerun = getattr(app, "rerun", None)
+    wait = getattr(rerun, "wait_ready", None)
+    if wait is None:
+        return False
+    from .. import progress as _progress
+
+    try:
+        if hasattr(rerun, "warm"):
+            rerun.warm(app.folder)  # started already by the page's warm-up thread, or now (idempotent)
+        deadline = time.monotonic() + WARM_UP_WAIT_S
+        with _progress.bar("warm-up") as cb:
+            while not stop.is_set() and time.monotonic() < deadline:
+                began = time.monotonic()
+                if wait(timeout=_WARM_UP_SLICE_S, progress=cb):
+                    return True
+                if time.monotonic() - began < _WARM_UP_SLICE_S / 2:
+                    return False  # it answered at once without being ready: the worker has ended
+    except Exception:  # the save that needs the worker reports its error
+        return False
+    return False
+
+
 def run(folder, host="127.0.0.1", port=0, open_browser=True, token=None, echo=print, **kwargs) -> int:
     """Serve until Ctrl-C (or SIGTERM), then stop cleanly; returns 0."""
     server = serve(folder, host=host, port=port, open_browser=open_browser, token=token, **kwargs)
@@ -505,6 +538,7 @@ def run(folder, host="127.0.0.1", port=0, open_browser=True, token=None, echo=pr
                  f"folder ({'; '.join(app.set_apart['reasons'])}); it is not shown or applied. The page "
                  f"offers to set it aside.")
         echo("Press Ctrl-C to stop.")
+        _warm_up_bar(app, stop)
         while not stop.wait(0.5):
             pass
     except KeyboardInterrupt:
