@@ -187,6 +187,64 @@ def test_sampling_along_anisotropic_rings():
     assert np.median(edges) > 0.5
 
 
+def _sampling_along_rows(vertices, faces, axis, only=None):
+    """The local-tangent sampling interval written row by row (the definition in
+    ``bandgeo.features.curvature.sampling_along``'s docstring, without its column and block layout)."""
+    proj = np.zeros(len(vertices))
+    for a_col, b_col in ((0, 1), (1, 2), (2, 0)):
+        fa, fb = faces[:, a_col], faces[:, b_col]
+        e = vertices[fb] - vertices[fa]
+        t = axis[fa] + axis[fb]
+        t /= np.sqrt(np.einsum("ij,ij->i", t, t))[:, None]
+        d = np.abs(np.einsum("ij,ij->i", e, t))
+        np.maximum.at(proj, fa, d)
+        np.maximum.at(proj, fb, d)
+    used = proj > 0
+    if only is not None:
+        used &= only
+    return float(np.median(proj[used])), proj
+
+
+def test_sampling_along_local_tangents_on_a_bent_column(monkeypatch):
+    """Rings 0.05 mm apart along a bent axis (an arc of radius 40 mm): measured along the local
+    tangent, the interval is the ring spacing on the axis scaled by (R + x) / R across the column
+    (analytic, arc geometry); and the blocked column arithmetic gives the row-by-row numbers exactly,
+    vertex for vertex (the median over every third vertex too)."""
+    from bandgeo.features import curvature as C
+
+    R, r = 40.0, 3.0
+
+    def fun(U, V):
+        ang = 10.0 * V / R                       # 10 mm of arc
+        x = r * np.cos(U)
+        return np.stack([R - (R + x) * np.cos(ang),
+                         r * np.sin(U), (R + x) * np.sin(ang)], -1)
+
+    v, f, U, V = grid_surface(fun, 36, 201)
+    ang = 10.0 * V / R
+    tang = np.stack([np.sin(ang), np.zeros_like(ang), np.cos(ang)], axis=1)
+    # turned to a general direction, so that every coordinate carries part of each product
+    rot, _ = np.linalg.qr(np.array([[0.8, -0.3, 0.5], [0.2, 0.9, -0.4], [-0.5, 0.3, 0.7]]))
+    v, tang = v @ rot.T, tang @ rot.T
+    monkeypatch.setattr(C, "SAMPLING_BLOCK", 1000)  # several blocks on a small mesh
+    only = np.zeros(len(v), dtype=bool)
+    only[::3] = True
+    for mask in (None, only):
+        got = sampling_along(v, f, tang, only=mask)
+        want, _ = _sampling_along_rows(v, f, tang, only=mask)
+        assert got == want
+    # vertex for vertex: the median over one vertex is that vertex's own interval
+    _, proj = _sampling_along_rows(v, f, tang)
+    for i in range(0, len(v), 23):
+        one = np.zeros(len(v), dtype=bool)
+        one[i] = True
+        assert sampling_along(v, f, tang, only=one) == proj[i]
+    # rows 0.05 mm apart on the axis: between 0.05 (R - r) / R and 0.05 (R + r) / R across the column,
+    # the median near the axis's own 0.05
+    assert 0.05 * (R - r) / R - 1e-9 <= sampling_along(v, f, tang) <= 0.05 * (R + r) / R + 1e-9
+    assert sampling_along(v, f, tang) == pytest.approx(0.05, rel=0.02)
+
+
 def test_shape_index_of_named_shapes():
     # Koenderink & van Doorn (1992): cap +1, ridge +1/2, saddle 0, rut -1/2, cup -1
     k1 = np.array([1.0, 1.0, 1.0, 0.0, -1.0])
