@@ -262,6 +262,21 @@ def test_luminance_of_primaries():
     assert luminance_from_colors(np.array([[128, 128, 128]]))[0] == pytest.approx(0.2158, abs=1e-3)
 
 
+def test_luminance_of_many_8_bit_colours_is_the_per_vertex_formula():
+    """Large uint8 colour arrays take a 256-level table: the same numbers as IEC 61966-2-1's transfer
+    function applied per channel, then the BT.709 weights (as in luminance_from_colors' docstring)."""
+    rng = np.random.default_rng(4)
+    for high in (2, 256):  # 0/1 channels are read as fractions already, 0..255 as 8-bit levels
+        col = rng.integers(0, high, size=(5000, 4)).astype(np.uint8)
+        c = col[:, :3].astype(np.float64)
+        if col.max() > 1:
+            c = c / 255.0
+        lin = np.where(c <= 0.04045, c / 12.92, ((c + 0.055) / 1.055) ** 2.4)
+        assert np.array_equal(luminance_from_colors(col), lin @ np.array([0.2126, 0.7152, 0.0722]))
+    white = np.full((2000, 3), 255, dtype=np.uint8)
+    assert luminance_from_colors(white) == pytest.approx(np.ones(2000), abs=1e-12)
+
+
 def test_matrix_and_luminance_feature():
     v, f = icosphere(1.0, 3)
     cols = np.full((len(v), 3), 200, dtype=np.uint8)

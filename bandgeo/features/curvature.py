@@ -255,9 +255,18 @@ def luminance_from_colors(colors) -> Optional[np.ndarray]:
     """
     if colors is None:
         return None
-    c = np.asarray(colors, dtype=np.float64)
-    if c.ndim != 2 or c.shape[1] < 3:
+    raw = np.asarray(colors)
+    if raw.ndim != 2 or raw.shape[1] < 3:
         return None
+    if raw.dtype == np.uint8 and len(raw) > 1024:
+        # 8-bit channels: the transfer function of the 256 levels, looked up (the same float64
+        # numbers as computing it per vertex, without a power of every channel of every vertex)
+        levels = np.arange(256, dtype=np.float64)
+        if raw.max() > 1:
+            levels = levels / 255.0
+        table = np.where(levels <= 0.04045, levels / 12.92, ((levels + 0.055) / 1.055) ** 2.4)
+        return table[raw[:, :3]] @ np.array([0.2126, 0.7152, 0.0722])
+    c = np.asarray(raw, dtype=np.float64)
     if c.max() > 1.0:
         c = c / 255.0
     c = c[:, :3]
