@@ -278,3 +278,53 @@ def test_centreline_projection_on_a_circular_arc():
     s, radial = line.project(v)
     np.testing.assert_allclose(s, R * f, atol=5e-4)
     np.testing.assert_allclose(np.linalg.norm(radial, axis=1), rad, atol=5e-4)
+
+
+def test_partial_rings_at_a_slanted_cut_are_measured_against_the_wall_that_is_there():
+    """A straight cylinder (radius R) with horizontal grooves every T, cut at the top by a plane tilted
+    by alpha: at height h inside the cut's reach the wall exists where z_cut(phi) = z0 + R tan(alpha)
+    cos(phi) > h, on a fraction arccos((h - z0) / (R tan alpha)) / pi of the circumference (analytic).
+    The traced rings' ``available`` follows it, their coverage matches it (the groove is traced wherever
+    the wall is), and R3 keeps a partial ring that half a circumference would have dropped."""
+    from bandgeo.segment.trace import fit_boundaries
+    from bandgeo.segment.unroll import Wall
+
+    R, T, depth, z0, alpha = 5.0, 0.2, 0.02, 8.0, np.radians(20.0)
+    reach = R * np.tan(alpha)  # 1.82 mm: the cut spans z0 -/+ reach around the column
+    rng = np.random.default_rng(3)
+    n = 400_000
+    phi = rng.uniform(-np.pi, np.pi, n)
+    z = rng.uniform(0.0, z0 + reach, n)
+    keep = z < z0 + reach * np.cos(phi)
+    phi, z = phi[keep], z[keep]
+    u = (z / T) % 1.0
+    relief = -depth * np.exp(-0.5 * (np.minimum(u, 1.0 - u) / 0.08) ** 2)
+    r = R + relief
+    v = np.column_stack([r * np.cos(phi), r * np.sin(phi), z])
+    wall = Wall(idx=np.arange(len(z)), v=v, s=z, theta=phi, r=r, relief=relief, radius_mm=R)
+    s = np.linspace(-1.0, 12.0, 60)
+    axis = Centreline(s, np.column_stack([np.zeros_like(s), np.zeros_like(s), s]),
+                      np.repeat([[0.0, 0.0, 1.0]], len(s), axis=0))
+    heights = np.arange(1, int((z0 + 0.8 * reach) / T)) * T
+    fit = fit_boundaries(wall, z, heights, np.full(len(heights), T), axis)
+    expect = np.arccos(np.clip((heights - z0) / reach, -1.0, 1.0)) / np.pi
+    inside = (heights > z0 - 0.8 * reach) & (expect > 0.2)
+    assert inside.sum() >= 10
+    # available: to within about two azimuth columns of 48 and the groove width's own reach
+    assert np.allclose(fit["available"][inside], expect[inside], atol=0.06)
+    assert np.allclose(fit["available"][heights < z0 - reach - T], 1.0)
+    assert np.allclose(fit["coverage"][inside], fit["available"][inside], atol=0.06)
+    # R3 keeps the partial rings whose wall is there (>= 35% of the circumference) and flags them
+    log = []
+    rings = [{"height": float(h), "rms_mm": float(fit["rms_mm"][i]), "coverage": float(fit["coverage"][i]),
+              "available": float(fit["available"][i]), "prominence": 1.0, "flags": []}
+             for i, h in enumerate(heights)]
+    out, _ = rp.repair(rings, T, lambda lo, hi: None, log)
+    kept = {round(r["height"], 6) for r in out}
+    for i, h in enumerate(heights):
+        if expect[i] >= 0.4 and h > z0 - reach:
+            assert round(float(h), 6) in kept, (h, fit["coverage"][i], fit["available"][i])
+        if expect[i] < 0.3:
+            assert round(float(h), 6) not in kept, (h, fit["coverage"][i], fit["available"][i])
+    assert any("partial ring" in r["flags"] for r in out)
+    assert any(line.startswith("R3 kept a partial ring") for line in log)

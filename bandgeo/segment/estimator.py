@@ -13,7 +13,7 @@ from .model import Segmentation, assign_bands
 
 #: Relative mismatch between the traced boundaries' median spacing and the spectral band spacing above
 #: which the wall is flattened and traced again at the traced spacing.
-RETRACE_MISMATCH = 0.25
+RETRACE_MISMATCH = 0.1
 
 #: Side-wall vertices traced at most; larger scans are decimated around the rings (recorded).
 MAX_WALL_VERTICES = 6_000_000

@@ -10,6 +10,9 @@ R2 ``dropped: poor fit``: a ring whose plane-fit rms exceeds ``MAX_RMS_FRACTION`
 R3 ``dropped: short arc``: a ring covering less than ``MIN_COVERAGE`` (half) of the circumference is
    too short to be a boundary: a real groove is traced wherever the wall exists, and holes or broken
    stretches take far less than half of it, while noise streaks rarely reach half way round.
+   Where the wall itself is partial (a cut at a slant to the laminae: the wall reaches the ring's
+   plane on under ``PARTIAL_WALL`` of the circumference), a ring tracing at least ``PARTIAL_TRACED`` of
+   the wall that is there, and ``PARTIAL_MIN`` of the circumference, is kept (flagged ``partial ring``).
 R4 ``gap filled``: where two neighbouring rings are more than ``GAP_FRACTION`` times the local median
    spacing apart, the strongest weak peak inside the gap is traced; it is added (with lowered
    confidence) if it passes R2 and R3, otherwise the gap is flagged as a possibly missed boundary.
@@ -26,6 +29,12 @@ import numpy as np
 DOUBLE_FRACTION = 0.4
 MAX_RMS_FRACTION = 0.35
 MIN_COVERAGE = 0.5
+#: R3 near a slanted cut: the wall reaches the plane on less than this fraction of the circumference...
+PARTIAL_WALL = 0.9
+#: ... and the ring is traced on at least this fraction of the wall that is there ...
+PARTIAL_TRACED = 0.8
+#: ... and on at least this fraction of the whole circumference.
+PARTIAL_MIN = 0.35
 #: 1.5 rather than 1.75: a missed thin lamina of an annual cycle leaves a gap of 1.6-1.9 local spacings
 #: (thin laminae next to thicker ones); the weak ring added must still fit a plane and cover the wall.
 GAP_FRACTION = 1.5
@@ -83,7 +92,11 @@ def repair(rings: list, spacing: float, trace_weak, log: list) -> list:
             log.append(f"R2 dropped ring at {r['height']:.3f} mm: plane-fit rms {r['rms_mm']:.3f} mm "
                        f"> {MAX_RMS_FRACTION} x local spacing {ls:.3f} mm")
             continue
-        if r["coverage"] < MIN_COVERAGE:
+        if r["coverage"] < MIN_COVERAGE and _partial(r):
+            r["flags"].append("partial ring")
+            log.append(f"R3 kept a partial ring at {r['height']:.3f} mm: covers {100 * r['coverage']:.0f}% of the "
+                       f"circumference, where the wall reaches its plane on {100 * r['available']:.0f}%")
+        elif r["coverage"] < MIN_COVERAGE:
             log.append(f"R3 dropped ring at {r['height']:.3f} mm: covers {100 * r['coverage']:.0f}% "
                        f"of the circumference (< {100 * MIN_COVERAGE:.0f}%)")
             continue
@@ -137,6 +150,12 @@ def repair(rings: list, spacing: float, trace_weak, log: list) -> list:
         for r, ls in zip(rings, loc):
             r["confidence"] = confidence(r, ref_prom, ls)
     return rings, gaps_flagged
+
+
+def _partial(r: dict) -> bool:
+    avail = float(r.get("available", 1.0))
+    return (avail < PARTIAL_WALL and r["coverage"] >= PARTIAL_MIN
+            and r["coverage"] >= PARTIAL_TRACED * avail)
 
 
 def _score(r: dict) -> float:

@@ -23,6 +23,9 @@ from .unroll import coarse_centreline, unroll, wall_mask
 #: faces and up only).
 SAMPLING_VERTICES = 2_000_000
 
+#: Partial rings (a cut at a slant) take the normal of the nearest full rings.
+REFIT_PARTIAL = True
+
 #: Repair rule R6: least groove-class probability of a boundary's groove, relative to the wall mean.
 MIN_CLASS_SUPPORT = 0.2
 
@@ -180,9 +183,39 @@ def trace_all(fr, s_flat, sp, p_groove, run):
     loc = tr.local_spacing_at(h[strong], sp) if strong.sum() >= 3 else np.full(int(strong.sum()), sp)
     loc_all = np.interp(h, h[strong], loc) if strong.sum() >= 1 else np.full(len(h), sp)
     fit = tr.fit_boundaries(W, s_flat, h, loc_all, fr.axis_c, score=p_groove)
+    _refit_partial(fit, W, s_flat, h, loc_all, fr.axis_c, p_groove, strong, run)
     run.info["profile_noise_mm"] = noise_v
     run.info["candidates"] = {"strong": int(strong.sum()), "weak": int((~strong).sum())}
     return {"h": h, "prom": prom, "z": z, "loc": loc_all, "fit": fit}, strong
+
+
+def _refit_partial(fit, W, s_flat, h, loc, axis, p_groove, strong, run):
+    """Rings where the wall is partial (a cut at a slant): refit with the normal of the nearest full
+    rings, in place. A plane through part of a ring is poorly held about the chord of its arc (1 degree
+    off on an arc of 6 mm radius puts one end of its window a tenth of a millimetre off the groove, into
+    the next one on thin laminae); the tilt changes little over a few laminae."""
+    cov, avail = fit["coverage"], fit["available"]
+    finite = np.all(np.isfinite(fit["normal"]), axis=1)
+    part = finite & (cov < repair.MIN_COVERAGE) & (cov >= 0.8 * repair.PARTIAL_MIN) & (avail < repair.PARTIAL_WALL)
+    full = np.flatnonzero(finite & strong & (cov >= 0.75))
+    if not part.any() or len(full) < 3 or not REFIT_PARTIAL:
+        return
+    fixed = np.full((len(h), 3), np.nan)
+    for i in np.flatnonzero(part):
+        near = full[np.argsort(np.abs(h[full] - h[i]), kind="stable")[:3]]
+        n = fit["normal"][near].mean(axis=0)
+        fixed[i] = n / np.linalg.norm(n)
+    again = tr.fit_boundaries(W, s_flat, h, loc, axis, score=p_groove, fixed_normal=fixed, only=part,
+                              deepest_fraction=fit["deepest_fraction"])
+    # the free fit decides whether the ring is there (its coverage, rms); the refit places it
+    for key in ("center", "normal"):
+        fit[key][part] = again[key][part]
+    k0, d0, r0 = fit["samples"]
+    k1, d1, r1 = again["samples"]
+    keep0, keep1 = ~part[k0], part[k1]
+    fit["samples"] = (np.r_[k0[keep0], k1[keep1]], np.r_[d0[keep0], d1[keep1]], np.r_[r0[keep0], r1[keep1]])
+    fit["normal_fixed"] = part
+    run.info["partial_rings_refitted"] = int(part.sum())
 
 
 def trace(fr, s_flat, sp, p_groove, est, run):
@@ -191,6 +224,7 @@ def trace(fr, s_flat, sp, p_groove, est, run):
     fit = cand["fit"]
     p_mean = max(float(np.mean(p_groove)), 1e-12) if len(p_groove) else 1.0
     rings_all = []
+    fixed = fit.get("normal_fixed", np.zeros(len(cand["h"]), bool))
     for i in range(len(cand["h"])):
         if not np.all(np.isfinite(fit["normal"][i])) or fit["n_points"][i] < 3:
             rings_all.append(None)
@@ -200,8 +234,9 @@ def trace(fr, s_flat, sp, p_groove, est, run):
         rings_all.append({"height": float(cand["h"][i]), "axis_height": height, "center": fit["center"][i],
                           "normal": fit["normal"][i], "rms_mm": float(fit["rms_mm"][i]),
                           "coverage": float(fit["coverage"][i]), "prominence": float(cand["prom"][i]),
+                          "available": float(fit["available"][i]),
                           "z": float(cand["z"][i]), "class_support": support, "flags": [], "index": i,
-                          "normal_from": "plane fit"})
+                          "normal_from": "the nearest full rings" if fixed[i] else "plane fit"})
     rings = [r for r, s in zip(rings_all, strong) if s and r is not None]
     weak = [r for r, s in zip(rings_all, strong) if (not s) and r is not None]
     # R6: where the curvature classes are informative (most boundaries well inside the groove class),

@@ -99,7 +99,8 @@ def _plane_fit(P, W, groups, n_groups, axis_t):
     return c, n, ws
 
 
-def fit_boundaries(wall, s_flat, heights, spacing_local, axis, rounds=3, score=None):
+def fit_boundaries(wall, s_flat, heights, spacing_local, axis, rounds=3, score=None, fixed_normal=None, only=None,
+                   deepest_fraction=None):
     """Trace and fit every candidate boundary at once.
 
     Parameters
@@ -113,6 +114,13 @@ def fit_boundaries(wall, s_flat, heights, spacing_local, axis, rounds=3, score=N
         Local lamina thickness at each candidate, mm.
     axis : Centreline
         Coarse centreline (for the up direction of the normals).
+
+    fixed_normal : (c, 3) float, optional
+        Normals to keep (rows of NaN are fitted): only the plane's offset is fitted for the others.
+    only : (c,) bool, optional
+        Fit these candidates only (the vertices nearest the others are left out; their rows are junk).
+    deepest_fraction : float, optional
+        The mean groove's deepest point, in laminae from the fitted planes (default: measured here).
 
     Returns
     -------
@@ -138,6 +146,9 @@ def fit_boundaries(wall, s_flat, heights, spacing_local, axis, rounds=3, score=N
     du = s_flat - heights[k]
     half = np.where(du < 0, gap_lo[k], gap_hi[k]) * 0.5
     sel = np.abs(du) < half
+    if only is not None:
+        sel &= np.asarray(only, bool)[k]
+    fx = None if fixed_normal is None else np.isfinite(np.asarray(fixed_normal, float)[:, 0])
     kk, du, v, rel, half = k[sel], du[sel], wall.v[sel], wall.relief[sel], half[sel]
     th = wall.theta[sel]
     col = np.minimum(((th + np.pi) / (2 * np.pi) * n_col).astype(np.int64), n_col - 1)
@@ -164,6 +175,8 @@ def fit_boundaries(wall, s_flat, heights, spacing_local, axis, rounds=3, score=N
         for robust in range(2):
             ui = np.flatnonzero(use)
             centre, normal, _ = _plane_fit(pts[ui], wsum[ui], gid[ui], c, t_up)
+            if fx is not None:
+                normal[fx] = fixed_normal[fx]
             res = np.einsum("ij,ij->i", pts - centre[gid], normal[gid])
             if robust == 0:
                 r_abs = np.abs(res)
@@ -199,31 +212,37 @@ def fit_boundaries(wall, s_flat, heights, spacing_local, axis, rounds=3, score=N
     # the planes go through the deepest point of the grooves, not their depth-weighted centroid: on an
     # asymmetric groove (a steep side and a slow one) the centroid sits on the slow side (independent
     # generator, laminae of 0.22 mm: a median 0.02 mm off the true plane)
-    shift = _deepest_offset(kk, dist, rel, spacing_local, c)
+    if deepest_fraction is None:
+        deepest_fraction = _deepest_fraction(kk, dist, rel, spacing_local)
+    shift = deepest_fraction * np.asarray(spacing_local, float)
     centre = centre + shift[:, None] * normal
     dist = dist - shift[kk]
     w = np.maximum(-rel, 0.0) * np.exp(-0.5 * (dist / sigma[kk]) ** 2) * (np.abs(dist) < half)
     if score is not None:
         sc = score[sel]
         out["score"] = np.bincount(kk, w * sc, minlength=c) / np.maximum(np.bincount(kk, w, minlength=c), 1e-300)
+    # columns where the wall exists within a groove width of the plane (fewer near a slanted cut)
+    g = kk * n_col + col
+    near = np.abs(dist) < 0.15 * spacing_local[kk]
+    avail = np.bincount(g[near], minlength=c * n_col).reshape(c, n_col) > 0
     out.update(center=centre, normal=normal, rms_mm=rms, coverage=cnt / n_col, n_points=cnt, weight=ws,
-               samples=(kk, dist, rel))
+               available=avail.sum(axis=1) / n_col, samples=(kk, dist, rel), deepest_fraction=deepest_fraction)
     return out
 
 
-def _deepest_offset(kk, dist, rel, spacing_local, c, reach=DEEPEST_REACH, n_bins=48):
-    """Offset along each boundary's normal of the deepest point of the specimen's mean groove (mm).
+def _deepest_fraction(kk, dist, rel, spacing_local, reach=DEEPEST_REACH, n_bins=48):
+    """Offset along the boundaries' normals of the deepest point of the specimen's mean groove (laminae).
 
     The relief of the vertices within ``reach`` laminae of their boundary's plane, against their
     distance to it in laminae, pooled over every boundary (a specimen's grooves share one shape; one
     boundary's own profile is too noisy to place its minimum better than its centroid), in ``n_bins``
     bins, lightly smoothed; the minimum is refined by a parabola through its bin and the two beside it.
-    Returns that offset times each boundary's local lamina (0 with fewer than 20 vertices per bin)."""
+    Returns that offset in laminae (0 with fewer than 20 vertices per bin)."""
     u = dist / spacing_local[kk]
     inside = np.abs(u) < reach
     u, r = u[inside], rel[inside]
     if len(u) < 20 * n_bins:
-        return np.zeros(c)
+        return 0.0
     b = np.minimum(((u + reach) / (2 * reach) * n_bins).astype(np.int64), n_bins - 1)
     sums = np.bincount(b, r, minlength=n_bins)
     cnt = np.bincount(b, minlength=n_bins).astype(float)
@@ -232,8 +251,7 @@ def _deepest_offset(kk, dist, rel, spacing_local, c, reach=DEEPEST_REACH, n_bins
     y0, y1, y2 = prof[m - 1], prof[m], prof[m + 1]
     den = y0 - 2 * y1 + y2
     delta = float(np.clip(0.5 * (y0 - y2) / den, -1.0, 1.0)) if den > 1e-15 else 0.0
-    frac = (m + 0.5 + delta) * (2 * reach / n_bins) - reach
-    return frac * np.asarray(spacing_local, float)
+    return float((m + 0.5 + delta) * (2 * reach / n_bins) - reach)
 
 
 def local_spacing_at(heights, spacing_mm, window=5):
