@@ -233,22 +233,53 @@ def _diffuse(adj, h0, k0, w_area, valid, targets):
     # (three contiguous vectors: three one-vector products are faster than one three-column product)
     cur = [h0 * w_area, k0 * w_area, w_area]
     done = 0
-    for si, target in enumerate(targets):
-        while done < target:
-            cur = [_step(adj, x) for x in cur]
-            done += 1
-        if done == 0:
-            # one ring: boundary vertices take the mean of their valid neighbours
-            if valid.all():
-                hv, kv = h0, k0
-            else:
-                fill = [_step(adj, x) for x in cur]
-                wv = np.maximum(fill[2], 1e-300)
-                hv = np.where(valid, h0, fill[0] / wv)
-                kv = np.where(valid, k0, fill[1] / wv)
-        else:
-            wv = np.maximum(cur[2], 1e-300)
-            hv = cur[0] / wv
-            kv = cur[1] / wv
-        H[:, si], K[:, si] = hv, kv
+    # the three vectors walk independently: one thread each on a large mesh (the sparse products and
+    # the in-place steps release the GIL), the same steps in the same order for each, so the same numbers
+    pool = None
+    if nl >= PARALLEL_DIFFUSION_VERTICES and max(targets, default=0) > 0:
+        from concurrent.futures import ThreadPoolExecutor
+
+        pool = ThreadPoolExecutor(max_workers=3, thread_name_prefix="bandgeo-diffusion")
+    try:
+        for si, target in enumerate(targets):
+            if done < target:
+                steps = target - done
+                if pool is not None:
+                    cur = list(pool.map(lambda x: _walk(adj, x, steps), cur))
+                else:
+                    cur = [_walk(adj, x, steps) for x in cur]
+                done = target
+            _record(si, done, cur, adj, h0, k0, valid, H, K)
+    finally:
+        if pool is not None:
+            pool.shutdown(wait=True)
     return H, K
+
+
+#: From this many vertices on, the diffusion's three vectors walk in threads of their own.
+PARALLEL_DIFFUSION_VERTICES = 200_000
+
+
+def _walk(adj, x, steps):
+    """``steps`` lazy random-walk steps of one vector (:func:`_step`)."""
+    for _ in range(steps):
+        x = _step(adj, x)
+    return x
+
+
+def _record(si, done, cur, adj, h0, k0, valid, H, K):
+    """Column ``si`` of H and K from the walked vectors ``cur`` after ``done`` steps."""
+    if done == 0:
+        # one ring: boundary vertices take the mean of their valid neighbours
+        if valid.all():
+            hv, kv = h0, k0
+        else:
+            fill = [_step(adj, x) for x in cur]
+            wv = np.maximum(fill[2], 1e-300)
+            hv = np.where(valid, h0, fill[0] / wv)
+            kv = np.where(valid, k0, fill[1] / wv)
+    else:
+        wv = np.maximum(cur[2], 1e-300)
+        hv = cur[0] / wv
+        kv = cur[1] / wv
+    H[:, si], K[:, si] = hv, kv
