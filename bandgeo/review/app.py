@@ -259,6 +259,7 @@ class ReviewApp:
         self.session = ReviewSession(base, self.data.span, (review or {}).get("edits", []))
         self.saved_utc = (review or {}).get("updated_utc")
         self._lock = threading.Lock()
+        self._save_lock = threading.Lock()
         self._worker: threading.Thread | None = None
         self._pending = False
         self.last_result = result_summary(self.data.result())
@@ -325,19 +326,23 @@ class ReviewApp:
         if self.set_apart is not None:
             raise ReviewError(f"review.json in this folder belongs to {self.set_apart['belongs_to']} and "
                               f"does not fit this one; set it aside before saving")
-        edits = self.session.edits
-        state = self.session.state
-        review = {"specimen_id": self.data.specimen_id, "scan_sha256": self.data.scan_sha256,
-                  "basis": self.data.basis,
-                  "edits": edits,
-                  "notes": "\n".join(n["text"] for n in state.notes),
-                  "stretches": [[m["s0_mm"], m["s1_mm"], m["kind"], m["note"]]
-                                for m in sorted(state.marks.values(), key=lambda m: m["s0_mm"])]}
-        written = save_review(self.folder, review)
-        self.session.mark_saved(edits)
-        self.saved_utc = written["updated_utc"]
-        self.notice = None
-        self.schedule_rerun()
+        # One save at a time, each writing the edits as they are when it begins: two saves from two
+        # request threads could otherwise take their copies in one order and write in the other, and
+        # the older copy would be the file that stays.
+        with self._save_lock:
+            state = self.session.state  # one consistent copy: edits, notes and marks together
+            edits = [dict(e) for e in state.edits]
+            review = {"specimen_id": self.data.specimen_id, "scan_sha256": self.data.scan_sha256,
+                      "basis": self.data.basis,
+                      "edits": edits,
+                      "notes": "\n".join(n["text"] for n in state.notes),
+                      "stretches": [[m["s0_mm"], m["s1_mm"], m["kind"], m["note"]]
+                                    for m in sorted(state.marks.values(), key=lambda m: m["s0_mm"])]}
+            written = save_review(self.folder, review)
+            self.session.mark_saved(edits)
+            self.saved_utc = written["updated_utc"]
+            self.notice = None
+            self.schedule_rerun()
         return written
 
     def schedule_rerun(self) -> None:
