@@ -342,7 +342,8 @@ def test_a_save_killed_at_any_moment_never_leaves_a_half_written_review(tmp_path
         assert review is None or (review["edits"] and review["history"][-1]["edits_after"] == len(review["edits"]))
     clean_temp_files(tmp_path)
     assert not list(tmp_path.glob(".review.*.json"))
-    assert sorted(p.name for p in tmp_path.iterdir()) == ["review.json"]
+    # review.json, or nothing if no save ever finished before its kill (a slow disk under load)
+    assert {p.name for p in tmp_path.iterdir()} <= {"review.json"}
 
 
 def test_cross_site_reads_are_refused_but_opening_the_address_is_not(served):
