@@ -104,10 +104,18 @@ class CurvatureFeatures:
         Columns are float32 and not standardised; the segmenter scales them robustly.
         """
         use = np.flatnonzero(self.scales_mm > 0) if np.any(self.scales_mm > 0) else np.arange(len(self.scales_mm))
-        cols = [self.mean[:, use], self.shape_index[:, use]]
-        if luminance and self.luminance is not None:
-            cols.append(self.luminance[:, None])
-        return np.hstack(cols).astype(np.float32)
+        cols = [self.mean, self.shape_index]
+        lum = luminance and self.luminance is not None
+        k = len(use)
+        # written column by column into the float32 matrix (the same rounding as stacking in float64
+        # and converting, without the float64 copies)
+        out = np.empty((self.n_vertices, 2 * k + int(lum)), dtype=np.float32)
+        for j, src in enumerate(cols):
+            for i, c in enumerate(use):
+                out[:, j * k + i] = src[:, c]
+        if lum:
+            out[:, 2 * k] = self.luminance
+        return out
 
 
 def _lazy(name: str, make):
