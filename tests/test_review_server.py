@@ -412,3 +412,37 @@ def test_new_figures_are_shown_before_the_report_is_written(tmp_path):
     finally:
         release.set()
         server.stop()
+
+
+def test_a_later_save_is_never_overwritten_by_an_earlier_one(tmp_path, monkeypatch):
+    """Two saves at once (two tabs, quick key presses): review.json ends with every edit made before the
+    last save began. The first save is held at its write while a second edit and save start; saves
+    run one at a time, so the second waits and writes last (before the fix, an older copy of the
+    edits could be written last: the hammer test above failed 26 != 30 under load)."""
+    from bandgeo.review import app as app_mod
+
+    folder, seg, _ = make_folder(tmp_path / "KRB-07")
+    server = serve(folder, open_browser=False, segmentation=seg, rerun=Recorder())
+    real = app_mod.save_review
+    second = []
+
+    def held(folder_, review):
+        if not second:
+            t = threading.Thread(target=lambda: (server.app.session.push({"op": "reject", "id": 3}),
+                                                 server.app.save()))
+            second.append(t)
+            t.start()
+            t.join(1.0)  # saves one at a time: it waits for this one (without that it would finish first)
+        return real(folder_, review)
+
+    monkeypatch.setattr(app_mod, "save_review", held)
+    try:
+        server.app.session.push({"op": "reject", "id": 2})
+        server.app.save()
+        second[0].join(30)
+        assert not second[0].is_alive()
+        assert [e["id"] for e in read_review(folder)["edits"]] == [2, 3]
+        assert len(read_review(folder)["history"]) == 2 and not server.app.session.dirty
+        server.app.wait(30)
+    finally:
+        server.stop()
