@@ -23,6 +23,9 @@ from .unroll import coarse_centreline, unroll, wall_mask
 #: faces and up only).
 SAMPLING_VERTICES = 2_000_000
 
+#: The planes move to the mean groove's deepest point counted in the lamina on its slow side.
+SLOW_SIDE_LAMINA = True
+
 #: Partial rings (a cut at a slant) take the normal of the nearest full rings.
 REFIT_PARTIAL = True
 
@@ -182,14 +185,28 @@ def trace_all(fr, s_flat, sp, p_groove, run):
     h, prom, se, z, strong = h[keep], prom[keep], se[keep], z[keep], strong[keep]
     loc = tr.local_spacing_at(h[strong], sp) if strong.sum() >= 3 else np.full(int(strong.sum()), sp)
     loc_all = np.interp(h, h[strong], loc) if strong.sum() >= 1 else np.full(len(h), sp)
-    fit = tr.fit_boundaries(W, s_flat, h, loc_all, fr.axis_c, score=p_groove)
-    _refit_partial(fit, W, s_flat, h, loc_all, fr.axis_c, p_groove, strong, run)
+    laminae = _strong_neighbours(h, strong, loc_all) if SLOW_SIDE_LAMINA else None
+    fit = tr.fit_boundaries(W, s_flat, h, loc_all, fr.axis_c, score=p_groove, laminae=laminae)
+    _refit_partial(fit, W, s_flat, h, loc_all, fr.axis_c, p_groove, strong, run, laminae)
     run.info["profile_noise_mm"] = noise_v
     run.info["candidates"] = {"strong": int(strong.sum()), "weak": int((~strong).sum())}
     return {"h": h, "prom": prom, "z": z, "loc": loc_all, "fit": fit}, strong
 
 
-def _refit_partial(fit, W, s_flat, h, loc, axis, p_groove, strong, run):
+def _strong_neighbours(h, strong, loc):
+    """Distances (mm) from each candidate to the nearest strong candidate below and above it (the
+    local spacing where there is none)."""
+    hs = h[strong]
+    if len(hs) < 2:
+        return loc.copy(), loc.copy()
+    i = np.searchsorted(hs, h, side="left")  # first strong at or above h
+    j = np.searchsorted(hs, h, side="right")  # first strong strictly above h
+    below = np.where(i > 0, h - hs[np.maximum(i - 1, 0)], loc)
+    above = np.where(j < len(hs), hs[np.minimum(j, len(hs) - 1)] - h, loc)
+    return below, above
+
+
+def _refit_partial(fit, W, s_flat, h, loc, axis, p_groove, strong, run, laminae=None):
     """Rings where the wall is partial (a cut at a slant): refit with the normal of the nearest full
     rings, in place. A plane through part of a ring is poorly held about the chord of its arc (1 degree
     off on an arc of 6 mm radius puts one end of its window a tenth of a millimetre off the groove, into
@@ -206,7 +223,7 @@ def _refit_partial(fit, W, s_flat, h, loc, axis, p_groove, strong, run):
         n = fit["normal"][near].mean(axis=0)
         fixed[i] = n / np.linalg.norm(n)
     again = tr.fit_boundaries(W, s_flat, h, loc, axis, score=p_groove, fixed_normal=fixed, only=part,
-                              deepest_fraction=fit["deepest_fraction"])
+                              deepest_fraction=fit["deepest_fraction"], laminae=laminae)
     # the free fit decides whether the ring is there (its coverage, rms); the refit places it
     for key in ("center", "normal"):
         fit[key][part] = again[key][part]

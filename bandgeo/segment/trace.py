@@ -100,7 +100,7 @@ def _plane_fit(P, W, groups, n_groups, axis_t):
 
 
 def fit_boundaries(wall, s_flat, heights, spacing_local, axis, rounds=3, score=None, fixed_normal=None, only=None,
-                   deepest_fraction=None):
+                   deepest_fraction=None, laminae=None):
     """Trace and fit every candidate boundary at once.
 
     Parameters
@@ -119,8 +119,13 @@ def fit_boundaries(wall, s_flat, heights, spacing_local, axis, rounds=3, score=N
         Normals to keep (rows of NaN are fitted): only the plane's offset is fitted for the others.
     only : (c,) bool, optional
         Fit these candidates only (the vertices nearest the others are left out; their rows are junk).
-    deepest_fraction : float, optional
-        The mean groove's deepest point, in laminae from the fitted planes (default: measured here).
+    deepest_fraction : (float, str), optional
+        The mean groove's deepest point from the fitted planes, in laminae, and which lamina it is
+        counted in (``"local"``, ``"above"``, ``"below"``) (default: measured here).
+    laminae : ((c,) float, (c,) float), optional
+        The laminae below and above each candidate (mm, e.g. to the nearest strong candidates). When
+        given, the deepest point is counted in the lamina on the groove's slow side (see
+        :func:`_deepest_fraction`).
 
     Returns
     -------
@@ -212,9 +217,16 @@ def fit_boundaries(wall, s_flat, heights, spacing_local, axis, rounds=3, score=N
     # the planes go through the deepest point of the grooves, not their depth-weighted centroid: on an
     # asymmetric groove (a steep side and a slow one) the centroid sits on the slow side (independent
     # generator, laminae of 0.22 mm: a median 0.02 mm off the true plane)
+    # (an asymmetric groove's slow side spans a share of the lamina it leads into: next to a thin lamina
+    # and a thick one, the centroid's pull scales with the lamina on the slow side, not the local median)
     if deepest_fraction is None:
-        deepest_fraction = _deepest_fraction(kk, dist, rel, spacing_local)
-    shift = deepest_fraction * np.asarray(spacing_local, float)
+        frac, side = _deepest_fraction(kk, dist, rel, spacing_local), "local"
+        if laminae is not None and frac != 0.0:
+            side = "above" if frac < 0 else "below"
+            frac = _deepest_fraction(kk, dist, rel, _side_lamina(laminae, side, spacing_local))
+        deepest_fraction = (frac, side)
+    frac, side = deepest_fraction
+    shift = frac * (_side_lamina(laminae, side, spacing_local) if side != "local" else np.asarray(spacing_local, float))
     centre = centre + shift[:, None] * normal
     dist = dist - shift[kk]
     w = np.maximum(-rel, 0.0) * np.exp(-0.5 * (dist / sigma[kk]) ** 2) * (np.abs(dist) < half)
@@ -228,6 +240,11 @@ def fit_boundaries(wall, s_flat, heights, spacing_local, axis, rounds=3, score=N
     out.update(center=centre, normal=normal, rms_mm=rms, coverage=cnt / n_col, n_points=cnt, weight=ws,
                available=avail.sum(axis=1) / n_col, samples=(kk, dist, rel), deepest_fraction=deepest_fraction)
     return out
+
+
+def _side_lamina(laminae, side, spacing_local):
+    L = np.asarray(laminae[1] if side == "above" else laminae[0], float)
+    return np.where(np.isfinite(L) & (L > 0), L, np.asarray(spacing_local, float))
 
 
 def _deepest_fraction(kk, dist, rel, spacing_local, reach=DEEPEST_REACH, n_bins=48):
