@@ -156,7 +156,8 @@ def nearest_sample(p, t, v) -> np.ndarray:
     px, py, pz = (np.ascontiguousarray(p[:, c]) for c in range(3))
     out = np.empty(n, dtype=np.intp)
     todo = []
-    for a in range(0, n, _BLOCK):
+
+    def search(a):
         vb = v[a:a + _BLOCK]
         g = np.interp((vb - p[0]) @ chord, u, np.arange(k, dtype=float))
         g = np.clip(np.rint(g), 0, k - 1).astype(np.intp)
@@ -206,9 +207,11 @@ def nearest_sample(p, t, v) -> np.ndarray:
         out[a:a + _BLOCK] = gb
         bad = np.flatnonzero(~ok)
         if len(bad):
-            todo.append(a + bad)
+            todo.append(a + bad)   # (list.append is atomic: safe from the two threads)
+
+    _in_threads(search, range(0, n, _BLOCK))
     if todo:
-        rest = np.concatenate(todo)
+        rest = np.sort(np.concatenate(todo))
         out[rest] = cKDTree(p).query(v[rest], k=1, workers=2)[1]
     return out
 
@@ -222,7 +225,7 @@ def _compute(vertices: np.ndarray, axis) -> Unrolled:
     n = len(v)
     s_out, az_out, r_out = np.empty(n), np.empty(n), np.empty(n)
     # in blocks (the same arithmetic per vertex; the (n, 3) temporaries stay in cache)
-    for a in range(0, n, _BLOCK):
+    def coordinates(a):
         ib = i[a:a + _BLOCK]
         tb = t[ib]
         d = v[a:a + _BLOCK] - p[ib]
@@ -232,7 +235,33 @@ def _compute(vertices: np.ndarray, axis) -> Unrolled:
         s_out[a:a + _BLOCK] = fine[ib] + along
         az_out[a:a + _BLOCK] = np.mod(az, 360.0)
         r_out[a:a + _BLOCK] = np.linalg.norm(r, axis=1)
+
+    _in_threads(coordinates, range(0, n, _BLOCK))
     return Unrolled(s_out, az_out, r_out)
+
+
+#: Blocks of vertices from which the unrolling runs in two threads (numpy releases the GIL in its
+#: loops; every vertex's numbers are its own, so the same whichever thread makes them).
+_THREADED_BLOCKS = 4
+
+
+def _in_threads(fn, starts) -> None:
+    """``fn(a)`` for every block start ``a``: in two threads (interleaved blocks) when there are many."""
+    starts = list(starts)
+    if len(starts) < _THREADED_BLOCKS:
+        for a in starts:
+            fn(a)
+        return
+    from concurrent.futures import ThreadPoolExecutor
+
+    def run(part):
+        for a in part:
+            fn(a)
+
+    with ThreadPoolExecutor(max_workers=2, thread_name_prefix="bandgeo-unroll") as pool:
+        done = [pool.submit(run, starts[k::2]) for k in range(2)]
+        for d in done:
+            d.result()
 
 
 _lock = threading.Lock()

@@ -40,6 +40,7 @@ def _points(n, seed, radius=10.0, beyond=15.0, p=None):
 def test_nearest_sample_is_the_tree_answer(bend, radius, monkeypatch):
     k = 120
     monkeypatch.setattr(U, "_MIN_VERTICES_PER_SAMPLE", 1)  # the window search even on a small set
+    monkeypatch.setattr(U, "_BLOCK", 4096)                 # in blocks shared by two threads
     p, t = _curve(k, bend)
     v = _points(60_000, seed=int(10 * bend), radius=radius, p=p)
     expected = cKDTree(p).query(v, k=1)[1]
@@ -68,6 +69,7 @@ def test_unrolled_coordinates_do_not_depend_on_the_search(monkeypatch):
     axis.points_mm, axis.tangents = p, t
     v = _points(50_000, seed=3, radius=8.0, p=p)
     monkeypatch.setattr(U, "_MIN_VERTICES_PER_SAMPLE", 1)
+    monkeypatch.setattr(U, "_BLOCK", 2048)  # many blocks: the two threads take part
     fast = U._compute(v, axis)
     monkeypatch.setattr(U, "_MAX_PAIRS_SAMPLES", 0)  # the k-d tree alone
     slow = U._compute(v, axis)
