@@ -401,8 +401,9 @@ def test_blocks_summed_over_their_own_vertices_give_the_same_numbers():
 
 
 def test_diffusion_in_threads_gives_the_same_numbers(monkeypatch):
-    """The diffusion's three vectors walk in threads on large meshes: the same steps per vector, so
-    the same features bit for bit as one after the other (forced on a small column here)."""
+    """On large meshes the adjacency is built in a thread beside the one-ring sums, and the diffusion's
+    three vectors walk in threads: the same operations, so the same features bit for bit as one after
+    the other (forced on a small column here)."""
     from bandgeo.features import _slabs
 
     v, f = grooved_column(n_theta=120, noise=0.002, seed=3)

@@ -105,8 +105,18 @@ def compute_in_slabs(v, f, choose_scales, chunk_faces, max_steps, progress=None)
         verts, fl, core = slabs.get(k, margin1)
         vs = v if verts is None else v[verts]
         nl = len(vs)
-        adj, bnd = adjacency_and_boundary(fl, nl, dtype=np.float64)
-        lap, g, ar, nrm, _ = one_ring_curvature(vs, fl, boundary=bnd)
+        if nl >= PARALLEL_DIFFUSION_VERTICES:
+            # the adjacency (sparse conversions that release the GIL) is built in a thread while the
+            # one-ring sums run here; the boundary it gives is read only at their end
+            from concurrent.futures import ThreadPoolExecutor
+
+            with ThreadPoolExecutor(max_workers=1, thread_name_prefix="bandgeo-adjacency") as pool:
+                built = pool.submit(adjacency_and_boundary, fl, nl, np.float64)
+                lap, g, ar, nrm, _ = one_ring_curvature(vs, fl, boundary=lambda: built.result()[1])
+                adj, bnd = built.result()
+        else:
+            adj, bnd = adjacency_and_boundary(fl, nl, dtype=np.float64)
+            lap, g, ar, nrm, _ = one_ring_curvature(vs, fl, boundary=bnd)
         hu = -0.5 * np.einsum("ij,ij->i", lap, nrm)
         del lap
         valid = ~bnd & np.isfinite(hu) & np.isfinite(g)
@@ -256,7 +266,8 @@ def _diffuse(adj, h0, k0, w_area, valid, targets):
     return H, K
 
 
-#: From this many vertices on, the diffusion's three vectors walk in threads of their own.
+#: From this many vertices on, the diffusion's three vectors walk in threads of their own (and the
+#: adjacency is built in a thread beside the one-ring sums).
 PARALLEL_DIFFUSION_VERTICES = 200_000
 
 

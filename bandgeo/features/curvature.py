@@ -30,8 +30,9 @@ def one_ring_curvature(vertices: np.ndarray, faces: np.ndarray, block: int = FAC
     faces : (m, 3) int
     block : int
         Faces per block (the temporaries are a few arrays of this length).
-    boundary : (n,) bool, optional
-        The mesh's boundary vertices when already known (:func:`adjacency_and_boundary`).
+    boundary : (n,) bool or a callable returning it, optional
+        The mesh's boundary vertices when already known (:func:`adjacency_and_boundary`); a callable is
+        called once the sums are done.
 
     Returns
     -------
@@ -65,6 +66,8 @@ def one_ring_curvature(vertices: np.ndarray, faces: np.ndarray, block: int = FAC
     area = np.maximum(acc[7], 1e-300)
     if boundary is None:
         boundary = boundary_vertices(faces, n)
+    elif callable(boundary):  # made elsewhere meanwhile (bandgeo.features._slabs builds it in a thread)
+        boundary = boundary()
     deficit = np.where(boundary, np.pi, 2.0 * np.pi) - angle_sum
     nn = np.sqrt(np.einsum("ij,ij->i", normals, normals))[:, None]
     normals = normals / np.maximum(nn, 1e-300)
