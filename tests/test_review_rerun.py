@@ -6,8 +6,10 @@ Reference: the full computation itself (common practice: the page's result must 
 """
 import json
 import os
+import shutil
 import signal
 import time
+from pathlib import Path
 
 import pytest
 
@@ -21,8 +23,15 @@ from test_review_support import make_long_folder
 
 
 @pytest.fixture(scope="module")
-def long_folder(tmp_path_factory):
+def analysed(tmp_path_factory):
     return make_long_folder(tmp_path_factory.mktemp("process") / "KRB-41", n_bands=120, days_per_year=30.0)
+
+
+@pytest.fixture
+def long_folder(analysed, tmp_path):
+    """A copy of the analysed folder for each test: the tests save reviews into it, and none may see
+    another's (each would then pass or fail by the order the tests run in)."""
+    return Path(shutil.copytree(analysed, tmp_path / analysed.name))
 
 
 def _wait_done(app, timeout=180):
