@@ -49,8 +49,11 @@ def _rerun():
 def browser():
     if not Path(CHROMIUM).exists():
         pytest.skip(reason="Debian chromium is not installed (bash setup.sh installs it)")
-    from playwright.sync_api import sync_playwright
+    from playwright.sync_api import expect, sync_playwright
 
+    # A loaded 2-core CI machine may take more than Playwright's default 5 s to re-draw after a
+    # request; waiting longer changes no outcome, only how long a real failure takes to show.
+    expect.set_options(timeout=30_000)
     with sync_playwright() as p:
         b = p.chromium.launch(executable_path=CHROMIUM, args=ARGS)
         yield b
