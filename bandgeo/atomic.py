@@ -8,6 +8,7 @@ import contextlib
 import json
 import os
 import tempfile
+import threading
 from pathlib import Path
 from typing import Any, Iterator
 
@@ -41,9 +42,24 @@ def atomic_path(path: str | os.PathLike, suffix: str | None = None) -> Iterator[
         raise
 
 
+_UMASK_LOCK = threading.Lock()
+
+
 def _umask() -> int:
-    mask = os.umask(0)
-    os.umask(mask)
+    """The process's umask. Read from /proc on Linux, without setting it: the umask is shared by all
+    threads, and setting it to 0 for a moment (the portable way to read it) could make another thread's
+    files world-writable or, with two readers at once, leave it 0 for good. Elsewhere it is set and
+    restored under a lock (which guards against this module's own threads only)."""
+    try:
+        with open("/proc/self/status", "rb") as fh:
+            for line in fh:
+                if line.startswith(b"Umask:"):
+                    return int(line.split()[1], 8)
+    except (OSError, ValueError, IndexError):
+        pass
+    with _UMASK_LOCK:
+        mask = os.umask(0)
+        os.umask(mask)
     return mask
 
 

@@ -32,3 +32,39 @@ def test_output_gets_umask_permissions_not_private(tmp_path):
     finally:
         os.umask(old)
     assert stat.S_IMODE(os.stat(path).st_mode) == 0o644
+
+
+def test_reading_the_umask_never_sets_it(tmp_path, monkeypatch):
+    """The umask is shared by every thread; reading it by setting 0 and back (the portable way) lets a
+    file another thread creates meanwhile be world-writable, and two such readers at once can leave it
+    0 for good. On Linux it is read from /proc instead (proc(5), 'Umask' in /proc/[pid]/status)."""
+    import sys
+    import threading
+
+    if not sys.platform.startswith("linux"):
+        pytest.skip("read from /proc on Linux only")
+    old = os.umask(0o027)
+    try:
+        def no_setting(mask):
+            raise AssertionError(f"os.umask({mask:o}) called while writing")
+
+        monkeypatch.setattr(os, "umask", no_setting)
+        paths, errors = [], []
+
+        def writer(k):
+            try:
+                for i in range(20):
+                    paths.append(atomic.write_text(tmp_path / f"t{k}-{i}.txt", "x"))
+            except Exception as exc:  # pragma: no cover - reported below
+                errors.append(exc)
+
+        threads = [threading.Thread(target=writer, args=(k,)) for k in range(4)]
+        for t in threads:
+            t.start()
+        for t in threads:
+            t.join()
+    finally:
+        monkeypatch.undo()
+        os.umask(old)
+    assert not errors, errors[:3]
+    assert len(paths) == 80 and {stat.S_IMODE(os.stat(p).st_mode) for p in paths} == {0o640}
