@@ -49,8 +49,9 @@ def relief_profiles(vertices, values, valid, axis, sampling_mm, normals=None, ma
     e1 = np.cross(axis, [1.0, 0.0, 0.0] if abs(axis[0]) < 0.9 else [0.0, 1.0, 0.0])
     e1 /= np.linalg.norm(e1)
     e2 = np.cross(axis, e1)
-    c = v.mean(axis=0)
-    theta = np.arctan2((v - c) @ e2, (v - c) @ e1)
+    vc = v - v.mean(axis=0)
+    theta = np.arctan2(vc @ e2, vc @ e1)
+    del vc
     b = 0.5 * sampling_mm
     s0 = float(s.min())
     nb = int(np.ceil((s.max() - s0) / b)) + 1
