@@ -328,3 +328,23 @@ def test_partial_rings_at_a_slanted_cut_are_measured_against_the_wall_that_is_th
             assert round(float(h), 6) not in kept, (h, fit["coverage"][i], fit["available"][i])
     assert any("partial ring" in r["flags"] for r in out)
     assert any(line.startswith("R3 kept a partial ring") for line in log)
+
+
+def test_repair_fills_the_stretch_between_a_wall_end_and_the_first_ring():
+    """R4 at the ends (common practice: a boundary missed next to the cut leaves the same gap as one
+    missed inside): a weak ring inside the stretch from the wall's base to the first ring, more than
+    1.5 spacings long, is added; nothing is looked for within 0.4 spacing of the cut's rim."""
+    asked = []
+
+    def trace_weak(lo, hi):
+        asked.append((lo, hi))
+        return ring(1.0, prom=0.1) if lo < 1.0 < hi else None
+
+    rings = [ring(float(h)) for h in (2.0, 3.0, 4.0, 5.0, 6.0)]
+    out, _ = rp.repair(rings, 1.0, trace_weak, [], ends=(0.0, 6.3))
+    h = [r["height"] for r in out]
+    assert h[0] == 1.0 and "gap filled" in out[0]["flags"]
+    assert asked[0] == pytest.approx((0.4, 1.6))
+    assert len(asked) == 1  # 0.3 mm above the last ring is no gap
+    out, _ = rp.repair([ring(float(h)) for h in (2.0, 3.0, 4.0, 5.0, 6.0)], 1.0, trace_weak, [])
+    assert [r["height"] for r in out][0] == 2.0  # without the wall's ends: as before

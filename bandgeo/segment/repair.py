@@ -63,7 +63,7 @@ def confidence(ring: dict, ref_prominence: float, spacing: float) -> float:
     return float(np.clip(c, 0.0, 1.0))
 
 
-def repair(rings: list, spacing: float, trace_weak, log: list) -> list:
+def repair(rings: list, spacing: float, trace_weak, log: list, ends=None) -> list:
     """Apply rules R1-R4 to ring dicts (``height``, ``prominence``, ``rms_mm``, ``coverage``, ``flags``).
 
     Parameters
@@ -75,6 +75,9 @@ def repair(rings: list, spacing: float, trace_weak, log: list) -> list:
         ``trace_weak(lo_mm, hi_mm) -> ring dict or None``: the strongest weak peak inside a gap.
     log : list
         Receives one line per rule application.
+    ends : (float, float), optional
+        The wall's lowest and highest height (mm): the stretches between them and the first and last
+        rings are gaps too (R4), less ``DOUBLE_FRACTION`` of a lamina at the end (the cut's rim).
 
     Returns
     -------
@@ -144,6 +147,22 @@ def repair(rings: list, spacing: float, trace_weak, log: list) -> list:
                            f"(> {GAP_FRACTION} x local spacing {ref:.3f} mm): possible missed boundary")
                 gaps_flagged.append([float(h[i]), float(h[i + 1]), "possible missed boundary"])
             i += 1
+    if ends is not None and len(rings) >= 3:
+        h = np.array([r["height"] for r in rings])
+        loc = local_spacing(h, spacing, window=7)
+        for where in ("base", "top"):
+            i = 0 if where == "base" else len(rings) - 1
+            ref = float(loc[i])
+            lo, hi = (ends[0], h[0]) if where == "base" else (h[-1], ends[1])
+            if hi - lo > GAP_FRACTION * ref:
+                a, b = lo + DOUBLE_FRACTION * ref, hi - DOUBLE_FRACTION * ref
+                new = trace_weak(a, b) if b > a else None
+                if new is not None and new["rms_mm"] <= MAX_RMS_FRACTION * ref and new["coverage"] >= MIN_COVERAGE:
+                    new.setdefault("flags", []).append("gap filled")
+                    log.append(f"R4 filled the {hi - lo:.3f} mm at the {where} with a weak ring at {new['height']:.3f} mm")
+                    rings.insert(0 if where == "base" else len(rings), new)
+                    h = np.array([r["height"] for r in rings])
+                    loc = local_spacing(h, spacing, window=7)
     if rings:
         ref_prom = float(np.median([r["prominence"] for r in rings if "gap filled" not in r["flags"]] or [1.0]))
         loc = local_spacing(np.array([r["height"] for r in rings]), spacing)

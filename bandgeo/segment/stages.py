@@ -26,6 +26,9 @@ SAMPLING_VERTICES = 2_000_000
 #: The planes move to the mean groove's deepest point counted in the lamina on its slow side.
 SLOW_SIDE_LAMINA = True
 
+#: R4 also looks between the wall's ends and the first and last rings.
+END_GAPS = True
+
 #: Partial rings (a cut at a slant) take the normal of the nearest full rings.
 REFIT_PARTIAL = True
 
@@ -277,7 +280,8 @@ def trace(fr, s_flat, sp, p_groove, est, run):
         inside = [r for r in weak if lo < r["height"] < hi]
         return max(inside, key=lambda r: r["prominence"]) if inside else None
 
-    rings, gaps = repair.repair(rings, sp, trace_weak, run.log)
+    ends = (float(s_flat.min()), float(s_flat.max())) if END_GAPS else None
+    rings, gaps = repair.repair(rings, sp, trace_weak, run.log, ends=ends)
     refuse = None
     expected = fr.W.length_mm / sp
     rule = resolution.resolvable_lamina_mm(fr.samp, fr.noise)["rule"]
