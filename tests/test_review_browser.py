@@ -191,7 +191,7 @@ def test_thousand_boundary_workflow(long_record, browser):
         review = read_review(long_record)
         assert result["review"]["n_edits"] == len(review["edits"]) == 3
         assert review["basis"]["segmentation_id"] == server.app.data.basis["segmentation_id"]
-        assert page.get_attribute("#estimate", "data-bands") == str(result["bands"]["count"])
+        expect(page.locator("#estimate")).to_have_attribute("data-bands", str(result["bands"]["count"]))
         expect(page.locator("#status")).to_contain_text("analysis updated")
 
         # One numbering everywhere: band k of bands.csv starts at the boundary the page calls band k.

@@ -56,8 +56,12 @@ async function poll() {
       await new Promise((ok) => setTimeout(ok, 500));
       const st = await call("/api/status");
       const fresh = st.result_utc && st.result_utc !== (S.rerun || {}).result_utc;
+      if (st.state !== "running") {   // the new result and "updated" are drawn together, never one before the other
+        setState(await call("/api/state"));
+        if ((S.rerun || {}).state === "running") continue;   // another save's re-run began meanwhile
+        break;
+      }
       S.rerun = st; drawStatus();
-      if (st.state !== "running") { setState(await call("/api/state")); break; }
       if (fresh) setState(await call("/api/state"));   // new figures are in; the report follows
     }
   } catch (e) { toast(e.message); } finally { polling = false; }
