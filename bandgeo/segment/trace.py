@@ -140,8 +140,9 @@ def fit_boundaries(wall, s_flat, heights, spacing_local, axis, rounds=3, score=N
     per_lamina = len(s_flat) * float(np.median(spacing_local)) / max(wall.length_mm, 1e-9) if c else 0.0
     n_col = int(np.clip(per_lamina / 6.0, 8, FIT_COLUMNS))
     out = {"center": np.full((c, 3), np.nan), "normal": np.full((c, 3), np.nan), "rms_mm": np.full(c, np.nan),
-           "coverage": np.zeros(c), "n_points": np.zeros(c, int), "weight": np.zeros(c)}
+           "coverage": np.zeros(c), "n_points": np.zeros(c, int), "weight": np.zeros(c), "available": np.zeros(c)}
     if c == 0:
+        out.update(samples=(np.zeros(0, np.int64), np.zeros(0), np.zeros(0)), deepest_fraction=(0.0, "local"))
         return out
     # nearest candidate of each vertex on s', and the half-window of that candidate
     mids = 0.5 * (heights[1:] + heights[:-1])
