@@ -446,3 +446,27 @@ def test_a_later_save_is_never_overwritten_by_an_earlier_one(tmp_path, monkeypat
         server.app.wait(30)
     finally:
         server.stop()
+
+
+def test_a_server_stopped_during_its_warm_up_leaves_no_worker_process(tmp_path, monkeypatch):
+    """stop() while the page's warm-up thread has not yet started the re-run's worker process: the
+    thread, when it goes on, starts none (it used to start one after the stop, left running)."""
+    import psutil
+
+    from bandgeo.review import server as server_mod
+
+    folder, seg, _ = make_folder(tmp_path / "KRB-07")
+    go = threading.Event()
+    real_warm = server_mod._warm
+    monkeypatch.setattr(server_mod, "_warm", lambda *a: (go.wait(60), real_warm(*a)))
+    before = {c.pid for c in psutil.Process().children()}
+    server = serve(folder, open_browser=False, segmentation=seg)  # the default re-run: a worker process
+    try:
+        server.stop(wait_rerun=2)  # the warm-up thread is held before it starts the worker
+        go.set()
+        server.warm_thread.join(60)
+        left = [c.pid for c in psutil.Process().children() if c.pid not in before]
+        assert not left and server.app.rerun.pid is None, left
+    finally:
+        go.set()
+        server.app.rerun.close()

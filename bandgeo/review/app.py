@@ -103,6 +103,7 @@ class ProcessRerun:
         self._proc = None
         self._conn = None
         self._ready = False
+        self._closed = False  # after close(), warm() starts nothing (a save still starts a worker)
         self._lock = threading.Lock()  # one request at a time through the pipe
 
     @property
@@ -132,9 +133,11 @@ class ProcessRerun:
         self._proc, self._conn, self._ready = proc, Connection(ours.detach()), False
 
     def warm(self, folder) -> None:
-        """Start the worker, which loads and warms the inputs at once (returns without waiting)."""
+        """Start the worker, which loads and warms the inputs at once (returns without waiting); after
+        :meth:`close` it does nothing (a warm-up thread that comes late leaves no worker behind)."""
         with self._lock:
-            self._start(folder)
+            if not self._closed:
+                self._start(folder)
 
     def wait_ready(self, timeout: float = 120.0, progress=None) -> bool:
         """Wait until the worker has loaded and warmed the inputs; True when it has. ``progress``
@@ -156,6 +159,7 @@ class ProcessRerun:
 
     def __call__(self, folder, progress=None, partial=None):
         with self._lock:
+            self._closed = False
             for attempt in (0, 1):
                 heard = []
                 try:
@@ -220,6 +224,7 @@ class ProcessRerun:
         """Stop the worker (after the save in progress, if any, up to ``wait`` seconds)."""
         got = self._lock.acquire(timeout=wait)
         try:
+            self._closed = True
             self._stop(wait=wait)
         finally:
             if got:

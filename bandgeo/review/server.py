@@ -402,14 +402,14 @@ class ReviewServer(ThreadingHTTPServer):
         self.shutdown()
         self.server_close()
         self.app.wait(wait_rerun)
+        warm = getattr(self, "warm_thread", None)
+        if warm is not None:  # let the page-data preparation finish (native code dislikes exiting mid-way);
+            warm.join(wait_rerun)  # before the close below: it may still be starting the re-run's worker
         close = getattr(self.app.rerun, "close", None)
         if callable(close):  # the re-run's worker process
             close(wait_rerun)
         if self.thread is not None:
             self.thread.join(5)
-        warm = getattr(self, "warm_thread", None)
-        if warm is not None:  # let the page-data preparation finish (native code dislikes exiting mid-way)
-            warm.join(wait_rerun)
 
 
 class ReviewServer6(ReviewServer):
