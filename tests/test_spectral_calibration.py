@@ -21,7 +21,9 @@ N_SERIES = 200
 N_SIM = 99
 
 
-@pytest.mark.timeout(300)
+# Time limits catch a hang, not slowness: on this 2-core machine under load (two CPU hogs and the
+# other work) the coverage test took 233 s of its former 300 s; a slower CI machine must not fail it.
+@pytest.mark.timeout(1200)
 def test_interval_coverage_on_forward_model():
     hits, detected = [], 0
     for i in range(N_SERIES):
@@ -38,7 +40,7 @@ def test_interval_coverage_on_forward_model():
     assert 0.92 <= coverage <= 0.98, f"coverage {coverage:.3f}"
 
 
-@pytest.mark.timeout(300)
+@pytest.mark.timeout(1200)
 def test_red_noise_false_alarm_rate():
     declared = [run_periodicity(null_case(i, with_sway=False), n_sim=N_SIM, seed=i,
                                 methods=("spectrum",)).days_per_year["significant"] for i in range(N_SERIES)]
@@ -47,7 +49,7 @@ def test_red_noise_false_alarm_rate():
     assert rate <= 0.05, f"false-alarm rate {rate:.3f}"
 
 
-@pytest.mark.timeout(600)
+@pytest.mark.timeout(1200)
 def test_independent_generator_small_batch():
     # A small batch of the independent generator (benchmarks/series_generator.py: skewed and peaked
     # seasons, multiplicative log-normal AR(1) noise, drift and trends, missing days, meandering tilt).
