@@ -228,6 +228,7 @@ def _refit_partial(fit, W, s_flat, h, loc, axis, p_groove, strong, run, laminae=
     again = tr.fit_boundaries(W, s_flat, h, loc, axis, score=p_groove, fixed_normal=fixed, only=part,
                               deepest_fraction=fit["deepest_fraction"], laminae=laminae)
     # the free fit decides whether the ring is there (its coverage, rms); the refit places it
+    part &= (again["n_points"] >= 3) & np.all(np.isfinite(again["center"]), axis=1)
     for key in ("center", "normal"):
         fit[key][part] = again[key][part]
     k0, d0, r0 = fit["samples"]
