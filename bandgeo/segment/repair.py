@@ -134,10 +134,8 @@ def repair(rings: list, spacing: float, trace_weak, log: list, ends=None) -> lis
             gap = h[i + 1] - h[i]
             ref = 0.5 * (loc[i] + loc[i + 1])
             if gap > GAP_FRACTION * ref:
-                lo, hi = h[i] + DOUBLE_FRACTION * ref, h[i + 1] - DOUBLE_FRACTION * ref
-                new = trace_weak(lo, hi) if hi > lo else None
-                if new is not None and new["rms_mm"] <= MAX_RMS_FRACTION * ref and new["coverage"] >= MIN_COVERAGE:
-                    new.setdefault("flags", []).append("gap filled")
+                new = _gap_ring(trace_weak, h[i], h[i + 1], ref)
+                if new is not None:
                     log.append(f"R4 filled a {gap:.3f} mm gap with a weak ring at {new['height']:.3f} mm")
                     rings.insert(i + 1, new)
                     h = np.array([r["height"] for r in rings])
@@ -154,21 +152,29 @@ def repair(rings: list, spacing: float, trace_weak, log: list, ends=None) -> lis
             i = 0 if where == "base" else len(rings) - 1
             ref = float(loc[i])
             lo, hi = (ends[0], h[0]) if where == "base" else (h[-1], ends[1])
-            if hi - lo > GAP_FRACTION * ref:
-                a, b = lo + DOUBLE_FRACTION * ref, hi - DOUBLE_FRACTION * ref
-                new = trace_weak(a, b) if b > a else None
-                if new is not None and new["rms_mm"] <= MAX_RMS_FRACTION * ref and new["coverage"] >= MIN_COVERAGE:
-                    new.setdefault("flags", []).append("gap filled")
-                    log.append(f"R4 filled the {hi - lo:.3f} mm at the {where} with a weak ring at {new['height']:.3f} mm")
-                    rings.insert(0 if where == "base" else len(rings), new)
-                    h = np.array([r["height"] for r in rings])
-                    loc = local_spacing(h, spacing, window=7)
+            new = _gap_ring(trace_weak, lo, hi, ref) if hi - lo > GAP_FRACTION * ref else None
+            if new is not None:
+                log.append(f"R4 filled the {hi - lo:.3f} mm at the {where} with a weak ring at {new['height']:.3f} mm")
+                rings.insert(0 if where == "base" else len(rings), new)
+                h = np.array([r["height"] for r in rings])
+                loc = local_spacing(h, spacing, window=7)
     if rings:
         ref_prom = float(np.median([r["prominence"] for r in rings if "gap filled" not in r["flags"]] or [1.0]))
         loc = local_spacing(np.array([r["height"] for r in rings]), spacing)
         for r, ls in zip(rings, loc):
             r["confidence"] = confidence(r, ref_prom, ls)
     return rings, gaps_flagged
+
+
+def _gap_ring(trace_weak, lo: float, hi: float, ref: float):
+    """The strongest weak ring between ``lo`` and ``hi`` (less ``DOUBLE_FRACTION`` of the local spacing
+    ``ref`` at each side) if it passes R2 and R3, flagged ``gap filled``; else None."""
+    a, b = lo + DOUBLE_FRACTION * ref, hi - DOUBLE_FRACTION * ref
+    new = trace_weak(a, b) if b > a else None
+    if new is None or new["rms_mm"] > MAX_RMS_FRACTION * ref or new["coverage"] < MIN_COVERAGE:
+        return None
+    new.setdefault("flags", []).append("gap filled")
+    return new
 
 
 def _partial(r: dict) -> bool:
