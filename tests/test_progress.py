@@ -294,6 +294,18 @@ def test_in_phases_runs_once_from_zero_to_one():
     assert progress.in_phases(None, 3) is None
 
 
+class _FakeRerunner:
+    """Stands in for ``bandgeo.pipeline.Rerunner`` in the review worker: four warm-up steps, then ready."""
+
+    def __init__(self, folder):
+        self.folder = folder
+
+    def warm(self, progress=None):
+        for k, what in enumerate(("bands", "projection", "unrolled", "analysis")):
+            progress(what, k, 4)
+        progress("ready", 4, 4)
+
+
 def test_review_worker_reports_its_warm_up_and_the_page_can_show_it(monkeypatch):
     """The review page's re-run worker sends its warm-up steps (loading, bands, projection, unrolling,
     one analysis) before it says it is ready; ``ProcessRerun.wait_ready(progress=...)`` hands them to a
@@ -305,16 +317,7 @@ def test_review_worker_reports_its_warm_up_and_the_page_can_show_it(monkeypatch)
     from bandgeo.review import app as app_mod
     from bandgeo.review import worker
 
-    class FakeRerunner:
-        def __init__(self, folder):
-            self.folder = folder
-
-        def warm(self, progress=None):
-            for k, what in enumerate(("bands", "projection", "unrolled", "analysis")):
-                progress(what, k, 4)
-            progress("ready", 4, 4)
-
-    monkeypatch.setattr(pipeline, "Rerunner", FakeRerunner)
+    monkeypatch.setattr(pipeline, "Rerunner", _FakeRerunner)
     page_end, worker_end = Pipe()
     t = threading.Thread(target=worker.serve_requests, args=(worker_end, "folder", False), daemon=True)
     t.start()
@@ -400,16 +403,7 @@ def test_review_run_on_a_terminal_draws_the_worker_s_warm_up_steps(tmp_path, mon
 
     folder, seg, _ = _review_folder(tmp_path)
 
-    class FakeRerunner:
-        def __init__(self, folder):
-            self.folder = folder
-
-        def warm(self, progress=None):
-            for k, what in enumerate(("bands", "projection", "unrolled", "analysis")):
-                progress(what, k, 4)
-            progress("ready", 4, 4)
-
-    monkeypatch.setattr(pipeline, "Rerunner", FakeRerunner)
+    monkeypatch.setattr(pipeline, "Rerunner", _FakeRerunner)
     page_end, worker_end = Pipe()
     t = threading.Thread(target=worker.serve_requests, args=(worker_end, str(folder), False), daemon=True)
     t.start()

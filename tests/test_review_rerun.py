@@ -94,6 +94,15 @@ def test_default_rerun_in_a_worker_process_gives_the_fresh_result_and_the_report
         pytest.fail("the re-run worker outlived the server")
 
 
+def _saves_with_a_new_worker(app, rerun, first, folder):
+    """A save that ends done, in a worker other than ``first``, with the fresh run's band count."""
+    app.save()
+    st = _wait_done(app)
+    assert st["state"] == "done", st
+    assert rerun.pid not in (None, first)
+    assert app.last_result["bands"]["count"] == _fresh(folder).result["bands"]["count"]
+
+
 class _KilledMidSave(ProcessRerun):
     """Its first worker never finishes a save (tests/stalling_review_worker.py: one progress line, then
     it waits); the worker is killed when that progress line arrives, so it dies during the save, always
@@ -133,11 +142,7 @@ def test_a_worker_that_dies_during_a_save_fails_that_save_and_the_next_save_star
         st = _wait_done(app)
         assert rerun.kills == 1
         assert st["state"] == "failed" and "stopped unexpectedly" in st["error"] and "\n" not in st["error"]
-        app.save()
-        st = _wait_done(app)
-        assert st["state"] == "done", st
-        assert rerun.pid not in (None, first)
-        assert app.last_result["bands"]["count"] == _fresh(long_folder).result["bands"]["count"]
+        _saves_with_a_new_worker(app, rerun, first, long_folder)
     finally:
         app.wait(60)
         rerun.close()
@@ -153,11 +158,7 @@ def test_a_worker_that_died_while_idle_is_replaced_quietly_at_the_next_save(long
         first = rerun.pid
         os.kill(first, signal.SIGKILL)  # whether or not it has been reaped when the save comes
         app.session.push({"op": "reject", "id": app.session.state.active()[31].id})
-        app.save()
-        st = _wait_done(app)
-        assert st["state"] == "done", st
-        assert rerun.pid not in (None, first)
-        assert app.last_result["bands"]["count"] == _fresh(long_folder).result["bands"]["count"]
+        _saves_with_a_new_worker(app, rerun, first, long_folder)
     finally:
         app.wait(60)
         rerun.close()
