@@ -234,8 +234,8 @@ def fit_boundaries(wall, s_flat, heights, spacing_local, axis, rounds=3, score=N
     if score is not None:
         sc = score[sel]
         out["score"] = np.bincount(kk, w * sc, minlength=c) / np.maximum(np.bincount(kk, w, minlength=c), 1e-300)
-    # columns where the wall exists within a groove width of the plane (fewer near a slanted cut)
-    g = kk * n_col + col
+    # columns where the wall exists within a groove width of the plane (fewer near a slanted cut); g: the
+    # (candidate, column) groups of the rounds above
     near = np.abs(dist) < 0.15 * spacing_local[kk]
     avail = np.bincount(g[near], minlength=c * n_col).reshape(c, n_col) > 0
     out.update(center=centre, normal=normal, rms_mm=rms, coverage=cnt / n_col, n_points=cnt, weight=ws,
