@@ -16,6 +16,15 @@ R3 ``dropped: short arc``: a ring covering less than ``MIN_COVERAGE`` (half) of 
 R4 ``gap filled``: where two neighbouring rings are more than ``GAP_FRACTION`` times the local median
    spacing apart, the strongest weak peak inside the gap is traced; it is added (with lowered
    confidence) if it passes R2 and R3, otherwise the gap is flagged as a possibly missed boundary.
+R7 ``confirmed in its own frame``: a weak peak of the flattened profile (too faint there to be a ring by
+   itself) is added when its own plane shows the groove: own-frame groove z-score at least
+   ``CONFIRM_GROOVE_Z`` (the R5 statistic), profile z-score at least ``CONFIRM_PROFILE_Z``, R2 and R3
+   passed, at least ``CONFIRM_MIN_SPLIT`` of the local spacing from the rings on either side, and a
+   crest of the wall at least ``CONFIRM_CREST_Z`` standard errors high between it and each of them (one
+   groove traced from both flanks has none; :func:`bandgeo.segment.trace.crest_z`). A thin
+   lamina next to a normal one leaves two rings under ``GAP_FRACTION`` spacings apart, so R4 never looks
+   there, and the flattened profile, averaged around the column, blurs the thin lamina's grooves into
+   one; each groove's own plane does not (independent generator, laminae of 0.4 x the mean).
 
 Confidence (0..1) = coverage^(1/2) * min(1, prominence / reference prominence)
 * exp(-(rms / (0.25 * local spacing))^2) * class_support^(1/2), times 0.7 for a gap-filled ring.
@@ -38,6 +47,14 @@ PARTIAL_MIN = 0.35
 #: 1.5 rather than 1.75: a missed thin lamina of an annual cycle leaves a gap of 1.6-1.9 local spacings
 #: (thin laminae next to thicker ones); the weak ring added must still fit a plane and cover the wall.
 GAP_FRACTION = 1.5
+#: R7: least own-frame groove z-score, profile z-score and distance to the rings either side (in local
+#: spacings) of a weak peak added without a gap. Set on the independent generator's cells (12 columns,
+#: 57 unused weak peaks with rings either side: 41 on a missed true boundary, 16 not): 27 of the 41 pass,
+#: and 3 of the 16.
+CONFIRM_GROOVE_Z = 5.0
+CONFIRM_PROFILE_Z = 3.5
+CONFIRM_MIN_SPLIT = 0.25
+CONFIRM_CREST_Z = 3.0
 
 
 def local_spacing(heights: np.ndarray, fallback: float, window: int = 5) -> np.ndarray:
@@ -63,7 +80,7 @@ def confidence(ring: dict, ref_prominence: float, spacing: float) -> float:
     return float(np.clip(c, 0.0, 1.0))
 
 
-def repair(rings: list, spacing: float, trace_weak, log: list, ends=None) -> list:
+def repair(rings: list, spacing: float, trace_weak, log: list, ends=None, weak=None, crest=None) -> list:
     """Apply rules R1-R4 to ring dicts (``height``, ``prominence``, ``rms_mm``, ``coverage``, ``flags``).
 
     Parameters
@@ -78,6 +95,11 @@ def repair(rings: list, spacing: float, trace_weak, log: list, ends=None) -> lis
     ends : (float, float), optional
         The wall's lowest and highest height (mm): the stretches between them and the first and last
         rings are gaps too (R4), less ``DOUBLE_FRACTION`` of a lamina at the end (the cut's rim).
+    weak : list of dict, optional
+        The weak peaks (with ``z`` and ``groove_z``) for R7.
+    crest : callable, optional
+        ``crest(ring_a, ring_b) -> z`` for R7 (see :func:`bandgeo.segment.trace.crest_z`); without it R7
+        is not applied.
 
     Returns
     -------
@@ -158,12 +180,43 @@ def repair(rings: list, spacing: float, trace_weak, log: list, ends=None) -> lis
                 rings.insert(0 if where == "base" else len(rings), new)
                 h = np.array([r["height"] for r in rings])
                 loc = local_spacing(h, spacing, window=7)
+    if weak and crest is not None and len(rings) >= 3:
+        rings = _confirm_weak(rings, weak, spacing, log, crest)
+        gaps_flagged = [g for g in gaps_flagged
+                        if not any(g[0] < r["height"] < g[1] for r in rings)]
     if rings:
         ref_prom = float(np.median([r["prominence"] for r in rings if "gap filled" not in r["flags"]] or [1.0]))
         loc = local_spacing(np.array([r["height"] for r in rings]), spacing)
         for r, ls in zip(rings, loc):
             r["confidence"] = confidence(r, ref_prom, ls)
     return rings, gaps_flagged
+
+
+def _confirm_weak(rings: list, weak: list, spacing: float, log: list, crest) -> list:
+    """R7 (see the module docstring): weak peaks whose own plane shows the groove, strongest first."""
+    used = {id(r) for r in rings}
+    pool = [w for w in weak if id(w) not in used and w.get("z", 0.0) >= CONFIRM_PROFILE_Z
+            and w.get("groove_z", 0.0) >= CONFIRM_GROOVE_Z and w["rms_mm"] <= MAX_RMS_FRACTION * spacing
+            and (w["coverage"] >= MIN_COVERAGE or _partial(w))]
+    for w in sorted(pool, key=lambda r: -r["groove_z"]):
+        h = np.array([r["height"] for r in rings])
+        i = int(np.searchsorted(h, w["height"]))
+        if i == 0 or i == len(h):
+            continue  # beyond the end rings: R4's end gaps look there
+        loc = local_spacing(h, spacing, window=7)
+        ref = 0.5 * (loc[i - 1] + loc[i])
+        split = min(w["height"] - h[i - 1], h[i] - w["height"]) / ref
+        if split < CONFIRM_MIN_SPLIT or w["rms_mm"] > MAX_RMS_FRACTION * ref:
+            continue
+        cz = min(crest(w, rings[i - 1]), crest(w, rings[i]))
+        if not cz >= CONFIRM_CREST_Z:  # NaN: too few vertices to judge
+            continue
+        w.setdefault("flags", []).append("confirmed in its own frame")
+        log.append(f"R7 added a weak ring at {w['height']:.3f} mm between {h[i - 1]:.3f} and {h[i]:.3f} mm: "
+                   f"groove z-score {w['groove_z']:.1f} in its own frame, profile z-score {w['z']:.1f}, "
+                   f"crest z-score {cz:.1f}")
+        rings.insert(i, w)
+    return rings
 
 
 def _gap_ring(trace_weak, lo: float, hi: float, ref: float):

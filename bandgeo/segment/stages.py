@@ -32,6 +32,9 @@ END_GAPS = True
 #: Partial rings (a cut at a slant) take the normal of the nearest full rings.
 REFIT_PARTIAL = True
 
+#: Repair rule R7: weak peaks whose own plane shows the groove are added (see repair).
+CONFIRM_WEAK = True
+
 #: Repair rule R6: least groove-class probability of a boundary's groove, relative to the wall mean.
 MIN_CLASS_SUPPORT = 0.2
 
@@ -246,6 +249,8 @@ def trace(fr, s_flat, sp, p_groove, est, run):
     p_mean = max(float(np.mean(p_groove)), 1e-12) if len(p_groove) else 1.0
     rings_all = []
     fixed = fit.get("normal_fixed", np.zeros(len(cand["h"]), bool))
+    # each candidate's groove z-score in its own frame (the R5 statistic), for R7
+    _, groove_z, _ = resolution.boundary_relief(fit["samples"], np.asarray(cand["loc"], float), len(cand["h"]))
     for i in range(len(cand["h"])):
         if not np.all(np.isfinite(fit["normal"][i])) or fit["n_points"][i] < 3:
             rings_all.append(None)
@@ -257,6 +262,7 @@ def trace(fr, s_flat, sp, p_groove, est, run):
                           "coverage": float(fit["coverage"][i]), "prominence": float(cand["prom"][i]),
                           "available": float(fit["available"][i]),
                           "z": float(cand["z"][i]), "class_support": support, "flags": [], "index": i,
+                          "groove_z": float(groove_z[i]) if np.isfinite(groove_z[i]) else 0.0,
                           "normal_from": "the nearest full rings" if fixed[i] else "plane fit"})
     rings = [r for r, s in zip(rings_all, strong) if s and r is not None]
     weak = [r for r, s in zip(rings_all, strong) if (not s) and r is not None]
@@ -282,7 +288,11 @@ def trace(fr, s_flat, sp, p_groove, est, run):
         return max(inside, key=lambda r: r["prominence"]) if inside else None
 
     ends = (float(s_flat.min()), float(s_flat.max())) if END_GAPS else None
-    rings, gaps = repair.repair(rings, sp, trace_weak, run.log, ends=ends)
+    def crest(a, b):
+        return tr.crest_z(fr.W.v, fr.W.relief, s_flat, a, b)
+
+    rings, gaps = repair.repair(rings, sp, trace_weak, run.log, ends=ends, weak=weak if CONFIRM_WEAK else None,
+                                crest=crest)
     refuse = None
     expected = fr.W.length_mm / sp
     rule = resolution.resolvable_lamina_mm(fr.samp, fr.noise)["rule"]

@@ -272,6 +272,36 @@ def _deepest_fraction(kk, dist, rel, spacing_local, reach=DEEPEST_REACH, n_bins=
     return float((m + 0.5 + delta) * (2 * reach / n_bins) - reach)
 
 
+def crest_z(v, relief, s_flat, a, b, n_bins=6):
+    """How far (standard errors) the wall between rings ``a`` and ``b`` rises above their grooves.
+
+    The wall vertices between the two planes, along ``a``'s normal, in ``n_bins`` bins; the highest
+    inner bin's mean relief less the higher of the two end bins', over its standard error (pooled
+    within-bin scatter). Two grooves have a crest between them; one groove traced from both its flanks
+    has none. NaN when a bin holds fewer than 5 vertices (too few to judge).
+    """
+    c, n = np.asarray(a["center"], float), np.asarray(a["normal"], float)
+    d_b = float(np.dot(np.asarray(b["center"], float) - c, n))
+    if abs(d_b) < 1e-12:
+        return float("nan")
+    lo, hi = sorted((float(a["height"]), float(b["height"])))
+    pad = 0.5 * (hi - lo) + abs(d_b)
+    pre = np.flatnonzero((s_flat > lo - pad) & (s_flat < hi + pad))
+    t = ((v[pre] - c) @ n) / d_b
+    m = (t >= 0.0) & (t < 1.0)
+    ib = (t[m] * n_bins).astype(np.int64)
+    r = relief[pre][m]
+    cnt = np.bincount(ib, minlength=n_bins).astype(float)
+    if cnt.min() < 5:
+        return float("nan")
+    mean = np.bincount(ib, r, minlength=n_bins) / cnt
+    var = float(np.sum((r - mean[ib]) ** 2) / max(len(r) - n_bins, 1))
+    k = 1 + int(np.argmax(mean[1:-1]))
+    e = 0 if mean[0] >= mean[-1] else n_bins - 1
+    se = np.sqrt(var * (1.0 / cnt[k] + 1.0 / cnt[e]))
+    return float((mean[k] - mean[e]) / max(se, 1e-300))
+
+
 def local_spacing_at(heights, spacing_mm, window=5):
     """Median spacing of the ``window`` nearest intervals at each height (the band spacing if too few)."""
     from .repair import local_spacing
