@@ -348,3 +348,68 @@ def test_repair_fills_the_stretch_between_a_wall_end_and_the_first_ring():
     assert len(asked) == 1  # 0.3 mm above the last ring is no gap
     out, _ = rp.repair([ring(float(h)) for h in (2.0, 3.0, 4.0, 5.0, 6.0)], 1.0, trace_weak, [])
     assert [r["height"] for r in out][0] == 2.0  # without the wall's ends: as before
+
+
+def test_repair_r7_adds_weak_rings_confirmed_in_their_own_frame():
+    """R7 (common practice: a groove that stands out in its own plane is a boundary even where the
+    averaged profile shows it faintly; one groove traced from both flanks is not two): the weak ring
+    at 2.4 passes every test and is added; the others each fail one."""
+    rings = [ring(float(h)) for h in (0.0, 1.0, 2.0, 3.0, 4.0, 5.0)]
+
+    def weak(h, z=6.0, gz=8.0, **kw):
+        r = ring(h, prom=0.1, **kw)
+        r.update(z=z, groove_z=gz)
+        return r
+
+    good = weak(2.4)
+    others = [weak(3.5, gz=3.0),            # its own plane shows no groove
+              weak(1.5, z=2.0),             # too faint in the profile
+              weak(4.1),                    # 0.1 spacing from a ring: the same groove
+              weak(0.5, cov=0.2),           # a short arc (R3)
+              weak(3.6),                    # no crest between it and the ring at 4.0
+              weak(5.6)]                    # beyond the last ring (R4's end gaps look there)
+    crests = []
+
+    def crest(a, b):
+        crests.append((a["height"], b["height"]))
+        return 0.5 if a["height"] == 3.6 and b["height"] == 4.0 else 6.0
+
+    log = []
+    out, _ = rp.repair([dict(r) for r in rings], 1.0, lambda lo, hi: None, log, weak=[good] + others, crest=crest)
+    h = [r["height"] for r in out]
+    assert h == [0.0, 1.0, 2.0, 2.4, 3.0, 4.0, 5.0]
+    assert "confirmed in its own frame" in out[3]["flags"] and 0.0 <= out[3]["confidence"] <= 1.0
+    assert sum(line.startswith("R7") for line in log) == 1
+    assert (3.6, 4.0) in crests and (2.4, 2.0) in crests and (2.4, 3.0) in crests
+    # without a crest measure, R7 is not applied
+    out, _ = rp.repair([dict(r) for r in rings], 1.0, lambda lo, hi: None, [], weak=[weak(2.4)])
+    assert [r["height"] for r in out] == [0.0, 1.0, 2.0, 3.0, 4.0, 5.0]
+
+
+@pytest.mark.parametrize("separation_sigmas, two", [(6.0, True), (2.5, True), (1.5, False)])
+def test_crest_between_two_grooves_follows_the_bimodality_of_two_gaussians(separation_sigmas, two):
+    """crest_z on a wall whose relief is two equal Gaussian grooves of width sigma: analytic reference,
+    an equal mixture of two normals of one sigma is bimodal (a crest between the minima) only when the
+    means are more than 2 sigma apart (Schilling, Watkins & Watkins 2002, Am. Stat. 56:223; from
+    memory). One groove traced at both its flanks (1.5 sigma apart) shows no crest."""
+    from bandgeo.segment.trace import crest_z
+
+    rng = np.random.default_rng(4)
+    n, sigma, depth, noise = 200_000, 0.015, 0.01, 0.002
+    z = rng.uniform(0.0, 2.0, n)
+    th = rng.uniform(-np.pi, np.pi, n)
+    v = np.column_stack([5.0 * np.cos(th), 5.0 * np.sin(th), z])
+    za, zb = 1.0, 1.0 + separation_sigmas * sigma
+    relief = -depth * (np.exp(-0.5 * ((z - za) / sigma) ** 2) + np.exp(-0.5 * ((z - zb) / sigma) ** 2))
+    relief += rng.normal(0.0, noise, n)
+    up = np.array([0.0, 0.0, 1.0])
+    a = {"center": np.array([0.0, 0.0, za]), "normal": up, "height": za}
+    b = {"center": np.array([0.0, 0.0, zb]), "normal": up, "height": zb}
+    cz = crest_z(v, relief, z, a, b)
+    if two:
+        assert cz > 3.0  # the rule's threshold (repair.CONFIRM_CREST_Z); about 10 at 2.5 sigma, 95 at 6
+    else:
+        assert cz < 3.0  # the rule's threshold (repair.CONFIRM_CREST_Z)
+    # too few vertices between the planes: no judgement
+    few = np.abs(z - 1.0) > 0.2
+    assert np.isnan(crest_z(v[few], relief[few], z[few], a, b))
