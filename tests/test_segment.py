@@ -413,3 +413,22 @@ def test_crest_between_two_grooves_follows_the_bimodality_of_two_gaussians(separ
     # too few vertices between the planes: no judgement
     few = np.abs(z - 1.0) > 0.2
     assert np.isnan(crest_z(v[few], relief[few], z[few], a, b))
+
+
+def test_repair_r1_keeps_two_close_rings_with_a_crest_between_them():
+    """R1 merges rings under 0.4 spacing apart (one groove seen twice) unless the wall rises between
+    them (two grooves of a thin lamina; common practice)."""
+    def rings():
+        return [ring(float(h)) for h in (0.0, 1.0, 2.0, 2.2, 3.0, 4.0, 4.2, 5.0)]
+
+    def crest(a, b):
+        return 8.0 if {a["height"], b["height"]} == {2.0, 2.2} else 0.5
+
+    log = []
+    out, _ = rp.repair(rings(), 1.0, lambda lo, hi: None, log, crest=crest)
+    h = [r["height"] for r in out]
+    assert 2.0 in h and 2.2 in h  # a crest: two grooves
+    assert (4.0 in h) != (4.2 in h)  # no crest: one groove seen twice
+    assert sum(line.startswith("R1") for line in log) == 1
+    out, _ = rp.repair(rings(), 1.0, lambda lo, hi: None, [])
+    assert len(out) == 6  # without a crest measure, both pairs merge as before

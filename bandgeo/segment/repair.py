@@ -4,7 +4,9 @@ Rules, applied in this order (each leaves a flag on the boundaries it touches):
 
 R1 ``merged doubled ring``: two rings closer on the axis than ``DOUBLE_FRACTION`` of the local median
    spacing are one groove seen twice (e.g. both flanks of a wide groove, or a ring broken into two
-   offset arcs): the one with the higher score is kept, with the union's coverage.
+   offset arcs): the one with the higher score is kept, with the union's coverage. Unless the wall
+   rises between them by ``CONFIRM_CREST_Z`` standard errors or more, seen from either ring's plane
+   (two grooves of a thin lamina; see R7), when a crest measure is given.
 R2 ``dropped: poor fit``: a ring whose plane-fit rms exceeds ``MAX_RMS_FRACTION`` of the local spacing
    is not a ring (a noise streak or a bridge between two grooves).
 R3 ``dropped: short arc``: a ring covering less than ``MIN_COVERAGE`` (half) of the circumference is
@@ -55,6 +57,7 @@ CONFIRM_GROOVE_Z = 5.0
 CONFIRM_PROFILE_Z = 3.5
 CONFIRM_MIN_SPLIT = 0.25
 CONFIRM_CREST_Z = 3.0
+SPLIT_BY_CREST = True
 
 
 def local_spacing(heights: np.ndarray, fallback: float, window: int = 5) -> np.ndarray:
@@ -127,7 +130,16 @@ def repair(rings: list, spacing: float, trace_weak, log: list, ends=None, weak=N
             continue
         kept.append(r)
     rings = kept
-    # R1: doubled rings
+    # R1: doubled rings (not two grooves with a crest of the wall between them)
+    apart = {}
+
+    def two_grooves(a, b):
+        key = (id(a), id(b))
+        if key not in apart:
+            apart[key] = bool(crest is not None and SPLIT_BY_CREST
+                              and min(crest(a, b), crest(b, a)) >= CONFIRM_CREST_Z)
+        return apart[key]
+
     changed = True
     while changed and len(rings) > 1:
         changed = False
@@ -136,9 +148,10 @@ def repair(rings: list, spacing: float, trace_weak, log: list, ends=None, weak=N
         gaps = np.diff(h)
         ref = np.minimum(loc[:-1], loc[1:])
         close = np.flatnonzero(gaps < DOUBLE_FRACTION * ref)
-        if len(close):
-            i = int(close[np.argmin(gaps[close] / ref[close])])
+        for i in close[np.argsort(gaps[close] / ref[close], kind="stable")]:
             a, b = rings[i], rings[i + 1]
+            if two_grooves(a, b):
+                continue
             keep, drop = (a, b) if _score(a) >= _score(b) else (b, a)
             keep["coverage"] = min(1.0, max(a["coverage"], b["coverage"]) + 0.5 * min(a["coverage"], b["coverage"]))
             keep["flags"].append("merged doubled ring")
@@ -146,6 +159,7 @@ def repair(rings: list, spacing: float, trace_weak, log: list, ends=None, weak=N
                        f"({gaps[i]:.3f} mm apart < {DOUBLE_FRACTION} x local spacing {ref[i]:.3f} mm)")
             rings = [r for r in rings if r is not drop]
             changed = True
+            break
     # R4: gaps
     gaps_flagged = []
     if len(rings) >= 3:
