@@ -381,6 +381,13 @@ def test_repair_r7_adds_weak_rings_confirmed_in_their_own_frame():
     assert "confirmed in its own frame" in out[3]["flags"] and 0.0 <= out[3]["confidence"] <= 1.0
     assert sum(line.startswith("R7") for line in log) == 1
     assert (3.6, 4.0) in crests and (2.4, 2.0) in crests and (2.4, 3.0) in crests
+    # not within 2 spacings of the wall's ends (the cut's rim)
+    out, _ = rp.repair([dict(r) for r in rings], 1.0, lambda lo, hi: None, [], ends=(-0.5, 5.3),
+                       weak=[weak(2.4)], crest=crest)
+    assert 2.4 in [r["height"] for r in out]
+    out, _ = rp.repair([dict(r) for r in rings], 1.0, lambda lo, hi: None, [], ends=(0.5, 5.3),
+                       weak=[weak(2.4)], crest=crest)
+    assert 2.4 not in [r["height"] for r in out]
     # without a crest measure, R7 is not applied
     out, _ = rp.repair([dict(r) for r in rings], 1.0, lambda lo, hi: None, [], weak=[weak(2.4)])
     assert [r["height"] for r in out] == [0.0, 1.0, 2.0, 3.0, 4.0, 5.0]

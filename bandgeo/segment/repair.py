@@ -23,7 +23,8 @@ R7 ``confirmed in its own frame``: a weak peak of the flattened profile (too fai
    ``CONFIRM_GROOVE_Z`` (the R5 statistic), profile z-score at least ``CONFIRM_PROFILE_Z``, R2 and R3
    passed, at least ``CONFIRM_MIN_SPLIT`` of the local spacing from the rings on either side, and a
    crest of the wall at least ``CONFIRM_CREST_Z`` standard errors high between it and each of them (one
-   groove traced from both flanks has none; :func:`bandgeo.segment.trace.crest_z`). A thin
+   groove traced from both flanks has none; :func:`bandgeo.segment.trace.crest_z`); not within
+   ``CONFIRM_END_LAMINAE`` spacings of the wall's ends (as R6: the relief sees the cut's rim there). A thin
    lamina next to a normal one leaves two rings under ``GAP_FRACTION`` spacings apart, so R4 never looks
    there, and the flattened profile, averaged around the column, blurs the thin lamina's grooves into
    one; each groove's own plane does not (independent generator, laminae of 0.4 x the mean).
@@ -58,6 +59,7 @@ CONFIRM_PROFILE_Z = 3.5
 CONFIRM_MIN_SPLIT = 0.25
 CONFIRM_CREST_Z = 3.0
 SPLIT_BY_CREST = True
+CONFIRM_END_LAMINAE = 2.0
 
 
 def local_spacing(heights: np.ndarray, fallback: float, window: int = 5) -> np.ndarray:
@@ -195,7 +197,7 @@ def repair(rings: list, spacing: float, trace_weak, log: list, ends=None, weak=N
                 h = np.array([r["height"] for r in rings])
                 loc = local_spacing(h, spacing, window=7)
     if weak and crest is not None and len(rings) >= 3:
-        rings = _confirm_weak(rings, weak, spacing, log, crest)
+        rings = _confirm_weak(rings, weak, spacing, log, crest, ends)
         gaps_flagged = [g for g in gaps_flagged
                         if not any(g[0] < r["height"] < g[1] for r in rings)]
     if rings:
@@ -206,12 +208,15 @@ def repair(rings: list, spacing: float, trace_weak, log: list, ends=None, weak=N
     return rings, gaps_flagged
 
 
-def _confirm_weak(rings: list, weak: list, spacing: float, log: list, crest) -> list:
-    """R7 (see the module docstring): weak peaks whose own plane shows the groove, strongest first."""
+def _confirm_weak(rings: list, weak: list, spacing: float, log: list, crest, ends=None) -> list:
+    """R7 (see the module docstring): weak peaks whose own plane shows the groove, strongest first; none
+    within ``CONFIRM_END_LAMINAE`` spacings of the wall's ends (where the relief sees the cut's rim)."""
     used = {id(r) for r in rings}
+    lo_end, hi_end = (-np.inf, np.inf) if ends is None else (ends[0] + CONFIRM_END_LAMINAE * spacing,
+                                                              ends[1] - CONFIRM_END_LAMINAE * spacing)
     pool = [w for w in weak if id(w) not in used and w.get("z", 0.0) >= CONFIRM_PROFILE_Z
             and w.get("groove_z", 0.0) >= CONFIRM_GROOVE_Z and w["rms_mm"] <= MAX_RMS_FRACTION * spacing
-            and (w["coverage"] >= MIN_COVERAGE or _partial(w))]
+            and (w["coverage"] >= MIN_COVERAGE or _partial(w)) and lo_end < w["height"] < hi_end]
     for w in sorted(pool, key=lambda r: -r["groove_z"]):
         h = np.array([r["height"] for r in rings])
         i = int(np.searchsorted(h, w["height"]))
