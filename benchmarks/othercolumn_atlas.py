@@ -8,6 +8,11 @@ with a drifting elliptical section, asymmetric grooves, zipper-stitched rows and
 random pose. Prints one row per cell and a summary.
 
     python benchmarks/othercolumn_atlas.py [--laminae 120]
+    python benchmarks/othercolumn_atlas.py --seeds 1,2,3 --targets-only   # the "12 columns" of the docs
+
+With several seeds, one row per cell and seed, then the means over all rows (recall, recall over the
+resolvable boundaries, precision, mean absolute count error): the figures the segmentation rules were
+set and checked on (docs/segmentation.md).
 """
 from __future__ import annotations
 
@@ -60,16 +65,21 @@ def run_cell(lamina_edge, noise_relief, sway_deg, n_laminae, seed=1, semi_axes=(
 def main(argv=None):
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--laminae", type=int, default=120, help="laminae per column (default 120)")
+    ap.add_argument("--seeds", default="1", help="comma-separated generator seeds (default 1)")
+    ap.add_argument("--targets-only", action="store_true", help="only the cells of the target region")
     args = ap.parse_args(argv)
-    print(f"{'lam/edge':>8} {'noise/relief':>12} {'sway':>5} {'faces':>8} {'recall':>7} {'rec>=3e':>7} {'precis':>7} "
+    seeds = [int(x) for x in args.seeds.split(",")]
+    cells = [c for c in CELLS if not args.targets_only or (c[0] >= 3.0 and c[1] <= 0.5)]
+    print(f"{'seed':>4} {'lam/edge':>8} {'noise/relief':>12} {'sway':>5} {'faces':>8} {'recall':>7} {'rec>=3e':>7} {'precis':>7} "
           f"{'count':>7} {'thick':>7} {'sec':>6}  verdict         target  meets")
     rows = []
-    for le, nr, sw in CELLS:
-        r = run_cell(le, nr, sw, args.laminae)
-        rows.append(r)
-        print(f"{le:8.1f} {nr:12.1f} {sw:5.0f} {r['faces']:8d} {r['recall']:7.1%} {r['recall_resolvable']:7.1%} {r['precision']:7.1%} "
-              f"{r['count_error']:+7.1%} {r['thickness_error']:+7.1%} {r['seconds']:6.1f}  {r['verdict']:15s} "
-              f"{'yes' if r['target'] else 'no':6s}  {'yes' if r['ok'] else 'NO'}", flush=True)
+    for seed in seeds:
+        for le, nr, sw in cells:
+            r = run_cell(le, nr, sw, args.laminae, seed=seed)
+            rows.append(r)
+            print(f"{seed:4d} {le:8.1f} {nr:12.1f} {sw:5.0f} {r['faces']:8d} {r['recall']:7.1%} {r['recall_resolvable']:7.1%} {r['precision']:7.1%} "
+                  f"{r['count_error']:+7.1%} {r['thickness_error']:+7.1%} {r['seconds']:6.1f}  {r['verdict']:15s} "
+                  f"{'yes' if r['target'] else 'no':6s}  {'yes' if r['ok'] else 'NO'}", flush=True)
     print("recall: inner boundaries matched (centre within a third of the local lamina of a true plane, along its "
           "normal); rec>=3e: the same over boundaries both of whose laminae span >= 3 edge lengths (the gamma-renewal "
           "record has a thickness CV of about 0.4, so many laminae are thinner than the mean lamina / edge ratio "
@@ -77,6 +87,14 @@ def main(argv=None):
     t = [r for r in rows if r["target"]]
     print(f"othercolumn: cells meeting target {sum(r['ok'] for r in rows)}/{len(rows)}; "
           f"target cells {sum(r['ok'] for r in t)}/{len(t)}")
+    counted = [r for r in rows if r["verdict"] != "refused"]
+    if len(seeds) > 1 and counted:
+        def mean(key, f=lambda x: x):
+            vals = [f(r[key]) for r in counted if np.isfinite(r[key])]
+            return 100 * float(np.mean(vals)) if vals else float("nan")
+        print(f"means over {len(counted)} counted columns (seeds {args.seeds}): recall {mean('recall'):.1f} %, "
+              f"recall over resolvable boundaries {mean('recall_resolvable'):.1f} %, precision {mean('precision'):.1f} %, "
+              f"mean |count error| {mean('count_error', abs):.1f} %")
 
 
 if __name__ == "__main__":
