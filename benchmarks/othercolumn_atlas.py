@@ -25,7 +25,7 @@ import numpy as np
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 import othercolumn  # noqa: E402
-from accuracy_atlas import score_planes  # noqa: E402
+from accuracy_atlas import is_target_cell, score_planes  # noqa: E402
 
 #: (lamina / edge, noise / groove relief, sway deg): the target region is lamina >= 3 edges, relief >= 2x noise
 CELLS = [(3.5, 0.3, 4.0), (3.5, 0.3, 12.0), (5.0, 0.3, 4.0), (3.0, 0.5, 4.0), (3.5, 1.0, 4.0), (2.0, 0.3, 4.0),
@@ -51,7 +51,7 @@ def run_cell(lamina_edge, noise_relief, sway_deg, n_laminae, seed=1, semi_axes=(
     dt = time.perf_counter() - t0
     sc = score_planes(truth, seg, spec)
     refused = bool(seg.warnings) and seg.warnings[0].startswith("bands not resolved")
-    target = lamina_edge >= 3.0 and noise_relief <= 0.5
+    target = is_target_cell(lamina_edge, noise_relief)
     if target:
         ok = (not refused and sc["recall"] >= 0.97 and sc["precision"] >= 0.97
               and abs(sc["count_error"]) <= 0.02 and abs(sc["thickness_error"]) <= 0.03)
@@ -69,7 +69,7 @@ def main(argv=None):
     ap.add_argument("--targets-only", action="store_true", help="only the cells of the target region")
     args = ap.parse_args(argv)
     seeds = [int(x) for x in args.seeds.split(",")]
-    cells = [c for c in CELLS if not args.targets_only or (c[0] >= 3.0 and c[1] <= 0.5)]
+    cells = [c for c in CELLS if not args.targets_only or is_target_cell(c[0], c[1])]
     print(f"{'seed':>4} {'lam/edge':>8} {'noise/relief':>12} {'sway':>5} {'faces':>8} {'recall':>7} {'rec>=3e':>7} {'precis':>7} "
           f"{'count':>7} {'thick':>7} {'sec':>6}  verdict         target  meets")
     rows = []
